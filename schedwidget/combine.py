@@ -1,0 +1,507 @@
+"""Combinators: stages, warmup, restarts, product, sum, scale, clip, stretch.
+
+Each combinator is a frozen value holding its parts.  Clocks: a stage's own
+clock restarts at 0 where it begins; ``stretch`` and ``restarts`` rescale the
+real-valued clock, so joins and drops move in proportion and take effect on the
+first integer tick at or after their scaled position.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, ClassVar
+
+import numpy as np
+
+from .schedule import EDGE_CAP, Schedule, complain, literal, param
+from .shapes import Ramp, node
+
+__all__ = ["stages", "warmup", "restarts"]
+
+
+def _cap(x: np.ndarray) -> np.ndarray:
+    return np.unique(x)[:EDGE_CAP]
+
+
+def _schedule(owner: str, name: str, value: Any) -> Schedule:
+    if not isinstance(value, Schedule):
+        raise complain(owner, name, value, "a Schedule (built with cosine(), ramp(), stages(), ...)")
+    return value
+
+
+def _merged_length(*parts: Schedule) -> int | None:
+    lengths = [p.length for p in parts if p.length is not None]
+    return max(lengths) if lengths else None
+
+
+@node
+class Stages(Schedule):
+    """One stage after another; each stage's clock restarts at 0 where it begins."""
+
+    kind: ClassVar[str] = "stages"
+    parts: tuple[Schedule, ...] = param(kind="schedules", doc="the stages, in order")
+
+    def __post_init__(self) -> None:
+        parts = tuple(self.parts) if isinstance(self.parts, (list, tuple)) else self.parts
+        if not isinstance(parts, tuple) or not parts:
+            raise complain("stages", "parts", self.parts, "a non-empty sequence of schedules")
+        for i, p in enumerate(parts):
+            _schedule("stages", f"parts[{i}]", p)
+            if p.length is None and i < len(parts) - 1:
+                raise complain("stages", f"parts[{i}]", p, "a stage with a length (steps=...)",
+                               "only the last stage may be open-ended; an open-ended stage never hands over")
+        object.__setattr__(self, "parts", parts)
+
+    @property
+    def length(self) -> int | None:
+        if self.parts[-1].length is None:
+            return None
+        return sum(p.length for p in self.parts)  # type: ignore[misc]
+
+    def starts(self) -> np.ndarray:
+        """The tick where each stage begins (the first is 0)."""
+        lengths = [p.length for p in self.parts[:-1]]
+        return np.concatenate([[0.0], np.cumsum(np.asarray(lengths, dtype=float))])
+
+    def children(self):
+        return self.parts
+
+    def _at(self, u):
+        starts = self.starts()
+        if len(self.parts) == 1:
+            return self.parts[0]._held(u)
+        idx = np.searchsorted(starts, u, side="right") - 1
+        out = np.empty(np.shape(u))
+        for i, part in enumerate(self.parts):
+            mask = idx == i
+            if mask.any():
+                out[mask] = part._held(u[mask] - starts[i])
+        return out
+
+    def _edges(self, hi):
+        starts = self.starts()
+        found = [starts[1:][starts[1:] <= hi]]
+        for i, part in enumerate(self.parts):
+            if starts[i] > hi:
+                break
+            end = hi - starts[i] if part.length is None else min(hi - starts[i], part.length)
+            found.append(part._edges(end) + starts[i])
+        return _cap(np.concatenate(found))
+
+    def _joins(self):
+        starts = self.starts()
+        inner = [p._joins() + s0 for p, s0 in zip(self.parts, starts)]
+        return np.unique(np.concatenate([starts[1:], *inner]))
+
+    def _range(self, a, b):
+        starts = self.starts()
+        lo = np.full(np.shape(a), np.inf)
+        hi = np.full(np.shape(a), -np.inf)
+        for i, part in enumerate(self.parts):
+            s0 = starts[i]
+            last = i == len(self.parts) - 1
+            s1 = math.inf if last else starts[i + 1]
+            hit = (b >= s0) & ((a < s1) | last)
+            if not hit.any():
+                continue
+            pa = np.maximum(a[hit], s0) - s0
+            pb = np.minimum(b[hit], s1) - s0
+            plo, phi = part._span(pa, pb)
+            lo[hit] = np.minimum(lo[hit], plo)
+            hi[hit] = np.maximum(hi[hit], phi)
+        return lo, hi
+
+    def __repr__(self) -> str:
+        return "stages(" + ", ".join(repr(p) for p in self.parts) + ")"
+
+
+@node
+class Warmup(Schedule):
+    """A ramp from ``start`` to the target's first rate over ``steps`` ticks, then the target."""
+
+    kind: ClassVar[str] = "warmup"
+    target: Schedule = param(kind="schedule", doc="the schedule the warmup leads into")
+    steps: int = param(kind="ticks", lo=1, soft=(1, 20_000), doc="warmup length; the peak lands at this tick")
+    start: float = param(0.0, kind="rate", lo=0.0, soft=(0.0, 1.0), doc="rate at tick 0")
+    curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine"),
+                       doc="shape of the warmup ramp")
+
+    def __post_init__(self) -> None:
+        _schedule("warmup", "target", self.target)
+        self._validate()
+        n = self.target.length
+        if n is not None and self.steps > n:
+            raise complain("warmup", "steps", self.steps, f"<= {n} (the length of the schedule it leads into)",
+                           "a warmup longer than the run it warms up is usually a steps/epochs mix-up")
+        self.ramp()  # validates start/curve against the target's first rate
+
+    def ramp(self) -> Schedule:
+        """The warmup ramp itself."""
+        return Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
+
+    def as_stages(self) -> Stages:
+        return Stages(parts=(self.ramp(), self.target))
+
+    @property
+    def length(self) -> int | None:
+        n = self.target.length
+        return None if n is None else n + self.steps
+
+    def children(self):
+        return (self.target,)
+
+    def _at(self, u):
+        return self.as_stages()._at(u)
+
+    def _edges(self, hi):
+        return self.as_stages()._edges(hi)
+
+    def _joins(self):
+        return self.as_stages()._joins()
+
+    def _range(self, a, b):
+        return self.as_stages()._range(a, b)
+
+
+@node
+class Restarts(Schedule):
+    """Warm restarts: cycle k is the target stretched to ``round(L * growth**k)`` ticks, times ``peak_decay**k``."""
+
+    kind: ClassVar[str] = "restarts"
+    target: Schedule = param(kind="schedule", doc="one cycle")
+    cycles: int | None = param(None, kind="count", lo=1, soft=(1, 20), optional=True,
+                               doc="number of cycles; None repeats forever")
+    growth: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=10.0, soft=(1.0, 3.0),
+                          doc="each cycle is this many times longer than the one before")
+    peak_decay: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=1.0, soft=(0.3, 1.0),
+                              doc="each cycle is scaled by this factor relative to the one before")
+
+    def __post_init__(self) -> None:
+        _schedule("restarts", "target", self.target)
+        self._validate()
+        if self.target.length is None:
+            raise complain("restarts", "target", self.target, "a schedule with a length (steps=...)",
+                           "an open-ended schedule never ends, so it cannot restart")
+
+    @property
+    def length(self) -> int | None:
+        if self.cycles is None:
+            return None
+        return int(self._lengths(self.cycles).sum())
+
+    def children(self):
+        return (self.target,)
+
+    def _lengths(self, n: int) -> np.ndarray:
+        k = np.arange(n, dtype=float)
+        return np.maximum(1.0, np.floor(self.target.length * np.power(self.growth, k) + 0.5))
+
+    def _table(self, umax: float) -> tuple[np.ndarray, np.ndarray]:
+        """Starts and lengths of every cycle that begins at or before ``umax`` (growth != 1)."""
+        L = self.target.length
+        if self.growth > 1.0:
+            n = int(math.log(umax / L * (self.growth - 1.0) + 1.0) / math.log(self.growth)) + 2 if umax > 0 else 1
+        else:  # shrinking cycles reach one tick after a few dozen cycles; past that, closed form
+            n = int(math.log(0.5 / L) / math.log(self.growth)) + 2 if L > 1 else 1
+        n = max(n, 1) if self.cycles is None else min(max(n, 1), self.cycles)
+        lengths = self._lengths(n)
+        while self.growth > 1.0 and lengths.sum() <= umax and (self.cycles is None or n < self.cycles):
+            n = 2 * n if self.cycles is None else min(2 * n, self.cycles)
+            lengths = self._lengths(n)
+        return np.concatenate([[0.0], np.cumsum(lengths)[:-1]]), lengths
+
+    def _locate(self, u):
+        """Cycle index, cycle start and cycle length for every real tick ``u``."""
+        L = float(self.target.length)
+        last = math.inf if self.cycles is None else self.cycles - 1
+        if self.growth == 1.0:
+            k = np.minimum(np.floor(u / L), last)
+            return k, k * L, np.full(np.shape(u), L)
+        umax = float(np.max(u)) if np.size(u) else 0.0
+        starts, lengths = self._table(umax)
+        k = np.searchsorted(starts, u, side="right") - 1
+        start, ln = starts[k], lengths[k]
+        if self.growth < 1.0 and (self.cycles is None or self.cycles > len(lengths)):
+            end = starts[-1] + lengths[-1]  # every later cycle is one tick long
+            past = u >= end
+            extra = np.minimum(np.floor(u - end), last - len(lengths))
+            k = np.where(past, len(lengths) + extra, k)
+            start = np.where(past, end + extra, start)
+            ln = np.where(past, 1.0, ln)
+        return k.astype(float), start, ln
+
+    def _at(self, u):
+        k, start, ln = self._locate(u)
+        L = float(self.target.length)
+        local = ((u - start) * L) / ln
+        return self.target._held(local) * np.power(self.peak_decay, k)
+
+    def _starts(self, hi: float) -> tuple[np.ndarray, np.ndarray]:
+        """Start and length of every cycle that begins at or before ``hi`` (at most EDGE_CAP)."""
+        L = float(self.target.length)
+        last = EDGE_CAP if self.cycles is None else min(self.cycles - 1, EDGE_CAP)
+        if self.growth == 1.0:
+            n = int(min(hi // L, last))
+            return np.arange(n + 1, dtype=float) * L, np.full(n + 1, L)
+        starts, lengths = self._table(hi)
+        if self.growth < 1.0 and (self.cycles is None or self.cycles > len(lengths)):
+            end = starts[-1] + lengths[-1]
+            n = int(min(max(hi - end + 1, 0), last + 1 - len(lengths)))
+            starts = np.concatenate([starts, end + np.arange(n, dtype=float)])
+            lengths = np.concatenate([lengths, np.ones(n)])
+        keep = starts <= hi
+        return starts[keep][: EDGE_CAP + 1], lengths[keep][: EDGE_CAP + 1]
+
+    def _edges(self, hi):
+        L = float(self.target.length)
+        starts, lens = self._starts(hi)
+        inner = self.target._edges(L)
+        pos = (starts[:, None] + (inner[None, :] * lens[:, None]) / L).ravel() if inner.size else np.empty(0)
+        found = np.concatenate([starts[1:], pos])
+        return _cap(found[(found > 0) & (found <= hi)])
+
+    def _range(self, a, b):
+        L = float(self.target.length)
+        ka, sa, la = self._locate(a)
+        kb, sb, lb = self._locate(b)
+        da, db = np.power(self.peak_decay, ka), np.power(self.peak_decay, kb)
+        same = ka == kb
+        # first (possibly partial) cycle: from a to its end, or to b within the same cycle
+        end_a = np.where(same, ((b - sa) * L) / la, L)
+        lo1, hi1 = self.target._span(((a - sa) * L) / la, end_a)
+        lo, hi = lo1 * da, hi1 * da
+        # last (partial) cycle when it differs from the first
+        lo2, hi2 = self.target._span(np.zeros(np.shape(b)), ((b - sb) * L) / lb)
+        lo = np.where(same, lo, np.minimum(lo, lo2 * db))
+        hi = np.where(same, hi, np.maximum(hi, hi2 * db))
+        # whole cycles strictly between: their full range, largest at ka+1, smallest at kb-1
+        full_lo, full_hi = self.target._span(np.zeros(1), np.full(1, L))
+        between = kb - ka >= 2
+        lo = np.where(between, np.minimum(lo, full_lo[0] * np.power(self.peak_decay, kb - 1)), lo)
+        hi = np.where(between, np.maximum(hi, full_hi[0] * np.power(self.peak_decay, ka + 1)), hi)
+        return lo, hi
+
+
+@node
+class Product(Schedule):
+    """Tick-by-tick product of two schedules."""
+
+    kind: ClassVar[str] = "product"
+    left: Schedule = param(kind="schedule", doc="first factor")
+    right: Schedule = param(kind="schedule", doc="second factor")
+
+    def __post_init__(self) -> None:
+        _schedule(self.kind, "left", self.left)
+        _schedule(self.kind, "right", self.right)
+
+    @property
+    def length(self) -> int | None:
+        return _merged_length(self.left, self.right)
+
+    def children(self):
+        return (self.left, self.right)
+
+    def _at(self, u):
+        return self.left._held(u) * self.right._held(u)
+
+    def _edges(self, hi):
+        return _cap(np.concatenate([self.left._edges(hi), self.right._edges(hi)]))
+
+    def _joins(self):
+        return np.unique(np.concatenate([self.left._joins(), self.right._joins()]))
+
+    def _range(self, a, b):
+        la, ha = self.left._span(a, b)
+        lb, hb = self.right._span(a, b)
+        return la * lb, ha * hb
+
+    def __repr__(self) -> str:
+        return f"({self.left!r} * {self.right!r})"
+
+
+@node
+class Sum(Product):
+    """Tick-by-tick sum of two schedules."""
+
+    kind: ClassVar[str] = "sum"
+
+    def _at(self, u):
+        return self.left._held(u) + self.right._held(u)
+
+    def _range(self, a, b):
+        la, ha = self.left._span(a, b)
+        lb, hb = self.right._span(a, b)
+        return la + lb, ha + hb
+
+    def __repr__(self) -> str:
+        return f"({self.left!r} + {self.right!r})"
+
+
+@node
+class Scaled(Schedule):
+    """A schedule multiplied by a constant ``factor >= 0``."""
+
+    kind: ClassVar[str] = "scale"
+    target: Schedule = param(kind="schedule", doc="the schedule to scale")
+    factor: float = param(kind="ratio", lo=0.0, soft=(0.01, 10.0), log=True, doc="constant multiplier")
+
+    def __post_init__(self) -> None:
+        _schedule(self.kind, "target", self.target)
+        self._validate()
+
+    @property
+    def length(self) -> int | None:
+        return self.target.length
+
+    def children(self):
+        return (self.target,)
+
+    def _at(self, u):
+        return self.target._at(u) * self.factor
+
+    def _edges(self, hi):
+        return self.target._edges(hi)
+
+    def _joins(self):
+        return self.target._joins()
+
+    def _range(self, a, b):
+        lo, hi = self.target._range(a, b)
+        return lo * self.factor, hi * self.factor
+
+    def __repr__(self) -> str:
+        return f"({self.target!r} * {literal(self.factor)})"
+
+
+@node
+class Clip(Schedule):
+    """A schedule held inside ``[low, high]``."""
+
+    kind: ClassVar[str] = "clip"
+    target: Schedule = param(kind="schedule", doc="the schedule to clip")
+    low: float | None = param(None, kind="rate", lo=0.0, optional=True, soft=(1e-6, 1.0), log=True,
+                              doc="the rate never goes below this")
+    high: float | None = param(None, kind="rate", lo=0.0, optional=True, soft=(1e-6, 1.0), log=True,
+                               doc="the rate never goes above this")
+
+    def __post_init__(self) -> None:
+        _schedule(self.kind, "target", self.target)
+        self._validate()
+        if self.low is None and self.high is None:
+            raise complain("clip", "low", None, "a rate when high is None", "clip needs low, high or both")
+        if self.low is not None and self.high is not None and self.low > self.high:
+            raise complain("clip", "low", self.low, f"<= high = {self.high!r}")
+
+    @property
+    def length(self) -> int | None:
+        return self.target.length
+
+    def children(self):
+        return (self.target,)
+
+    def _bound(self, x):
+        return np.clip(x, self.low, self.high)
+
+    def _at(self, u):
+        return self._bound(self.target._at(u))
+
+    def _edges(self, hi):
+        return self.target._edges(hi)
+
+    def _joins(self):
+        return self.target._joins()
+
+    def _range(self, a, b):
+        lo, hi = self.target._range(a, b)
+        return self._bound(lo), self._bound(hi)
+
+    def __repr__(self) -> str:
+        return f"{self.target!r}.clip(low={literal(self.low)}, high={literal(self.high)})"
+
+
+@node
+class Stretch(Schedule):
+    """The same shape over a new budget: tick ``t`` reads the target at ``t * length / steps``."""
+
+    kind: ClassVar[str] = "stretch"
+    target: Schedule = param(kind="schedule", doc="the schedule to stretch")
+    steps: int = param(kind="ticks", lo=1, soft=(1, 1_000_000), doc="the new budget in ticks")
+
+    def __post_init__(self) -> None:
+        _schedule(self.kind, "target", self.target)
+        self._validate()
+        if self.target.length is None:
+            raise complain("stretch", "target", self.target, "a schedule with a length (steps=...)",
+                           "an open-ended schedule has no budget to stretch")
+
+    @property
+    def length(self) -> int:
+        return self.steps
+
+    def children(self):
+        return (self.target,)
+
+    def _inner(self, u):
+        return (u * float(self.target.length)) / float(self.steps)
+
+    def _outer(self, v):
+        return (v * float(self.steps)) / float(self.target.length)
+
+    def _at(self, u):
+        return self.target._at(self._inner(u))
+
+    def _edges(self, hi):
+        return _cap(self._outer(self.target._edges(self._inner(hi))))
+
+    def _joins(self):
+        return self._outer(self.target._joins())
+
+    def _range(self, a, b):
+        return self.target._range(self._inner(a), self._inner(b))
+
+    def __repr__(self) -> str:
+        return f"{self.target!r}.stretch({self.steps})"
+
+
+# ---------------------------------------------------------------------- factories
+def stages(*parts: Schedule) -> Schedule:
+    """One stage after another; nested stages flatten, so ``a >> b >> c`` is one node.
+
+    >>> from schedwidget import flat
+    >>> s = stages(flat(1.0, steps=2), flat(0.5))
+    >>> s(1), s(2)
+    (1.0, 0.5)
+    """
+    flatparts: list[Schedule] = []
+    for i, p in enumerate(parts):
+        _schedule("stages", f"parts[{i}]", p)
+        flatparts.extend(p.parts if isinstance(p, Stages) else (p,))
+    if len(flatparts) == 1:
+        return flatparts[0]
+    return Stages(parts=tuple(flatparts))
+
+
+def warmup(target: Schedule, steps: int, start: float = 0.0, curve: str = "linear") -> Schedule:
+    """A ramp from ``start`` up to ``target(0)`` over ``steps`` ticks, then ``target``.
+
+    The peak lands at tick ``steps``.
+
+    >>> from schedwidget import cosine
+    >>> s = warmup(cosine(0.1, steps=100), steps=10)
+    >>> s(0), s(5), s(10)
+    (0.0, 0.05, 0.1)
+    """
+    return Warmup(target=target, steps=steps, start=start, curve=curve)
+
+
+def restarts(target: Schedule, cycles: int | None = None, growth: float = 1.0,
+             peak_decay: float = 1.0) -> Schedule:
+    """Warm restarts (Loshchilov & Hutter 2017): repeat ``target``, cycle k lasting ``L * growth**k``.
+
+    >>> from schedwidget import cosine
+    >>> s = restarts(cosine(1.0, steps=10), cycles=3, growth=2.0)
+    >>> s.length, s(10), s(30)
+    (70, 1.0, 1.0)
+    """
+    return Restarts(target=target, cycles=cycles, growth=growth, peak_decay=peak_decay)

@@ -1,0 +1,324 @@
+"""The Schedule base class, the evaluation protocol, parameter declarations and ScheduleError.
+
+A schedule maps an integer clock ``t = 0, 1, 2, ...`` to a learning rate ``>= 0``.
+Internally every node is a formula of a *real-valued* clock (``_at``); integer
+ticks are where it is sampled.  Past its ``length`` a schedule holds the value
+its formula reaches at ``t = length``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, fields
+from numbers import Integral, Real
+from typing import Any, Iterator
+
+import numpy as np
+
+__all__ = ["Schedule", "ScheduleError", "Param", "param"]
+
+#: How many possible discontinuities a node reports before it counts as dense.
+EDGE_CAP = 4096
+
+
+class ScheduleError(ValueError):
+    """Every bad input: names the parameter, the value given and what is allowed."""
+
+
+def complain(owner: str, name: str, value: Any, allowed: str, hint: str | None = None) -> ScheduleError:
+    """Build the one message format used for every bad parameter."""
+    msg = f"{owner}: {name} must be {allowed}, got {value!r}"
+    if hint:
+        msg += f" ({hint})"
+    return ScheduleError(msg)
+
+
+@dataclass(frozen=True, slots=True)
+class Param:
+    """One parameter's declaration: validation, widget controls, schema and docs read it.
+
+    kind is one of ``rate`` (absolute learning rate), ``ratio`` (a plain number),
+    ``ticks`` (a whole number of clock ticks), ``count`` (a whole number),
+    ``choice``, ``ticklist``, ``points``, ``schedule`` or ``schedules``.
+    """
+
+    kind: str
+    doc: str
+    lo: float | None = None
+    hi: float | None = None
+    lo_open: bool = False
+    hi_open: bool = False
+    soft: tuple[float, float] | None = None
+    log: bool = False
+    choices: tuple[str, ...] = ()
+    optional: bool = False
+    hint: str | None = None
+
+    def allowed(self) -> str:
+        """Words for the allowed range, used in every message about this parameter."""
+        if self.kind == "choice":
+            return "one of " + ", ".join(repr(c) for c in self.choices)
+        if self.kind in ("ticks", "count"):
+            words = f"a whole number >= {int(self.lo if self.lo is not None else 0)}"
+            if self.hi is not None:
+                words += f" and <= {int(self.hi)}"
+            return words + (" or None" if self.optional else "")
+        if self.kind in ("rate", "ratio"):
+            noun = "a finite rate" if self.kind == "rate" else "a finite number"
+            if self.lo is not None and self.hi is not None:
+                left = "(" if self.lo_open else "["
+                right = ")" if self.hi_open else "]"
+                return f"{noun} in {left}{_num(self.lo)}, {_num(self.hi)}{right}"
+            if self.lo is not None:
+                return f"{noun} {'>' if self.lo_open else '>='} {_num(self.lo)}"
+            return noun
+        return self.kind
+
+    def check(self, owner: str, name: str, value: Any) -> Any:
+        """Return the normalised value or raise ScheduleError naming ``owner.name``."""
+        if value is None and self.optional:
+            return None
+        if self.kind == "choice":
+            if not isinstance(value, str) or value not in self.choices:
+                raise complain(owner, name, value, self.allowed(), self.hint)
+            return value
+        if self.kind in ("ticks", "count"):
+            out = as_whole(value)
+            if out is None or (self.lo is not None and out < self.lo) or (self.hi is not None and out > self.hi):
+                raise complain(owner, name, value, self.allowed(), self.hint)
+            return out
+        if self.kind == "flag":
+            if not isinstance(value, (bool, np.bool_)):
+                raise complain(owner, name, value, "True or False", self.hint)
+            return bool(value)
+        if self.kind == "ticklist":
+            return check_ticklist(owner, name, value, int(self.lo or 0))
+        if self.kind in ("rate", "ratio"):
+            if isinstance(value, bool) or not isinstance(value, Real) or not math.isfinite(value):
+                raise complain(owner, name, value, self.allowed(), self.hint)
+            v = float(value)
+            if self.lo is not None and (v < self.lo or (self.lo_open and v == self.lo)):
+                raise complain(owner, name, value, self.allowed(), self.hint)
+            if self.hi is not None and (v > self.hi or (self.hi_open and v == self.hi)):
+                raise complain(owner, name, value, self.allowed(), self.hint)
+            return v
+        return value
+
+
+def param(default: Any = dataclass, **declaration: Any) -> Any:
+    """A dataclass field that carries its Param declaration in ``metadata['param']``."""
+    meta = {"param": Param(**declaration)}
+    if default is dataclass:
+        return field(metadata=meta)
+    return field(default=default, metadata=meta)
+
+
+def as_whole(value: Any) -> int | None:
+    """``value`` as a Python int if it is a whole number (int, numpy int, integral float), else None."""
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, Integral):
+        return int(value)
+    if isinstance(value, Real) and math.isfinite(value) and float(value).is_integer():
+        return int(value)
+    return None
+
+
+def check_ticklist(owner: str, name: str, value: Any, lo: int) -> tuple[int, ...]:
+    """A strictly increasing tuple of whole ticks, each >= lo."""
+    if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
+        raise complain(owner, name, value, f"a list of whole ticks >= {lo}, strictly increasing")
+    out: list[int] = []
+    for i, v in enumerate(value):
+        w = as_whole(v)
+        if w is None or w < lo:
+            raise complain(owner, f"{name}[{i}]", v, f"a whole number >= {lo}")
+        if out and w <= out[-1]:
+            raise complain(owner, f"{name}[{i}]", v, f"a tick > {name}[{i - 1}] = {out[-1]}",
+                           "ticks must increase strictly: sort them and remove duplicates")
+        out.append(w)
+    return tuple(out)
+
+
+def _num(x: float) -> str:
+    return str(int(x)) if float(x).is_integer() and abs(x) < 1e15 else repr(float(x))
+
+
+def literal(v: Any) -> str:
+    """Python source for a parameter value (floats by ``repr`` so they round-trip bit-exactly)."""
+    if isinstance(v, float):
+        return repr(v)
+    if isinstance(v, tuple):
+        inner = ", ".join(literal(x) for x in v)
+        return f"({inner},)" if len(v) == 1 else f"({inner})"
+    return repr(v)
+
+
+def fmt(x: float) -> str:
+    """A float written so that ``eval`` gives the same float back (used by repr)."""
+    return repr(float(x))
+
+
+class Schedule:
+    """A learning-rate schedule: an immutable value mapping integer ticks to rates.
+
+    Call it with an int for a float, or with an integer array for a float64 array
+    of the same shape.  Every subclass is a frozen dataclass, so ``==`` and hashing
+    compare designs by value.
+
+    Examples
+    --------
+    >>> from schedwidget import cosine
+    >>> s = cosine(0.1, steps=100)
+    >>> s(0), s(100), s(10**6)
+    (0.1, 0.0, 0.0)
+    """
+
+    __slots__ = ()
+    kind: str = "schedule"  # overridden by every concrete class (a plain class attribute)
+
+    # ----------------------------------------------------------------- protocol
+    @property
+    def length(self) -> int | None:
+        """The planned budget in ticks, or None when open-ended."""
+        raise NotImplementedError
+
+    def _at(self, u: np.ndarray) -> np.ndarray:
+        """The formula on the real clock ``u`` (float64 array, ``0 <= u <= length``)."""
+        raise NotImplementedError
+
+    def _edges(self, hi: float) -> np.ndarray:
+        """Sorted real positions in ``(0, hi]`` where the formula may jump (at most EDGE_CAP)."""
+        return np.empty(0)
+
+    def _joins(self) -> np.ndarray:
+        """Real positions of stage joins (where one stage hands over to the next)."""
+        return np.empty(0)
+
+    def _range(self, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Lower and upper bounds of the formula over each closed interval ``[a, b]``."""
+        raise NotImplementedError
+
+    def children(self) -> tuple[Schedule, ...]:
+        """The schedules this node is built from (empty for leaf shapes)."""
+        return ()
+
+    # --------------------------------------------------------------- evaluation
+    def __call__(self, t: Any) -> Any:
+        """The rate at integer tick(s) ``t``: a float for a scalar, a float64 array for an array."""
+        arr = np.asarray(t)
+        if arr.dtype.kind in "iu":
+            u = arr.astype(np.float64)
+        elif arr.dtype.kind == "f":
+            u = arr.astype(np.float64, copy=False)
+            if not np.all(np.isfinite(u)) or not np.array_equal(u, np.floor(u)):
+                raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
+        else:
+            raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
+        if u.size and u.min() < 0:
+            raise complain(self.kind, "t", t if arr.ndim == 0 else "an array with negative ticks",
+                           "a tick >= 0", "t = 0 is the rate of the very first update")
+        out = self._at(self._clamp(u))
+        if arr.ndim == 0:
+            return float(out)
+        return np.asarray(out, dtype=np.float64).reshape(arr.shape)
+
+    def _clamp(self, u: np.ndarray) -> np.ndarray:
+        n = self.length
+        return u if n is None else np.minimum(u, float(n))
+
+    def _held(self, u: np.ndarray) -> np.ndarray:
+        """``_at`` with the hold-past-the-end rule applied (for use by combinators)."""
+        return self._at(self._clamp(u))
+
+    def _span(self, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``_range`` with both interval ends clamped to the length."""
+        return self._range(self._clamp(np.asarray(a, float)), self._clamp(np.asarray(b, float)))
+
+    def __repr__(self) -> str:
+        args = ", ".join(f"{n}={literal(getattr(self, n))}" for n in self.params())
+        return f"{self.kind}({args})"
+
+    # ---------------------------------------------------------------- operators
+    def then(self, *others: Schedule) -> Schedule:
+        """``a.then(b)`` is ``stages(a, b)``: ``b`` starts, on its own clock, where ``a`` ends."""
+        from .combine import stages
+
+        return stages(self, *others)
+
+    def __rshift__(self, other: Any) -> Any:
+        if not isinstance(other, Schedule):
+            return NotImplemented
+        return self.then(other)
+
+    def __mul__(self, other: Any) -> Any:
+        from .combine import Product, Scaled
+
+        if isinstance(other, Schedule):
+            return Product(left=self, right=other)
+        if isinstance(other, Real) and not isinstance(other, bool):
+            return Scaled(target=self, factor=other)
+        return NotImplemented
+
+    def __rmul__(self, other: Any) -> Any:
+        if isinstance(other, Schedule):
+            return NotImplemented
+        return self.__mul__(other)
+
+    def __add__(self, other: Any) -> Any:
+        from .combine import Sum
+
+        if not isinstance(other, Schedule):
+            return NotImplemented
+        return Sum(left=self, right=other)
+
+    def clip(self, low: float | None = None, high: float | None = None) -> Schedule:
+        """The same schedule held inside ``[low, high]`` (either side may be None)."""
+        from .combine import Clip
+
+        return Clip(target=self, low=low, high=high)
+
+    def stretch(self, steps: int) -> Schedule:
+        """The same shape over a new budget of ``steps`` ticks: joins and drops move in proportion."""
+        from .combine import Stretch
+
+        if isinstance(self, Stretch):
+            return Stretch(target=self.target, steps=steps)
+        if steps == self.length and isinstance(steps, int):
+            return self
+        return Stretch(target=self, steps=steps)
+
+    # ------------------------------------------------------------------- data
+    def to_spec(self) -> dict:
+        """Plain-JSON description of this design, with format version (see ``schedwidget.spec``)."""
+        from .spec import to_spec
+
+        return to_spec(self)
+
+    def _repr_svg_(self) -> str:
+        from .svg import render_svg
+
+        return render_svg(self)
+
+    def walk(self) -> Iterator[Schedule]:
+        """This node and every node below it, depth first."""
+        yield self
+        for c in self.children():
+            yield from c.walk()
+
+    @classmethod
+    def params(cls) -> dict[str, Param]:
+        """The declared parameters of this kind, in order."""
+        return {f.name: f.metadata["param"] for f in fields(cls) if "param" in f.metadata}  # type: ignore[arg-type]
+
+    def _validate(self) -> None:
+        """Check and normalise every declared parameter (called from ``__post_init__``)."""
+        for name, p in self.params().items():
+            value = getattr(self, name)
+            object.__setattr__(self, name, p.check(self.kind, name, value))
+
+
+def monotone_range(f, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Bounds of a monotone formula ``f`` over ``[a, b]``: its values at the two ends."""
+    fa, fb = f(a), f(b)
+    return np.minimum(fa, fb), np.maximum(fa, fb)
