@@ -65,10 +65,10 @@ class Facts:
                          for r in rows)
 
 
-def _ticks(n: int) -> tuple[np.ndarray, bool]:
-    if n <= EXACT_LIMIT:
+def _ticks(n: int, limit: int) -> tuple[np.ndarray, bool]:
+    if n <= limit:
         return np.arange(n, dtype=np.int64), True
-    return np.unique(np.linspace(0, n - 1, EXACT_LIMIT // 2).astype(np.int64)), False
+    return np.unique(np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)), False
 
 
 def _scan(s: Schedule, ticks: np.ndarray, extra: np.ndarray):
@@ -148,7 +148,7 @@ def _cautions(s: Schedule, f0: float, peak: float, n: int, batch: int | None, un
 
 
 def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = None,
-          unit: str = "step", batch: int | None = None) -> Facts:
+          unit: str = "step", batch: int | None = None, exact_up_to: int = EXACT_LIMIT) -> Facts:
     """Read ``s`` over ``steps`` ticks (default: its length).
 
     Parameters
@@ -158,6 +158,8 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     steps_per_epoch : adds epochs beside steps in the readout (unit "step").
     unit : "step" or "epoch", the unit of the clock; stated in every line.
     batch : batch size per update, used only for cautions.
+    exact_up_to : budgets up to this many ticks are read tick by tick; longer ones from an
+        even grid of half as many ticks plus every jump (``Facts.exact`` says which).
 
     Examples
     --------
@@ -172,7 +174,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     if batch is not None and (not isinstance(batch, (int, np.integer)) or batch < 1):
         raise ScheduleError(f"facts: batch must be a whole number >= 1 or None, got {batch!r}")
     n = budget_of(s, steps, "facts")
-    ticks, exact = _ticks(n)
+    ticks, exact = _ticks(n, exact_up_to)
     brk = breaks(s, n)
     grid, peak, peak_at, low, low_at, total = _scan(s, ticks, np.concatenate([brk, brk - 1]))
     area = total if exact else total * n / grid.size
