@@ -176,11 +176,13 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     n = budget_of(s, steps, "facts")
     ticks, exact = _ticks(n, exact_up_to)
     brk = breaks(s, n)
-    grid, peak, peak_at, low, low_at, total = _scan(s, ticks, np.concatenate([brk, brk - 1]))
+    joins = np.ceil(s._joins())
+    joins = joins[(joins >= 1) & (joins <= n - 1)].astype(np.int64)
+    extra = np.concatenate([brk, brk - 1, joins, joins - 1, [n - 1]]).astype(np.int64)
+    grid, peak, peak_at, low, low_at, total = _scan(s, ticks, extra)
     area = total if exact else total * n / grid.size
     first, final, after = s(0), s(n - 1), s(n)
-    joins = np.ceil(s._joins())
-    joins = tuple(int(j) for j in joins[(joins >= 1) & (joins <= n - 1)])
+    joins = tuple(int(j) for j in joins)
     rows: list[tuple[str, int, float]] = [("first tick", 0, first)]
     for i, j in enumerate(joins, start=1):
         rows.append((f"end of stage {i}", j - 1, s(j - 1)))
