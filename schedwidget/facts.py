@@ -65,15 +65,20 @@ class Facts:
                          for r in rows)
 
 
+def _sorted_unique(x: np.ndarray) -> np.ndarray:
+    x = np.sort(x)
+    return x[np.concatenate([[True], x[1:] != x[:-1]])] if x.size else x
+
+
 def _ticks(n: int, limit: int) -> tuple[np.ndarray, bool]:
     if n <= limit:
         return np.arange(n, dtype=np.int64), True
-    return np.unique(np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)), False
+    return _sorted_unique(np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)), False
 
 
 def _scan(s: Schedule, ticks: np.ndarray, extra: np.ndarray):
     """Peak/min/area over ``ticks`` (chunked), with the jump ticks and their neighbours added."""
-    grid = np.unique(np.concatenate([ticks, extra]))
+    grid = _sorted_unique(np.concatenate([ticks, extra]))
     peak, peak_at, low, low_at, total = -math.inf, 0, math.inf, 0, 0.0
     for i in range(0, grid.size, CHUNK):
         t = grid[i:i + CHUNK]
@@ -85,6 +90,21 @@ def _scan(s: Schedule, ticks: np.ndarray, extra: np.ndarray):
             low, low_at = float(y[k]), int(t[k])
         total += float(np.sum(y))
     return grid, peak, peak_at, low, low_at, total
+
+
+def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int, tries: int = 4) -> tuple[float, int]:
+    """On a grid, look inside the earliest gaps whose bounds reach the peak for a higher or earlier one."""
+    a, b = grid[:-1], grid[1:]
+    _, hi = s._span(a.astype(float), b.astype(float))
+    for i in np.flatnonzero((hi >= peak) & (b - a > 1))[:tries]:
+        if a[i] >= peak_at:
+            break
+        t = np.arange(a[i], b[i] + 1)
+        y = s(t)
+        j = int(np.argmax(y))
+        if y[j] > peak or (y[j] == peak and t[j] < peak_at):
+            peak, peak_at = float(y[j]), int(t[j])
+    return peak, peak_at
 
 
 def _first_under(s: Schedule, grid: np.ndarray, start: int, level: float) -> int | None:
@@ -180,6 +200,8 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     joins = joins[(joins >= 1) & (joins <= n - 1)].astype(np.int64)
     extra = np.concatenate([brk, brk - 1, joins, joins - 1, [n - 1]]).astype(np.int64)
     grid, peak, peak_at, low, low_at, total = _scan(s, ticks, extra)
+    if not exact:
+        peak, peak_at = _refine_peak(s, grid, peak, peak_at)
     area = total if exact else total * n / grid.size
     first, final, after = s(0), s(n - 1), s(n)
     joins = tuple(int(j) for j in joins)
