@@ -71,12 +71,20 @@ class Stages(Schedule):
         starts = self.starts()
         if len(self.parts) == 1:
             return self.parts[0]._held(u)
-        idx = np.searchsorted(starts, u, side="right") - 1
         out = np.empty(np.shape(u))
+        flat_u, flat_out = u.reshape(-1), out.reshape(-1)
+        if flat_u.size < 2 or bool(np.all(flat_u[1:] >= flat_u[:-1])):
+            # sorted clock (the usual np.arange): each stage is one slice, no masks
+            cut = np.concatenate([np.searchsorted(flat_u, starts, side="left"), [flat_u.size]])
+            for i, part in enumerate(self.parts):
+                if cut[i + 1] > cut[i]:
+                    flat_out[cut[i]:cut[i + 1]] = part._held(flat_u[cut[i]:cut[i + 1]] - starts[i])
+            return out
+        idx = np.searchsorted(starts, flat_u, side="right") - 1
         for i, part in enumerate(self.parts):
             mask = idx == i
             if mask.any():
-                out[mask] = part._held(u[mask] - starts[i])
+                flat_out[mask] = part._held(flat_u[mask] - starts[i])
         return out
 
     def _edges(self, hi):
@@ -229,13 +237,18 @@ class Restarts(Schedule):
             k = np.where(past, len(lengths) + extra, k)
             start = np.where(past, end + extra, start)
             ln = np.where(past, 1.0, ln)
-        return k.astype(float), start, ln
+        return k, start, ln
 
     def _at(self, u):
         k, start, ln = self._locate(u)
         L = float(self.target.length)
-        local = ((u - start) * L) / ln
-        return self.target._held(local) * np.power(self.peak_decay, k)
+        local = u - start
+        local *= L
+        local /= ln
+        out = self.target._held(local)
+        if self.peak_decay != 1.0:
+            out *= np.power(self.peak_decay, k)
+        return out
 
     def _starts(self, hi: float) -> tuple[np.ndarray, np.ndarray]:
         """Start and length of every cycle that begins at or before ``hi`` (at most EDGE_CAP)."""
@@ -404,7 +417,12 @@ class Clip(Schedule):
         return np.clip(x, self.low, self.high)
 
     def _at(self, u):
-        return self._bound(self.target._at(u))
+        out = np.asarray(self.target._at(u), dtype=float)  # a fresh array: bound it in place
+        if self.low is not None:
+            np.maximum(out, self.low, out=out)
+        if self.high is not None:
+            np.minimum(out, self.high, out=out)
+        return out
 
     def _edges(self, hi):
         return self.target._edges(hi)

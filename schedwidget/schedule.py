@@ -225,7 +225,9 @@ class Schedule:
 
     def _clamp(self, u: np.ndarray) -> np.ndarray:
         n = self.length
-        return u if n is None else np.minimum(u, float(n))
+        if n is None or (np.size(u) and np.max(u) <= n):  # a max is cheaper than a copy
+            return u
+        return np.minimum(u, float(n))
 
     def _held(self, u: np.ndarray) -> np.ndarray:
         """``_at`` with the hold-past-the-end rule applied (for use by combinators)."""

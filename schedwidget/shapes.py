@@ -109,7 +109,12 @@ class Cosine(_Leaf):
         _floor_not_above_peak(self)
 
     def _at(self, u):
-        return self.floor + (self.peak - self.floor) * (1.0 + np.cos(np.pi * (u / self.steps))) / 2.0
+        y = np.multiply(u, np.pi / self.steps, out=np.empty(np.shape(u)))
+        np.cos(y, out=y)
+        y += 1.0
+        y *= (self.peak - self.floor) / 2.0
+        y += self.floor
+        return y
 
 
 @node
