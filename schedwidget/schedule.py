@@ -284,11 +284,10 @@ class Schedule:
         """The same shape over a new budget of ``steps`` ticks: joins and drops move in proportion."""
         from .combine import Stretch
 
-        if isinstance(self, Stretch):
-            return Stretch(target=self.target, steps=steps)
-        if steps == self.length and isinstance(steps, int):
-            return self
-        return Stretch(target=self, steps=steps)
+        inner = self.target if isinstance(self, Stretch) else self
+        if isinstance(steps, int) and steps == inner.length:
+            return inner
+        return Stretch(target=inner, steps=steps)
 
     # ------------------------------------------------------------------- data
     def to_spec(self) -> dict:
