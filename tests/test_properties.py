@@ -83,3 +83,16 @@ def test_exp_decay_no_drift(factor, every):
     exact = float(mpmath.mpf(0.1) * mpmath.power(mpmath.mpf(factor), k))
     got = s(10**7)
     assert abs(got - exact) <= 1e-12 * exact or (exact < 1e-300 and got < 1e-300)
+
+
+@FAST
+@given(schedules, st.data())
+def test_interval_bounds_hold_every_value(s, data):
+    # the bands of the curve panel and the peak search rely on these bounds
+    L = s.length
+    a = data.draw(st.integers(0, L))
+    b = data.draw(st.integers(a, min(L + 20, a + 3000)))
+    lo, hi = s._span(np.array([float(a)]), np.array([float(b)]))
+    y = s(np.arange(a, b + 1))
+    tol = 1e-12 * max(1.0, float(np.max(np.abs(y))))
+    assert y.min() >= lo[0] - tol and y.max() <= hi[0] + tol
