@@ -10,6 +10,8 @@ from typing import Any
 
 from .combine import restarts, stages, warmup
 from .facts import Facts, facts
+from .metrics import read_metric
+from .plateau import PlateauReplay, plateau_source, replay_plateau
 from .schedule import Schedule, ScheduleError
 from .shapes import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, triangle
 from .spec import Design, from_spec, json_schema, load, load_design, save, to_spec
@@ -21,6 +23,7 @@ __all__ = [
     "flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots",
     "stages", "warmup", "restarts",
     "Facts", "facts",
+    "replay_plateau", "plateau_source", "PlateauReplay", "read_metric",
     "Design", "to_spec", "from_spec", "save", "load", "load_design", "json_schema",
 ]
 

@@ -1,0 +1,298 @@
+"""The replay panel: what a reduce-on-plateau rule would have done on a logged metric history.
+
+Load a history (a shipped demo, an uploaded CSV or a path), set the rule, and
+read the rate per epoch over the metric (own axis), the drops (markers and a
+table) and a "what if" strip with the drop epochs for patience 1..8.  The
+figure and its marks are built once; every change assigns new arrays.
+Nothing raises into the notebook: problems go to the message line.
+"""
+
+from __future__ import annotations
+
+import html
+import warnings
+from typing import TYPE_CHECKING, Any, Callable
+
+import ipywidgets as W
+import numpy as np
+
+with warnings.catch_warnings():
+    # bqplot 0.13 declares traits the pre-4.1 way; traitlets says so on import. Not ours.
+    warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
+    from bqplot import Axis, Figure, LinearScale, Lines, Scatter
+
+from ..metrics import DEMO_NAMES, demo_path, read_metric
+from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
+from ..schedule import Schedule, ScheduleError, complain
+from .controls import ParamControl
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .designer import ScheduleDesigner
+
+__all__ = ["ReplayPanel", "epoch_base", "step_line", "WHAT_IF_PATIENCE"]
+
+CURVE = "#0f766e"       # deep teal: the rate
+METRIC = "#9ca3af"      # grey: the metric, on its own axis
+ERROR_RED = "#b91c1c"
+AMBER = "#b45309"
+WHAT_IF_PATIENCE = tuple(range(1, 9))
+RULE_DEFAULTS = {name: getattr(PlateauRule(), name) for name in PlateauRule.params()}
+
+
+def step_line(rates: np.ndarray, next_rate: float) -> tuple[np.ndarray, np.ndarray]:
+    """x/y of a step line: the rate of epoch i spans [i, i + 1]; the next rate is a last, zero-width point.
+
+    >>> x, y = step_line(np.array([0.1, 0.01]), 0.01)
+    >>> x.tolist(), y.tolist()
+    ([0.0, 1.0, 1.0, 2.0, 2.0], [0.1, 0.1, 0.01, 0.01, 0.01])
+    """
+    n = len(rates)
+    x = np.repeat(np.arange(n + 1, dtype=float), 2)[1:]
+    y = np.append(np.repeat(np.asarray(rates, dtype=float), 2), next_rate)
+    return x, y
+
+
+def epoch_base(s: Schedule, unit: str, steps_per_epoch: int | None) -> Schedule:
+    """The design on the epoch clock, for ``replay_plateau(base=...)``.
+
+    A design in epochs is used as it is; a design in steps is read at the first
+    step of every epoch (``s.stretch(length // steps_per_epoch)``), which needs a
+    length that is a whole number of epochs.
+    """
+    if unit == "epoch":
+        return s
+    if not steps_per_epoch:
+        raise complain("replay", "steps_per_epoch", steps_per_epoch,
+                       "a whole number >= 1 to follow a design in steps", "the replay runs once per epoch")
+    n = s.length
+    if n is None or n % steps_per_epoch:
+        raise complain("replay", "design length", n, f"a whole number of epochs ({steps_per_epoch:,} steps each)",
+                       "to follow a design in steps its length must be known and fill whole epochs")
+    return s.stretch(n // steps_per_epoch)
+
+
+class ReplayPanel(W.VBox):
+    """History source, the rule's controls, the figure, the drops table, the what-if strip and a message line.
+
+    DOM hooks: ``sw-replay`` (the panel), ``sw-replay-path`` (the path box),
+    ``sw-replay-error`` (the message line), ``sw-replay-drops``, ``sw-replay-whatif``.
+
+    Examples
+    --------
+    >>> from schedwidget import ScheduleDesigner, flat   # doctest: +SKIP
+    >>> panel = ReplayPanel(ScheduleDesigner(flat(0.1), steps=90, unit="epoch"))  # doctest: +SKIP
+    >>> panel.replay.drop_epochs  # doctest: +SKIP
+    """
+
+    def __init__(self, designer: ScheduleDesigner) -> None:
+        self.d = designer
+        self.values: np.ndarray | None = None
+        self.source_name = ""
+        self.replay: PlateauReplay | None = None
+        self.what_if: dict[int, PlateauReplay] = {}
+        self.rule: dict[str, Any] = dict(RULE_DEFAULTS)
+        self._active = "demo"
+        g = self._guard
+        # ---------------------------------------------------------- source
+        demo_options = [("none", "")] + [(f"demo {k}: {what}", k) for k, (_f, what) in DEMO_NAMES.items()]
+        self.demo = W.Dropdown(options=demo_options, value="a", description="history",
+                               tooltip="invented demo histories of the plastic-flake classifier",
+                               style={"description_width": "5em"}, layout={"width": "34em"})
+        self.upload = W.FileUpload(accept=".csv,text/csv,text/plain", multiple=False, description="upload CSV",
+                                   tooltip="a CSV file with one row per evaluation")
+        self.path = W.Text(placeholder="path/to/metrics.csv", description="or path", continuous_update=False,
+                           style={"description_width": "5em"}, layout={"width": "30em"})
+        self.path.add_class("sw-replay-path")
+        self.column = W.Text(value="", placeholder="blank: the only value column", description="column",
+                             continuous_update=False, style={"description_width": "4em"}, layout={"width": "20em"})
+        self.demo.observe(g(lambda c: self._source("demo")), names="value")
+        self.upload.observe(g(lambda c: self._source("upload")), names="value")
+        self.path.observe(g(lambda c: self._source("path")), names="value")
+        self.column.observe(g(lambda c: self._source(self._active)), names="value")
+        # ------------------------------------------------------------ rule
+        self.controls = {name: ParamControl("replay_plateau", name, p, RULE_DEFAULTS[name], 100, self._set, guard=g)
+                         for name, p in PlateauRule.params().items()}
+        self.follow = W.Checkbox(value=False, indent=False, description="follow the design (its warmup, then "
+                                 "the rule multiplies it)", tooltip="use the designer's schedule as the base",
+                                 layout={"width": "26em"})
+        self.start = W.FloatText(value=self._default_start(), description="start rate",
+                                 tooltip="the rate the rule starts from", style={"description_width": "5em"},
+                                 layout={"width": "13em"})
+        self.follow.observe(g(self._follow_changed), names="value")
+        self.start.observe(g(lambda c: self.refresh()), names="value")
+        designer.observe(g(self._design_changed), names=["schedule", "unit", "steps_per_epoch"])
+        # ---------------------------------------------------------- figure
+        self.xs = LinearScale(min=0.0)
+        self.ys = LinearScale(min=0.0)
+        self.ms = LinearScale()
+        self.rate_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
+                               stroke_width=2, labels=["rate"])
+        self.metric_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ms},
+                                 colors=[METRIC], stroke_width=1.2, marker="circle", marker_size=10,
+                                 labels=["metric"])
+        self.drop_marks = Scatter(x=np.zeros(0), y=np.zeros(0), scales={"x": self.xs, "y": self.ys},
+                                  colors=[CURVE], marker="triangle-down", default_size=48, visible=False)
+        axes = [Axis(scale=self.xs, label="epoch (metric read at each epoch's end)", tick_format="d", num_ticks=8),
+                Axis(scale=self.ys, side="left", label="rate", tick_format=".2~g", color=CURVE),
+                Axis(scale=self.ms, side="right", label="metric", tick_format=".3~g",
+                     color=METRIC, grid_lines="none")]
+        self.figure = Figure(marks=[self.metric_line, self.rate_line, self.drop_marks], axes=axes,
+                             animation_duration=0, padding_y=0.05,
+                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 64},
+                             layout=W.Layout(width="100%", height="300px"))
+        self.figure.add_class("sw-replay-figure")
+        self.table = W.HTML("")
+        self.table.add_class("sw-replay-drops")
+        self.whatif = W.HTML("")
+        self.whatif.add_class("sw-replay-whatif")
+        self.message = W.HTML("", style={"text_color": ERROR_RED})
+        self.message.add_class("sw-replay-error")
+        self.status = W.HTML("")
+        self.status.add_class("sw-replay-status")
+        rule_rows = [W.HBox([self.controls[n].box for n in ("goal", "relative")]),
+                     *(self.controls[n].box for n in ("factor", "patience", "tolerance", "wait_after_drop", "floor")),
+                     W.HBox([self.start, self.follow])]
+        super().__init__([W.HBox([self.demo, self.upload]), W.HBox([self.path, self.column]), self.message,
+                          self.status,
+                          W.HBox([W.VBox(rule_rows, layout={"width": "44%"}),
+                                  W.VBox([self.figure], layout={"width": "56%"})]),
+                          self.table, self.whatif])
+        self.add_class("sw-replay")
+        g(self._source)("demo")
+
+    # ------------------------------------------------------------ plumbing
+    def _guard(self, fn: Callable) -> Callable:
+        """``fn`` with every exception turned into the message line (the last good picture stays)."""
+        def run(*args: Any, **kwargs: Any) -> Any:
+            try:
+                return fn(*args, **kwargs)
+            except ScheduleError as exc:
+                self._say(str(exc), ERROR_RED)
+            except Exception as exc:  # a bug: say so rather than raise into the notebook
+                self._say(f"{type(exc).__name__}: {exc} (a bug in schedwidget; the last replay is kept)", ERROR_RED)
+            return None
+        return run
+
+    def _say(self, text: str, colour: str = ERROR_RED) -> None:
+        value = html.escape(text)
+        if self.message.style.text_color != colour:
+            self.message.style.text_color = colour
+        if self.message.value != value:
+            self.message.value = value
+
+    def _default_start(self) -> float:
+        s = self.d.schedule
+        try:
+            rate = float(s(lead_in(s)))
+        except ScheduleError:
+            rate = 0.0
+        return rate if rate > 0 else 0.1
+
+    def _set(self, name: str, value: Any) -> None:
+        self.rule[name] = value
+        self.refresh()
+
+    def _follow_changed(self, change: dict) -> None:
+        self.start.disabled = bool(change["new"])
+        self.refresh()
+
+    def _design_changed(self, change: dict) -> None:
+        if self.follow.value:
+            self.refresh()
+
+    # --------------------------------------------------------------- input
+    def _source(self, kind: str) -> None:
+        """Read the history from ``kind`` ("demo", "upload" or "path") and replay it."""
+        column = self.column.value.strip() or None
+        if kind == "demo":
+            if not self.demo.value:
+                return
+            path = demo_path(self.demo.value)
+            values, name = read_metric(path, column), f"demo {self.demo.value} ({path.name})"
+        elif kind == "upload":
+            if not self.upload.value:
+                return
+            f = self.upload.value[0]
+            values, name = read_metric(bytes(f["content"]), column), str(f.get("name", "uploaded file"))
+        else:
+            text = self.path.value.strip()
+            if not text:
+                return
+            values, name = read_metric(text, column), text
+        self._active, self.values, self.source_name = kind, values, name
+        self.refresh()
+
+    def base(self) -> Schedule | None:
+        """The base schedule on the epoch clock when following the design, else None."""
+        if not self.follow.value:
+            return None
+        return epoch_base(self.d.schedule, self.d.unit, self.d.steps_per_epoch)
+
+    # -------------------------------------------------------------- output
+    def refresh(self) -> None:
+        """Replay with the current history and rule; redraw marks, table and what-if strip."""
+        if self.values is None:
+            return
+        base = self.base()
+        start = None if base is not None else self.start.value
+        r = replay_plateau(self.values, start, base=base, **self.rule)
+        what_if = {p: replay_plateau(self.values, start, base=base, **{**self.rule, "patience": p})
+                   for p in WHAT_IF_PATIENCE}
+        self.replay, self.what_if = r, what_if
+        self._draw(r)
+        table, strip = self._drops_html(r), self._what_if_html(what_if)
+        if self.table.value != table:
+            self.table.value = table
+        if self.whatif.value != strip:
+            self.whatif.value = strip
+        n = len(self.values)
+        words = html.escape(f"{self.source_name}: {n} evaluations, best {r.best:.6g} at epoch {r.best_at}, "
+                            f"{len(r.drops)} drops, final rate {r.next_rate:.3g}")
+        if self.status.value != words:
+            self.status.value = words
+        self._say("")
+
+    def rate_of(self, r: PlateauReplay, epoch: int) -> float:
+        """The combined rate used in ``epoch`` (``next_rate`` just past the history)."""
+        return float(r.rates[epoch]) if epoch < len(r.rates) else r.next_rate
+
+    def _draw(self, r: PlateauReplay) -> None:
+        x, y = step_line(r.rates, r.next_rate)
+        with self.rate_line.hold_sync():
+            self.rate_line.x, self.rate_line.y = x, y
+        values = np.asarray(self.values, dtype=float)
+        with self.metric_line.hold_sync():
+            self.metric_line.x = np.arange(1, len(values) + 1, dtype=float)
+            self.metric_line.y = values
+        dx = np.array([d.epoch for d in r.drops], dtype=float)
+        dy = np.array([self.rate_of(r, d.epoch) for d in r.drops], dtype=float)
+        with self.drop_marks.hold_sync():
+            self.drop_marks.x, self.drop_marks.y = dx, dy
+            self.drop_marks.visible = bool(dx.size)
+
+    def _drops_html(self, r: PlateauReplay) -> str:
+        if not r.drops:
+            return "<p><b>No drops</b>: the rule never ran out of patience on this history.</p>"
+        head = ("<tr><th>from epoch</th><th>rate before</th><th>rate after</th><th>best so far</th>"
+                "<th>best at epoch</th><th>evaluations without improvement</th></tr>")
+        rows = "".join(
+            f"<tr><td>{d.epoch}</td><td>{self.rate_of(r, d.epoch - 1):.4g}</td><td>{self.rate_of(r, d.epoch):.4g}</td>"
+            f"<td>{d.best:.6g}</td><td>{d.best_at}</td><td>{d.stale}</td></tr>" for d in r.drops)
+        return f"<p><b>Drops</b></p><table>{head}{rows}</table>"
+
+    def _what_if_html(self, what_if: dict[int, PlateauReplay]) -> str:
+        rows = []
+        for p, r in what_if.items():
+            epochs = list(r.drop_epochs)
+            shown = ", ".join(str(e) for e in epochs[:12]) + (f", ... (+{len(epochs) - 12})" if len(epochs) > 12 else "")
+            bold = p == self.rule["patience"]  # the row of the current rule
+            cells = "".join(f"<td><b>{c}</b></td>" if bold else f"<td>{c}</td>"
+                            for c in (p, shown or "none", len(epochs), f"{r.next_rate:.3g}"))
+            rows.append(f"<tr>{cells}</tr>")
+        head = "<tr><th>patience</th><th>drop epochs</th><th>drops</th><th>final rate</th></tr>"
+        return f"<p><b>What if</b>: the same history and rule at patience 1..8</p><table>{head}{''.join(rows)}</table>"
+
+    def what_if_text(self) -> str:
+        """The what-if strip as plain lines: ``patience 3: 24, 42, 46``."""
+        return "\n".join(f"patience {p}: " + (", ".join(str(e) for e in r.drop_epochs) or "none")
+                         for p, r in self.what_if.items())

@@ -1,0 +1,237 @@
+"""The rescale panel: the same design at a new batch size or process count, old and new overlaid, then apply.
+
+Rates follow a scaling rule (linear, or square root); with ``keep="samples"``
+a design in steps gets a rescaled clock so that its warmup and joins stay at
+the same number of samples seen (``schedwidget.budget.scale_for_batch``).  A
+design in epochs already counts samples, so only its rates change.  Nothing
+raises into the notebook: problems go to the message line.
+"""
+
+from __future__ import annotations
+
+import html
+import warnings
+from typing import TYPE_CHECKING, Any, Callable
+
+import ipywidgets as W
+import numpy as np
+
+with warnings.catch_warnings():
+    # bqplot 0.13 declares traits the pre-4.1 way; traitlets says so on import. Not ours.
+    warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
+    from bqplot import Axis, Figure, LinearScale, Lines
+
+from ..sample import trace
+from ..schedule import Schedule, ScheduleError, complain
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .designer import ScheduleDesigner
+
+__all__ = ["RescalePanel", "Rescaled", "rescale"]
+
+CURVE = "#0f766e"   # deep teal: the new design
+OLD = "#9ca3af"     # muted grey: the design as it is
+ERROR_RED = "#b91c1c"
+AMBER = "#b45309"
+
+
+class Rescaled:
+    """One rescaling: the new design, its budget and clock, and how each design's ticks map to samples/steps."""
+
+    def __init__(self, old: Schedule, new: Schedule, old_steps: int, new_steps: int, unit: str,
+                 old_batch: int, new_batch: int, old_spe: int | None, new_spe: int | None) -> None:
+        self.old, self.new = old, new
+        self.old_steps, self.new_steps = old_steps, new_steps
+        self.unit, self.old_batch, self.new_batch = unit, old_batch, new_batch
+        self.old_spe, self.new_spe = old_spe, new_spe
+
+    def x_factor(self, which: str, axis: str) -> float | None:
+        """x = tick * factor for the old or new design on a "samples" or "steps" axis (None: not known)."""
+        batch, spe = (self.old_batch, self.old_spe) if which == "old" else (self.new_batch, self.new_spe)
+        if self.unit == "step":
+            return float(batch) if axis == "samples" else 1.0
+        if not self.old_spe:
+            return None
+        if axis == "samples":
+            return float(self.old_spe * self.old_batch)  # an epoch is the same data at either batch size
+        return float(spe)
+
+
+def rescale(s: Schedule, steps: int, unit: str, steps_per_epoch: int | None, from_batch: int, batch: int,
+            processes: int, rule: str, keep: str) -> Rescaled:
+    """``s`` moved from global batch ``from_batch`` to ``batch * processes`` (see the module docstring).
+
+    >>> from schedwidget import cosine, warmup
+    >>> r = rescale(warmup(cosine(0.1, steps=97_750), 5_750), 103_500, "step", 1150, 128, 1024, 1, "linear", "samples")
+    >>> r.new_steps, r.new_spe, round(r.new(719), 6)
+    (12938, 144, 0.8)
+    """
+    from ..budget import Budget, scale_for_batch  # lazy: the budget arithmetic is its own module
+
+    for name, v in (("current batch", from_batch), ("new batch", batch), ("processes", processes)):
+        if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+            raise complain("rescale", name, v, "a whole number >= 1")
+    to_batch = batch * processes
+    if unit == "epoch":  # the epoch clock counts samples already: keep the ticks, scale the rates
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep="steps")
+        new_spe = None
+        if steps_per_epoch:
+            new_spe = Budget(samples=steps_per_epoch * from_batch, batch=batch, processes=processes, epochs=1,
+                             drop_last=False).steps_per_epoch
+        return Rescaled(s, new, steps, steps, unit, from_batch, to_batch, steps_per_epoch, new_spe)
+    if keep == "samples" and s.length is None:
+        raise complain("rescale", "design length", None, "a length to rescale the clock in samples",
+                       "an open-ended design keeps its ticks; choose keep 'steps'")
+    new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
+    if keep == "steps":
+        new_steps, new_spe = steps, steps_per_epoch
+    else:
+        new_steps = new.length if s.length == steps else max(1, round(steps * from_batch / to_batch))
+        new_spe = None
+        if steps_per_epoch:
+            # the last, partial global batch of an epoch still makes one update (a data loader's default)
+            new_spe = Budget(samples=steps_per_epoch * from_batch, batch=batch, processes=processes, epochs=1,
+                             drop_last=False).steps_per_epoch
+    return Rescaled(s, new, steps, new_steps, unit, from_batch, to_batch, steps_per_epoch, new_spe)
+
+
+class RescalePanel(W.VBox):
+    """Batch inputs, rule and keep toggles, old/new curves overlaid, a summary, an apply button.
+
+    DOM hooks: ``sw-rescale`` (the panel), ``sw-rescale-apply``, ``sw-rescale-error``, ``sw-rescale-summary``.
+    """
+
+    def __init__(self, designer: ScheduleDesigner) -> None:
+        self.d = designer
+        self.result: Rescaled | None = None
+        g = self._guard
+        now = designer.batch or 128
+        label = {"description_width": "7em"}
+        self.from_batch = W.IntText(value=now, description="batch now", style=label, layout={"width": "14em"},
+                                    tooltip="the global batch the design was made for (the designer's batch)")
+        self.batch = W.IntText(value=now * 8, description="new batch", style=label, layout={"width": "14em"},
+                               tooltip="samples per batch on each process")
+        self.processes = W.IntText(value=1, description="processes", style=label, layout={"width": "14em"},
+                                   tooltip="data-parallel processes: the global batch is batch x processes")
+        self.rule = W.ToggleButtons(options=["linear", "sqrt"], value="linear", description="rate rule",
+                                    tooltips=["rates x new/old batch (Goyal et al. 2017)",
+                                              "rates x sqrt(new/old batch) (Krizhevsky 2014; from memory)"],
+                                    style={"button_width": "5em", "description_width": "5em"})
+        self.keep = W.ToggleButtons(options=["samples", "steps"], value="samples", description="keep",
+                                    tooltips=["warmup and joins stay at the same samples seen",
+                                              "warmup and joins stay at the same optimizer step"],
+                                    style={"button_width": "5em", "description_width": "5em"})
+        self.x_axis = W.ToggleButtons(options=["samples", "steps"], value="samples", description="x axis",
+                                      style={"button_width": "5em", "description_width": "5em"})
+        self.apply_button = W.Button(description="Apply", icon="check",
+                                     tooltip="make the rescaled design the designer's design (and its batch)")
+        self.apply_button.add_class("sw-rescale-apply")
+        self.summary = W.HTML("")
+        self.summary.add_class("sw-rescale-summary")
+        self.message = W.HTML("", style={"text_color": ERROR_RED})
+        self.message.add_class("sw-rescale-error")
+        self.xs = LinearScale(min=0.0)
+        self.ys = LinearScale(min=0.0)
+        self.old_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[OLD],
+                              stroke_width=1.5, labels=["now"], display_legend=True)
+        self.new_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
+                              stroke_width=2, labels=["rescaled"], display_legend=True)
+        self.x_label = Axis(scale=self.xs, label="samples seen", tick_format=".3~s", num_ticks=6)
+        self.figure = Figure(marks=[self.old_line, self.new_line],
+                             axes=[self.x_label, Axis(scale=self.ys, side="left", label="rate", tick_format=".2~g")],
+                             animation_duration=0, padding_y=0.05, legend_location="top-right",
+                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 24},
+                             layout=W.Layout(width="100%", height="280px"))
+        self.figure.add_class("sw-rescale-figure")
+        for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
+            w.observe(g(lambda c: self.refresh()), names="value")
+        self.apply_button.on_click(g(lambda b: self.apply()))
+        designer.observe(g(self._design_changed), names=["schedule", "unit", "steps", "steps_per_epoch", "batch"])
+        super().__init__([W.HBox([W.VBox([self.from_batch, self.batch, self.processes]),
+                                  W.VBox([self.rule, self.keep, self.x_axis])]),
+                          self.figure, self.summary, W.HBox([self.apply_button]), self.message])
+        self.add_class("sw-rescale")
+        g(self.refresh)()
+
+    # ------------------------------------------------------------ plumbing
+    def _guard(self, fn: Callable) -> Callable:
+        def run(*args: Any, **kwargs: Any) -> Any:
+            try:
+                return fn(*args, **kwargs)
+            except ScheduleError as exc:
+                self._say(str(exc), ERROR_RED)
+            except Exception as exc:  # a bug: say so rather than raise into the notebook
+                self._say(f"{type(exc).__name__}: {exc} (a bug in schedwidget; the design is unchanged)", ERROR_RED)
+            return None
+        return run
+
+    def _say(self, text: str, colour: str = ERROR_RED) -> None:
+        if self.message.style.text_color != colour:
+            self.message.style.text_color = colour
+        value = html.escape(text)
+        if self.message.value != value:
+            self.message.value = value
+
+    def _design_changed(self, change: dict) -> None:
+        if change["name"] == "batch" and change["new"] and self.from_batch.value != change["new"]:
+            self.from_batch.value = change["new"]  # its observer refreshes
+            return
+        self.refresh()
+
+    # ---------------------------------------------------------------- work
+    def refresh(self) -> None:
+        """Rescale the designer's design with the current inputs and redraw both curves."""
+        d = self.d
+        r = rescale(d.schedule, d.steps, d.unit, d.steps_per_epoch, self.from_batch.value, self.batch.value,
+                    self.processes.value, self.rule.value, self.keep.value)
+        self.result = r
+        axis = self.x_axis.value
+        fo, fn = r.x_factor("old", axis), r.x_factor("new", axis)
+        note = ""
+        if fo is None:  # an epoch design without steps per epoch: draw in epochs
+            fo = fn = 1.0
+            note = "x axis in epochs: the designer has no steps per epoch"
+        label = {"samples": "samples seen", "steps": "optimizer step"}[axis] if not note else "epoch"
+        to, tn = trace(r.old, r.old_steps), trace(r.new, r.new_steps)
+        with self.old_line.hold_sync():
+            self.old_line.x, self.old_line.y = to.x * fo, to.y
+        with self.new_line.hold_sync():
+            self.new_line.x, self.new_line.y = tn.x * fn, tn.y
+        if self.x_label.label != label:
+            self.x_label.label = label
+        text = self._summary(r, to, tn)
+        if self.summary.value != text:
+            self.summary.value = text
+        if r.unit == "epoch":
+            note = (note + "; " if note else "") + "an epoch clock already counts samples: epochs stay, rates scale"
+        self._say(note, AMBER)
+
+    def _summary(self, r: Rescaled, to, tn) -> str:
+        peak_old, peak_new = float(np.max(to.y)), float(np.max(tn.y))
+        unit = r.unit
+        rows = [("global batch", f"{r.old_batch:,}", f"{r.new_batch:,}"),
+                ("peak rate", f"{peak_old:.4g}", f"{peak_new:.4g}"),
+                (f"budget ({unit}s)", f"{r.old_steps:,}", f"{r.new_steps:,}")]
+        if r.old_spe:
+            rows.append(("steps per epoch", f"{r.old_spe:,}", f"{r.new_spe:,}" if r.new_spe else "?"))
+        if to.joins.size and unit == "step":
+            j_old, j_new = float(to.joins[0]), float(tn.joins[0]) if tn.joins.size else float("nan")
+            rows.append(("first join, samples", f"{j_old * r.old_batch:,.0f}", f"{j_new * r.new_batch:,.0f}"))
+        body = "".join(f"<tr><td>{html.escape(a)}</td><td>{b}</td><td>{c}</td></tr>" for a, b, c in rows)
+        return f"<table><tr><th></th><th>now</th><th>rescaled</th></tr>{body}</table>"
+
+    def apply(self) -> None:
+        """Make the rescaled design the designer's design, with its batch, budget and steps per epoch."""
+        r = self.result
+        if r is None:
+            raise complain("rescale", "design", None, "a rescaled design to apply", "fix the message above first")
+        d = self.d
+        with d.hold_trait_notifications():
+            if getattr(d, "error", ""):
+                d.error = ""
+            d.batch = r.new_batch
+            if r.unit == "step" and r.new_spe:
+                d.steps_per_epoch = r.new_spe
+            d.steps = r.new_steps
+            d.schedule = r.new
+        self._say(f"applied: global batch {r.new_batch:,}, {r.new_steps:,} {r.unit}s", CURVE)

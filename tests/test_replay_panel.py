@@ -1,0 +1,292 @@
+"""Replay and rescale panels, headless: set controls through their traits, read marks, tables and messages."""
+
+from __future__ import annotations
+
+import datetime
+import html
+import math
+
+import numpy as np
+import pytest
+from traitlets import HasTraits, Instance, Int, Unicode
+
+from schedwidget import Schedule, cosine, flat, warmup
+from schedwidget.budget import scale_for_batch
+from schedwidget.metrics import demo_path, read_metric
+from schedwidget.plateau import replay_plateau
+from schedwidget.sample import trace
+from schedwidget.widget.replay import ReplayPanel, epoch_base, step_line
+from schedwidget.widget.rescale import RescalePanel
+
+
+class Stand(HasTraits):
+    """The designer's traits that the panels read and write."""
+
+    schedule = Instance(Schedule)
+    unit = Unicode("epoch")
+    steps = Int(90)
+    steps_per_epoch = Int(None, allow_none=True)
+    batch = Int(None, allow_none=True)
+    error = Unicode("")
+
+
+def epoch_design(s: Schedule | None = None) -> Stand:
+    return Stand(schedule=s or warmup(flat(0.1), 5), unit="epoch", steps=90)
+
+
+def step_design(spe: int = 1150, batch: int = 128, epochs: int = 90, warm: int = 5) -> Stand:
+    s = warmup(cosine(0.1, steps=(epochs - warm) * spe), warm * spe)
+    return Stand(schedule=s, unit="step", steps=s.length, steps_per_epoch=spe, batch=batch)
+
+
+def classes(w) -> list[str]:
+    return list(w._dom_classes)
+
+
+def said(panel) -> str:
+    """The panel's message line as plain text."""
+    return html.unescape(panel.message.value)
+
+
+class TestStepLine:
+    """step_line draws each epoch's rate over [i, i + 1]."""
+
+    def test_vertical_edges(self):
+        """A change of rate is a vertical edge at the epoch where it starts."""
+        x, y = step_line(np.array([0.1, 0.1, 0.01]), 0.001)
+        assert x.tolist() == [0, 1, 1, 2, 2, 3, 3]
+        assert y.tolist() == [0.1, 0.1, 0.1, 0.1, 0.01, 0.01, 0.001]
+
+
+class TestReplayPanel:
+    """ReplayPanel shows the replay of the loaded history under the rule set in its controls."""
+
+    def test_starts_on_demo_a(self):
+        """The first demo history is replayed with the default rule and drawn."""
+        p = ReplayPanel(epoch_design())
+        values = read_metric(demo_path("a"))
+        ref = replay_plateau(values, 0.1)
+        x, y = step_line(ref.rates, ref.next_rate)
+        assert np.array_equal(p.rate_line.x, x) and np.array_equal(p.rate_line.y, y)
+        assert np.array_equal(p.metric_line.y, values)
+        assert p.metric_line.x.tolist() == list(range(1, 91))  # each metric is read at the end of its epoch
+        assert p.drop_marks.x.tolist() == list(ref.drop_epochs)
+        assert p.message.value == ""
+        assert "90 evaluations" in p.status.value
+
+    def test_controls_change_the_rule(self):
+        """Patience, factor and goal set through the controls reach the replay, the markers and the table."""
+        p = ReplayPanel(epoch_design())
+        values = read_metric(demo_path("a"))
+        p.controls["patience"].text.value = 6
+        p.controls["factor"].text.value = 0.5
+        ref = replay_plateau(values, 0.1, patience=6, factor=0.5)
+        assert p.replay.drop_epochs == ref.drop_epochs
+        assert p.drop_marks.x.tolist() == list(ref.drop_epochs)
+        np.testing.assert_array_equal(p.drop_marks.y, [ref.rates[e] if e < 90 else ref.next_rate
+                                                       for e in ref.drop_epochs])
+        assert p.table.value.count("<tr>") == len(ref.drops) + 1
+        assert f"<td>{ref.drop_epochs[0]}</td>" in p.table.value
+
+    def test_what_if_strip(self):
+        """The what-if strip lists the drop epochs of patience 1..8, each an independent replay."""
+        p = ReplayPanel(epoch_design())
+        p.controls["wait_after_drop"].text.value = 2
+        values = read_metric(demo_path("a"))
+        lines = p.what_if_text().splitlines()
+        assert len(lines) == 8
+        for k, line in enumerate(lines, start=1):
+            epochs = replay_plateau(values, 0.1, patience=k, wait_after_drop=2).drop_epochs
+            assert line == f"patience {k}: " + (", ".join(map(str, epochs)) or "none")
+        assert "<td><b>3</b></td>" in p.whatif.value  # the current patience is the bold row
+
+    def test_path_and_column(self, tmp_path):
+        """A CSV path and a column name load that history."""
+        f = tmp_path / "run.csv"
+        f.write_text("epoch,loss,acc\n0,2.0,0.5\n1,1.9,0.5\n2,1.95,0.5\n3,1.97,0.5\n", encoding="utf-8")
+        p = ReplayPanel(epoch_design())
+        p.column.value = "acc"  # demo a has no column 'acc': a message, and the demo stays
+        assert "column must be one of 'epoch', 'val_acc', got 'acc'" in said(p)
+        p.path.value = str(f)
+        assert p.values.tolist() == [0.5, 0.5, 0.5, 0.5] and p.message.value == ""
+        p.controls["patience"].text.value = 1
+        assert p.replay.drop_epochs == (3,)
+        p.controls["goal"].text.value = "min"
+        p.column.value = "loss"
+        assert p.values.tolist() == [2.0, 1.9, 1.95, 1.97]
+        assert p.replay.drop_epochs == (4,)  # 1.95 and 1.97 do not beat 1.9: count 2 > 1 at evaluation 3
+
+    def test_upload(self):
+        """An uploaded CSV (FileUpload value) is read."""
+        p = ReplayPanel(epoch_design())
+        content = b"# invented\nepoch,val_acc\n0,0.3\n1,0.4\n2,0.4\n"
+        p.upload.value = ({"name": "up.csv", "type": "text/csv", "size": len(content),
+                           "content": memoryview(content), "last_modified": datetime.datetime(2024, 1, 1)},)
+        assert p.values.tolist() == [0.3, 0.4, 0.4]
+        assert p.source_name == "up.csv"
+
+    def test_errors_keep_the_last_picture(self, tmp_path):
+        """A bad file or a bad rule value shows a message and leaves the marks as they were."""
+        p = ReplayPanel(epoch_design())
+        x0, y0 = p.rate_line.x.copy(), p.rate_line.y.copy()
+        p.path.value = str(tmp_path / "missing.csv")
+        assert "read_metric: source must be an existing CSV file" in said(p)
+        p.controls["factor"].text.value = 1.5
+        assert "replay_plateau: factor must be a finite number in (0, 1), got 1.5" in said(p)
+        assert np.array_equal(p.rate_line.x, x0) and np.array_equal(p.rate_line.y, y0)
+        bad = tmp_path / "bad.csv"
+        bad.write_text("epoch,val_acc\n0,0.5\n1,oops\n", encoding="utf-8")
+        p.controls["factor"].text.value = 0.1
+        p.path.value = str(bad)
+        assert "'val_acc' at line 3 of " in said(p) and "got 'oops'" in said(p)
+
+    def test_follows_a_warmup(self):
+        """Following a warmup design: warmup rates first, then the plateau rule's."""
+        d = epoch_design(warmup(flat(0.1), 5))
+        p = ReplayPanel(d)
+        p.follow.value = True
+        assert p.start.disabled
+        values = read_metric(demo_path("a"))
+        ref = replay_plateau(values, None, base=d.schedule)
+        assert p.replay.rates[:5].tolist() == d.schedule(np.arange(5)).tolist()
+        assert np.array_equal(p.replay.rates, ref.rates)
+        d.schedule = warmup(flat(0.2), 10)  # the panel follows the design
+        assert p.replay.rates[:10].tolist() == d.schedule(np.arange(10)).tolist()
+        assert p.replay.rates[10] == 0.2
+
+    def test_follows_a_design_in_steps(self):
+        """A design in steps is read at the first step of each epoch."""
+        d = step_design()
+        p = ReplayPanel(d)
+        p.follow.value = True
+        assert p.replay.lead_in == 5
+        np.testing.assert_array_equal(p.replay.rates[:5], d.schedule(np.arange(5) * 1150))
+        d.steps_per_epoch = None
+        assert "replay: steps_per_epoch must be a whole number >= 1 to follow a design in steps" in said(p)
+
+    def test_epoch_base_needs_whole_epochs(self):
+        """A design in steps that does not fill whole epochs cannot be followed."""
+        with pytest.raises(Exception, match=r"design length must be a whole number of epochs"):
+            epoch_base(cosine(0.1, steps=1000), "step", 300)
+
+    def test_dom_hooks(self):
+        """The panel, its path box and its message line carry their classes."""
+        p = ReplayPanel(epoch_design())
+        assert "sw-replay" in classes(p)
+        assert "sw-replay-path" in classes(p.path)
+        assert "sw-replay-error" in classes(p.message)
+        assert p.rate_line.get_state()["colors"] == ["#0f766e"]
+
+
+class TestRescalePanel:
+    """RescalePanel overlays the design and its rescaled version and applies it to the designer."""
+
+    def goyal(self) -> Stand:
+        # invented round numbers near ImageNet's: 5,000 steps per epoch at batch 256, a 5-epoch warmup to 0.1,
+        # then a flat rate, so that the drawn peak is the scaled rate itself
+        s = warmup(flat(0.1, steps=85 * 5000), 5 * 5000)
+        return Stand(schedule=s, unit="step", steps=s.length, steps_per_epoch=5000, batch=256)
+
+    @pytest.mark.parametrize("batch, processes, peak", [(1024, 1, 0.4), (1024, 8, 3.2)])
+    def test_goyal_linear_rule(self, batch, processes, peak):
+        """0.1 at batch 256 gives 0.4 at 1,024 and 3.2 at 8,192; the warmup stays 5 epochs of samples."""
+        d = self.goyal()
+        p = RescalePanel(d)
+        p.batch.value, p.processes.value = batch, processes
+        new = p.result.new
+        # Goyal et al. 2017, section 2.1: linear scaling rule, 0.1 per 256 samples
+        assert float(np.max(p.new_line.y)) == pytest.approx(peak, rel=1e-12)
+        assert new(new.length - 1) == pytest.approx(peak, rel=1e-12)
+        assert f"<td>{peak:.4g}</td>" in p.summary.value
+        warm_samples = 5 * 5000 * 256  # Goyal et al. 2017, section 2.2: gradual warmup over 5 epochs
+        join = trace(new, p.result.new_steps).joins[0]
+        assert abs(join * batch * processes - warm_samples) < batch * processes  # within one new update
+
+    def test_curves_and_x_axis(self):
+        """Old and new curves are drawn in samples or in steps."""
+        d = self.goyal()
+        p = RescalePanel(d)
+        p.batch.value = 1024
+        old, new = trace(d.schedule, d.steps), trace(p.result.new, p.result.new_steps)
+        np.testing.assert_array_equal(p.old_line.x, old.x * 256)
+        np.testing.assert_array_equal(p.new_line.x, new.x * 1024)
+        p.x_axis.value = "steps"
+        np.testing.assert_array_equal(p.new_line.x, new.x)
+        assert p.x_label.label == "optimizer step"
+        assert p.result.new_steps == round(d.steps * 256 / 1024)
+
+    def test_sqrt_rule_and_keep_steps(self):
+        """The square-root rule doubles the rate for four times the batch; keep steps leaves the clock."""
+        d = self.goyal()
+        p = RescalePanel(d)
+        p.batch.value = 1024
+        p.rule.value = "sqrt"
+        p.keep.value = "steps"
+        assert p.result.new_steps == d.steps
+        assert float(np.max(p.new_line.y)) == pytest.approx(0.2, rel=1e-12)  # 0.1 * sqrt(4), from memory
+
+    def test_apply(self):
+        """Apply sets the designer's schedule, batch, budget and steps per epoch."""
+        d = step_design()
+        p = RescalePanel(d)
+        p.batch.value = 1024
+        p.apply_button.click()
+        assert d.schedule == scale_for_batch(warmup(cosine(0.1, steps=85 * 1150), 5 * 1150), 128, 1024)
+        assert (d.batch, d.steps) == (1024, d.schedule.length)
+        assert d.steps_per_epoch == math.ceil(1150 * 128 / 1024)  # the partial last batch still makes an update
+        assert p.from_batch.value == 1024
+        assert "applied: global batch 1,024" in said(p)
+
+    def test_bad_input_keeps_the_curves(self):
+        """A batch of 0 shows a message and leaves the curves."""
+        p = RescalePanel(step_design())
+        x0 = p.new_line.x.copy()
+        p.batch.value = 0
+        assert "rescale: new batch must be a whole number >= 1, got 0" in said(p)
+        np.testing.assert_array_equal(p.new_line.x, x0)
+
+    def test_epoch_design(self):
+        """A design in epochs keeps its epochs and scales its rates, with a note."""
+        d = epoch_design(warmup(cosine(0.1, steps=85), 5))
+        d.batch = 128
+        p = RescalePanel(d)
+        p.batch.value = 512
+        assert p.result.new_steps == 90
+        assert float(np.max(p.new_line.y)) == pytest.approx(0.4)
+        assert "an epoch clock already counts samples" in said(p)
+
+    def test_open_ended_design(self):
+        """An open-ended design in steps cannot keep samples, but can keep steps."""
+        d = Stand(schedule=warmup(flat(0.1), 100), unit="step", steps=1000, batch=128)
+        p = RescalePanel(d)
+        assert "rescale: design length must be a length to rescale the clock in samples" in said(p)
+        p.keep.value = "steps"
+        assert float(np.max(p.new_line.y)) == pytest.approx(0.1 * 8)
+
+    def test_dom_hook(self):
+        """The panel carries its class."""
+        assert "sw-rescale" in classes(RescalePanel(step_design()))
+
+
+def mounted(d, title: str):
+    """The panel of the designer's tab ``title`` (the designer starts a panel when its tab is first opened)."""
+    i = list(d.tabs.titles).index(title)
+    d.tabs.selected_index = i
+    return d.tabs.children[i].children[0]
+
+
+class TestMountedInDesigner:
+    """The designer mounts both panels in its tabs."""
+
+    def test_mounted(self):
+        """ScheduleDesigner() holds a working ReplayPanel and RescalePanel."""
+        from schedwidget.widget.designer import ScheduleDesigner
+
+        d = ScheduleDesigner()
+        replay, rescale = mounted(d, "Replay"), mounted(d, "Rescale")
+        assert isinstance(replay, ReplayPanel) and isinstance(rescale, RescalePanel)
+        assert replay.replay is not None and replay.message.value == ""
+        rescale.batch.value = 1024
+        rescale.apply_button.click()
+        assert d.batch == 1024 and d.error == ""
+        assert float(np.max(rescale.old_line.y)) == pytest.approx(0.8)
