@@ -1,0 +1,178 @@
+"""Command line over spec files: show, export, check, schema.
+
+    python -m schedwidget show SPEC.json
+    python -m schedwidget export SPEC.json --to python|torch [--name NAME] [--base-lr X] [-o FILE]
+    python -m schedwidget check SPEC.json [--steps N]
+    python -m schedwidget schema
+
+Bad input ends with exit code 1 and one line on stderr, never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import tempfile
+from pathlib import Path
+from typing import Sequence
+
+from .schedule import ScheduleError
+
+PROG = "python -m schedwidget"
+
+
+class _Usage(Exception):
+    """A command-line mistake; reported in one line like every other bad input."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str):  # type: ignore[override]
+        raise _Usage(f"{message} (see {self.prog} --help)")
+
+
+def _groups(text: str) -> list[float]:
+    try:
+        return [float(x) for x in text.split(",")]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--groups must be comma-separated numbers such as 1.0,0.1, got {text!r}")
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = _Parser(prog=PROG, description="Read, check and export schedwidget spec files (JSON). "
+                "Loading a spec validates it against the shipped JSON Schema and never runs code from it.",
+                epilog="Exit code 0 on success, 1 on bad input (with one line on stderr).")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+    show = sub.add_parser("show", help="facts, numbers and the boundary table of a design",
+                          description="Print the facts sentence, the numbers and the table of rates on both "
+                                      "sides of every stage join, in the spec's unit.")
+    show.add_argument("spec", metavar="SPEC.json")
+    ex = sub.add_parser("export", help="write the design as Python or as a torch snippet",
+                        description="Write the design as one stdlib-only Python function (--to python) or a "
+                                    "ready torch LambdaLR snippet (--to torch), to FILE or stdout.")
+    ex.add_argument("spec", metavar="SPEC.json")
+    ex.add_argument("--to", required=True, choices=("python", "torch"), help="what to write")
+    ex.add_argument("--name", default="lr_at", help="name of the generated function (default: lr_at)")
+    ex.add_argument("--base-lr", type=float, default=None, metavar="X",
+                    help="torch: the optimizer's lr for every param group (default: the design's peak)")
+    ex.add_argument("--groups", type=_groups, default=None, metavar="M,M,...",
+                    help="torch: one rate multiplier per param group, e.g. 1.0,0.1 (default: one rate for all)")
+    ex.add_argument("--steps", type=int, default=None, metavar="N",
+                    help="the budget in ticks of the spec's unit; a design of another length is an error")
+    ex.add_argument("-o", "--output", default=None, metavar="FILE",
+                    help="write here (atomically: a temporary file, then a rename) instead of stdout")
+    ck = sub.add_parser("check", help="validate a spec file (exit 0 'ok: ...' or 1 with the problem)",
+                        description="Validate a spec file; with --steps also check its length against a budget.")
+    ck.add_argument("spec", metavar="SPEC.json")
+    ck.add_argument("--steps", type=int, default=None, metavar="N", help="the budget in ticks of the spec's unit")
+    sub.add_parser("schema", help="print the JSON Schema of spec files",
+                   description="Print the JSON Schema (draft 2020-12) that spec files are validated against.")
+    return p
+
+
+def _peak(s) -> float:
+    from .facts import facts
+
+    return facts(s, steps=s.length or 10_000).peak
+
+
+def _show(d, path: str) -> str:
+    from .facts import facts
+
+    s, unit, spe = d.schedule, d.unit, d.steps_per_epoch
+    f = facts(s, steps=s.length or 10_000, unit=unit, steps_per_epoch=spe if unit == "step" else None)
+    head = f"{path}: {s.kind}, unit {unit}, " + (f"{s.length:,} {unit}s" if s.length else "open-ended (read over "
+                                                 f"{f.steps:,} {unit}s)")
+    if spe and unit == "step":
+        head += f", {spe:,} steps per epoch"
+
+    def at(t):
+        return f"{unit} {t:,}" if t is not None else "never"
+    rows = [("peak", f"{f.peak:.6g} at {at(f.peak_at)}"), ("first", f"{f.first:.6g}"),
+            ("final", f"{f.final:.6g} at {at(f.steps - 1)}"), ("after the budget", f"{f.after:.6g}"),
+            ("minimum", f"{f.minimum:.6g} at {at(f.minimum_at)}"), ("mean", f"{f.mean:.6g}"),
+            ("area", f"{f.area:.6g} (sum of rates)"), ("jumps", f"{len(f.breaks):,}"),
+            ("under 10% of peak", at(f.under_10)), ("under 1% of peak", at(f.under_1))]
+    if f.half_life is not None:
+        rows.append(("half-life", f"{f.half_life:.4g} {unit}s"))
+    width = max(len(k) for k, _ in rows)
+    lines = [head, f.sentence, ""] + [f"{k.ljust(width)}  {v}" for k, v in rows]
+    lines += [f"caution: {c}" for c in f.cautions] + ["", f.table()]
+    return "\n".join(lines) + "\n"
+
+
+def _write(text: str, output: str | None) -> None:
+    if output is None:
+        sys.stdout.write(text)
+        return
+    target = Path(output)
+    if not target.parent.is_dir() or target.is_dir():
+        raise ScheduleError(f"export: -o must name a file in an existing folder, got {output!r}")
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def _run(args: argparse.Namespace) -> int:
+    from .spec import json_schema, load_design
+
+    if args.command == "schema":
+        sys.stdout.write(json.dumps(json_schema(), indent=2) + "\n")
+        return 0
+    d = load_design(args.spec)
+    s, unit, spe = d.schedule, d.unit, d.steps_per_epoch
+    spe = spe if unit == "step" else None
+    if args.command == "show":
+        sys.stdout.write(_show(d, args.spec))
+        return 0
+    if args.command == "check":
+        from .budget import check_length
+
+        if args.steps is not None:
+            check_length(s, args.steps, unit, owner="check")
+        size = f"{s.length:,} {unit}s" if s.length is not None else f"open-ended, unit {unit}"
+        print(f"ok: {args.spec}: {s.kind}, {size}" + (f", {spe:,} steps per epoch" if spe else ""))
+        return 0
+    from .export import to_python, to_torch
+
+    if args.to == "python":
+        if args.steps is not None:
+            from .budget import check_length
+
+            check_length(s, args.steps, unit, owner="export")
+        text = to_python(s, name=args.name, unit=unit, steps_per_epoch=spe)
+    else:
+        base = args.base_lr if args.base_lr is not None else _peak(s)
+        text = to_torch(s, base, unit=unit, groups=args.groups, steps=args.steps, name=args.name,
+                        steps_per_epoch=spe)
+    _write(text, args.output)
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit code (0 ok, 1 bad input)."""
+    try:
+        args = _parser().parse_args(argv)
+        return _run(args)
+    except SystemExit as exc:  # --help and --version print and exit 0
+        return exc.code if isinstance(exc.code, int) else 0
+    except (_Usage, ScheduleError, OSError) as exc:
+        text = " ".join(str(exc).split()) or type(exc).__name__
+        if isinstance(exc, OSError) and exc.filename is not None:
+            text = f"{exc.strerror or type(exc).__name__}: {exc.filename!r}"
+        print(f"schedwidget: error: {text}", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,200 @@
+"""Budget arithmetic shared by the export and the widget: optimizer updates from data, batch and epochs.
+
+The clock of a design counts optimizer updates (unit "step") or epochs.  With
+gradient accumulation or several processes, one update consumes
+``batch * processes * accumulation`` samples, so the number of updates per
+epoch is not the number of batches a process's data loader yields.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, fields
+from typing import Any
+
+from .schedule import Schedule, ScheduleError, as_whole, complain, param
+
+__all__ = ["Budget", "check_length", "scale_for_batch"]
+
+
+@dataclass(frozen=True)
+class Budget:
+    """A training budget: how many optimizer updates a run makes.
+
+    One optimizer update consumes one *global batch* of ``batch * processes *
+    accumulation`` samples.  Updates per epoch are
+    ``floor(samples / global_batch)`` with ``drop_last=True`` (the incomplete
+    last global batch is dropped) and ``ceil(samples / global_batch)`` with
+    ``drop_last=False`` (the last, partial global batch still makes one update).
+    This assumes the loop calls ``optimizer.step()`` once per global batch,
+    including the partial one when ``drop_last=False``.
+
+    Parameters
+    ----------
+    samples : training samples per epoch (all processes together).
+    batch : samples per micro-batch on one process.
+    epochs : epochs in the run.
+    processes : data-parallel processes (each takes its own micro-batches).
+    accumulation : micro-batches whose gradients are summed into one update.
+    drop_last : whether the incomplete last global batch is dropped.
+
+    Examples
+    --------
+    >>> b = Budget(samples=147_200, batch=128, epochs=90)   # the demo scenario
+    >>> b.steps_per_epoch, b.steps
+    (1150, 103500)
+    >>> Budget(samples=147_200, batch=1024, epochs=90, drop_last=False).steps_per_epoch
+    144
+    """
+
+    samples: int = param(kind="count", lo=1, doc="training samples per epoch")
+    batch: int = param(kind="count", lo=1, doc="samples per micro-batch on one process")
+    epochs: int = param(kind="count", lo=1, doc="epochs in the run")
+    processes: int = param(1, kind="count", lo=1, doc="data-parallel processes")
+    accumulation: int = param(1, kind="count", lo=1, doc="micro-batches per optimizer update")
+    drop_last: bool = param(True, kind="flag", doc="drop the incomplete last global batch")
+
+    def __post_init__(self) -> None:
+        for f in fields(self):
+            p = f.metadata["param"]
+            object.__setattr__(self, f.name, p.check("Budget", f.name, getattr(self, f.name)))
+        if self.steps_per_epoch < 1:
+            raise complain("Budget", "samples", self.samples, f">= the global batch {self.global_batch:,} "
+                           "when drop_last=True", "otherwise every batch is dropped and no update runs")
+
+    @property
+    def global_batch(self) -> int:
+        """Samples per optimizer update: ``batch * processes * accumulation``."""
+        return self.batch * self.processes * self.accumulation
+
+    @property
+    def steps_per_epoch(self) -> int:
+        """Optimizer updates per epoch (floor with drop_last, else ceil, of samples / global batch)."""
+        q, r = divmod(self.samples, self.global_batch)
+        return q + (1 if r and not self.drop_last else 0)
+
+    @property
+    def steps(self) -> int:
+        """Optimizer updates in the whole run."""
+        return self.epochs * self.steps_per_epoch
+
+    def length(self, unit: str = "step") -> int:
+        """The budget in ticks of ``unit``: updates for "step", epochs for "epoch"."""
+        if unit not in ("step", "epoch"):
+            raise complain("Budget.length", "unit", unit, "one of 'step', 'epoch'")
+        return self.steps if unit == "step" else self.epochs
+
+    def epochs_to_steps(self, epochs: float) -> int:
+        """Updates in ``epochs`` epochs, rounded to the nearest whole update (halves up).
+
+        >>> Budget(samples=147_200, batch=128, epochs=90).epochs_to_steps(5)
+        5750
+        """
+        if isinstance(epochs, bool) or not isinstance(epochs, (int, float)) or not math.isfinite(epochs) \
+                or epochs < 0:
+            raise complain("Budget.epochs_to_steps", "epochs", epochs, "a finite number >= 0")
+        return math.floor(epochs * self.steps_per_epoch + 0.5)
+
+    def steps_to_epochs(self, steps: int) -> float:
+        """Epochs (a float) covered by ``steps`` updates.
+
+        >>> Budget(samples=147_200, batch=128, epochs=90).steps_to_epochs(5750)
+        5.0
+        """
+        n = as_whole(steps)
+        if n is None or n < 0:
+            raise complain("Budget.steps_to_epochs", "steps", steps, "a whole number >= 0")
+        return n / self.steps_per_epoch
+
+    def describe(self, unit: str = "step") -> str:
+        """The budget in words, e.g. ``90 epochs x 1,150 steps = 103,500 steps``."""
+        if unit == "epoch":
+            return f"{self.epochs:,} epochs"
+        return (f"{self.epochs:,} epochs x {self.steps_per_epoch:,} steps = {self.steps:,} steps "
+                f"(global batch {self.global_batch:,})")
+
+
+def check_length(s: Schedule, steps: int | Budget, unit: str = "step", owner: str = "check_length") -> int:
+    """The budget in ticks, after checking that the design's length matches it.
+
+    ``steps`` is a number of ticks of ``unit`` or a ``Budget``.  An open-ended
+    design (length None) fits any budget.  A mismatch raises ScheduleError
+    naming both numbers: exporting it would silently cut the design short or
+    hold its last rate.
+
+    >>> from schedwidget import cosine
+    >>> check_length(cosine(0.1, steps=103_500), Budget(samples=147_200, batch=128, epochs=90))
+    103500
+    """
+    if not isinstance(s, Schedule):
+        raise complain(owner, "s", s, "a Schedule")
+    if unit not in ("step", "epoch"):
+        raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
+    if isinstance(steps, Budget):
+        n, where = steps.length(unit), f" ({steps.describe(unit)})"
+    else:
+        n, where = as_whole(steps), ""
+        if n is None or n < 1:
+            raise complain(owner, "steps", steps, "a whole number >= 1 or a Budget")
+    L = s.length
+    if L is None or L == n:
+        return n
+    if L > n:
+        effect = f"its last {L - n:,} {unit}s would never run"
+    else:
+        effect = f"its last rate {s(L):.3g} would be held for {n - L:,} more {unit}s"
+    hint = f"budget mismatch: {effect}; fit the design with s.stretch({n}) or fix the budget"
+    if max(L, n) >= 50 * min(L, n):
+        hint += f"; a ratio of {max(L, n) / min(L, n):,.0f} usually means steps and epochs are mixed up"
+    msg = f"{owner}: steps must equal the design's length of {L:,} {unit}s, got {n:,} {unit}s{where} ({hint})"
+    raise ScheduleError(msg)
+
+
+def _positive_whole(owner: str, name: str, value: Any) -> int:
+    n = as_whole(value)
+    if n is None or n < 1:
+        raise complain(owner, name, value, "a whole number >= 1")
+    return n
+
+
+def scale_for_batch(s: Schedule, from_batch: int, to_batch: int, rule: str = "linear", keep: str = "samples",
+                    steps: int | None = None) -> Schedule:
+    """The design moved from one global batch size to another.
+
+    Rates are multiplied by ``to_batch / from_batch`` (rule "linear": the linear
+    scaling rule, Goyal et al. 2017) or by its square root (rule "sqrt": from
+    memory, Krizhevsky 2014 and Hoffer et al. 2017).  With ``keep="samples"``
+    the clock is rescaled to ``round(length * from_batch / to_batch)`` ticks
+    (Python's round: halves go to the even tick), or to ``steps`` when given
+    (e.g. ``Budget(...).steps``), so a warmup and every join stay at the same
+    number of samples seen; with ``keep="steps"`` every tick stays where it was.
+
+    Examples
+    --------
+    >>> from schedwidget import cosine, warmup
+    >>> s = warmup(cosine(0.1, steps=97_750), steps=5_750)          # batch 128, 1,150 steps/epoch
+    >>> big = scale_for_batch(s, 128, 1024)
+    >>> big.length, round(big(719), 6)                                # peak at 5 epochs of 143.75 steps
+    (12938, 0.8)
+    """
+    owner = "scale_for_batch"
+    if not isinstance(s, Schedule):
+        raise complain(owner, "s", s, "a Schedule")
+    a = _positive_whole(owner, "from_batch", from_batch)
+    b = _positive_whole(owner, "to_batch", to_batch)
+    if rule not in ("linear", "sqrt"):
+        raise complain(owner, "rule", rule, "one of 'linear', 'sqrt'")
+    if keep not in ("samples", "steps"):
+        raise complain(owner, "keep", keep, "one of 'samples', 'steps'",
+                       "'samples' keeps joins at the same samples seen; 'steps' keeps them at the same tick")
+    factor = b / a if rule == "linear" else math.sqrt(b / a)
+    if keep == "steps":
+        if steps is not None:
+            raise complain(owner, "steps", steps, "None with keep='steps'", "keep='steps' never changes the length")
+        return s if factor == 1.0 else s * factor
+    if s.length is None:
+        raise complain(owner, "s", s, "a schedule with a length when keep='samples'",
+                       "an open-ended design has no budget to rescale; use keep='steps'")
+    n = max(1, round(s.length * a / b)) if steps is None else _positive_whole(owner, "steps", steps)
+    out = s.stretch(n)
+    return out if factor == 1.0 else out * factor

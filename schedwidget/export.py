@@ -1,0 +1,337 @@
+"""Exports that cannot drift: standalone Python source, a torch LambdaLR factor, and a ready torch snippet.
+
+Two routes into training code:
+
+* ``to_python`` / ``to_torch`` write source that needs only the standard
+  library (and torch for the snippet): paste it into training code that must
+  not depend on schedwidget.
+* ``torch_factor`` returns a picklable object for ``LambdaLR`` that needs
+  schedwidget at training time; its state is the design's spec, so
+  ``scheduler.state_dict()`` and every checkpoint carry the design itself.
+"""
+
+from __future__ import annotations
+
+import builtins
+import json
+import math
+from numbers import Real
+from typing import Any, Callable, Sequence
+
+from .budget import check_length
+from .codegen import TAKEN, UNITS, check_name, function_source
+from .schedule import Schedule, ScheduleError, complain
+
+__all__ = ["to_python", "torch_factor", "to_torch", "RateFactor"]
+
+#: Names the torch snippet defines itself besides the function.
+SNIPPET_NAMES = frozenset({"torch", "BASE_LR", "GROUP_MULTIPLIERS", "ExportedFactor", "make_scheduler"})
+#: Compiled functions, keyed by the canonical spec text a RateFactor holds (kept out of its __dict__).
+_COMPILED: dict[str, Callable[[int], float]] = {}
+
+
+def _schedule(owner: str, s: Any) -> Schedule:
+    if not isinstance(s, Schedule):
+        raise complain(owner, "s", s, "a Schedule (built with cosine(), warmup(), ...)")
+    return s
+
+
+def _unit(owner: str, unit: Any) -> str:
+    if unit not in UNITS:
+        raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
+    return unit
+
+
+def _spe(owner: str, spe: Any) -> int | None:
+    if spe is not None and (isinstance(spe, bool) or not isinstance(spe, int) or spe < 1):
+        raise complain(owner, "steps_per_epoch", spe, "a whole number >= 1 or None")
+    return spe
+
+
+def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_epoch: int | None = None) -> str:
+    """Source of one function ``name(t)`` equal to ``s(t)``, needing only the standard library.
+
+    The text starts with its imports (``math``, and ``bisect`` when a long
+    table is looked up), then one ``def`` whose docstring states the unit, the
+    budget, the peak and what happens past the end.  A negative or non-integer
+    ``t`` raises ValueError.
+
+    Parameters
+    ----------
+    s : the schedule.
+    name : the function's name: a plain ASCII identifier, not a keyword, dunder or builtin.
+    unit : "step" or "epoch", the unit of the clock (stated in the docstring).
+    steps_per_epoch : adds the budget in epochs to the docstring (unit "step").
+
+    Examples
+    --------
+    >>> from schedwidget import cosine, warmup
+    >>> namespace = {}
+    >>> exec(to_python(warmup(cosine(0.1, steps=97_750), steps=5_750)), namespace)
+    >>> namespace["lr_at"](5_750)
+    0.1
+    """
+    _schedule("to_python", s)
+    check_name("to_python", name)
+    body, modules = function_source(s, name, _unit("to_python", unit), _spe("to_python", steps_per_epoch))
+    return "".join(f"import {m}\n" for m in sorted(modules)) + "\n\n" + body
+
+
+# ------------------------------------------------------------------ factor objects
+def _design_text(s: Schedule) -> str:
+    from .spec import to_spec
+
+    return json.dumps(to_spec(s), sort_keys=True, separators=(",", ":"))
+
+
+def _compiled(design: str) -> Callable[[int], float]:
+    """The generated function for a spec text: rebuilt through the validating loader, never run from the text."""
+    fn = _COMPILED.get(design)
+    if fn is None:
+        from .spec import from_spec
+
+        try:
+            spec = json.loads(design)
+        except (TypeError, ValueError):
+            raise ScheduleError(f"RateFactor: design must be the JSON text of a spec, got {design!r:.80}") from None
+        text, modules = function_source(from_spec(spec), "rate_at", doc=False)
+        namespace: dict[str, Any] = {"__builtins__": builtins, **{m: __import__(m) for m in modules}}
+        exec(compile(text, "<schedwidget RateFactor>", "exec"), namespace)
+        fn = _COMPILED[design] = namespace["rate_at"]
+    return fn
+
+
+def _positive(owner: str, name: str, value: Any, zero: bool = False) -> float:
+    ok = isinstance(value, Real) and not isinstance(value, bool) and math.isfinite(value) \
+        and (value >= 0 if zero else value > 0)
+    if not ok:
+        raise complain(owner, name, value, f"a finite number {'>=' if zero else '>'} 0")
+    return float(value)
+
+
+class RateFactor:
+    """A picklable ``LambdaLR`` factor: ``s(t) * multiplier / base_lr``.
+
+    A plain class, not a lambda or closure, with all of its state in the
+    instance ``__dict__``: the design's spec as canonical JSON text, ``base_lr``
+    and ``multiplier``.  ``LambdaLR.state_dict()`` saves exactly that dict and
+    ``load_state_dict()`` restores it, so a checkpoint carries the design.  The
+    function it calls is generated once per design and cached outside the
+    instance; restoring a spec text rebuilds it through the validating spec
+    loader, so no code is ever read from a checkpoint.
+
+    Build it with ``torch_factor``.  Each group's ``lr`` in the optimizer must
+    be ``base_lr``; then the group's rate is ``s(t) * multiplier``.
+    """
+
+    def __init__(self, s: Schedule, base_lr: float, multiplier: float = 1.0) -> None:
+        self.design = _design_text(_schedule("RateFactor", s))
+        self.base_lr = _positive("RateFactor", "base_lr", base_lr)
+        self.multiplier = _positive("RateFactor", "multiplier", multiplier, zero=True)
+        _compiled(self.design)
+
+    def __call__(self, t: int) -> float:
+        try:  # the hot path: one dict lookup, no numpy
+            fn = _COMPILED[self.design]
+        except KeyError:
+            fn = _compiled(self.design)
+        return fn(t) * self.multiplier / self.base_lr
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, RateFactor):
+            return NotImplemented
+        return self.__dict__ == other.__dict__
+
+    __hash__ = None  # type: ignore[assignment]  # mutable: load_state_dict updates it in place
+
+    def __repr__(self) -> str:
+        return f"RateFactor(base_lr={self.base_lr!r}, multiplier={self.multiplier!r}, design={self.design[:60]}...)"
+
+
+def torch_factor(s: Schedule, base_lr: float, groups: Sequence[float] | None = None) -> RateFactor | list[RateFactor]:
+    """A picklable factor for ``torch.optim.lr_scheduler.LambdaLR``, or one per param group.
+
+    Build the optimizer with ``lr=base_lr`` for every group.  Without ``groups``
+    the result is one ``RateFactor`` (LambdaLR applies it to every group); with
+    ``groups=[1.0, 0.1, ...]`` it is a list with one factor per group, in the
+    order of ``optimizer.param_groups``, whose rates are ``s(t) * multiplier``.
+    Needs schedwidget at training time; for code without it use ``to_torch``.
+
+    Examples
+    --------
+    >>> from schedwidget import cosine, warmup
+    >>> s = warmup(cosine(0.1, steps=97_750), steps=5_750)
+    >>> body, head = torch_factor(s, base_lr=0.1, groups=[1.0, 0.5])
+    >>> body(5_750), head(5_750)
+    (1.0, 0.5)
+    """
+    _schedule("torch_factor", s)
+    _positive("torch_factor", "base_lr", base_lr)
+    if groups is None:
+        return RateFactor(s, base_lr)
+    return [RateFactor(s, base_lr, m) for m in _multipliers("torch_factor", groups)]
+
+
+def _multipliers(owner: str, groups: Any) -> tuple[float, ...]:
+    if isinstance(groups, (str, bytes)) or not hasattr(groups, "__iter__"):
+        raise complain(owner, "groups", groups, "a non-empty list of multipliers, one per param group")
+    out = tuple(_positive(owner, f"groups[{i}]", m, zero=True) for i, m in enumerate(groups))
+    if not out:
+        raise complain(owner, "groups", groups, "a non-empty list of multipliers, one per param group",
+                       "use None for one schedule shared by every group")
+    return out
+
+
+# ------------------------------------------------------------------ torch snippet
+_HEAD = """\
+# Learning-rate schedule exported by schedwidget: export it again rather than editing it.
+# Unit: $unit. Budget: $budget. Each param group's rate is $name(t) * its multiplier.
+# Needs only torch and the standard library at training time (not schedwidget).
+#
+# Use:
+#     optimizer = torch.optim.SGD(param_groups, lr=BASE_LR, momentum=0.9)  # every group at BASE_LR
+#     scheduler = make_scheduler(optimizer)
+#     for epoch in range(epochs):
+#         for inputs, targets in loader:
+#             loss = loss_fn(model(inputs), targets)
+#             loss.backward()
+#             optimizer.step()
+#             optimizer.zero_grad()
+$loop#
+# The clock t counts $counts.
+$clock#
+# Resume (both ways continue with exactly the rates of an uninterrupted run):
+# * State dicts: save model.state_dict(), optimizer.state_dict() and scheduler.state_dict().
+#   To resume, build model and optimizer as before, call scheduler = make_scheduler(optimizer)
+#   BEFORE optimizer.load_state_dict(...) (building a scheduler resets every group's lr), then
+#   scheduler.load_state_dict(...).
+# * By tick alone: scheduler = make_scheduler(optimizer, start_tick=k), k = $done.
+#   torch's LambdaLR(..., last_epoch=k - 1) needs "initial_lr" in every param group;
+#   make_scheduler sets it to BASE_LR where it is missing.
+$imports
+import torch
+
+BASE_LR = $base  # every param group's lr when the optimizer is built
+GROUP_MULTIPLIERS = $mults  # $groups_doc
+
+
+"""
+
+_TAIL = """
+
+class ExportedFactor:
+    \"\"\"LambdaLR factor for one param group: $name(t) * multiplier / BASE_LR.
+
+    A small class rather than a lambda: scheduler.state_dict() saves its __dict__
+    ({"multiplier": ...}), load_state_dict() restores it, and torch.save can pickle it.
+    \"\"\"
+
+    def __init__(self, multiplier):
+        self.multiplier = float(multiplier)
+
+    def __call__(self, t):
+        return $name(t) * self.multiplier / BASE_LR
+
+
+def make_scheduler(optimizer, start_tick=0):
+    \"\"\"A LambdaLR running $name; start_tick = $done (0 for a fresh run).\"\"\"
+    if type(start_tick) is not int or start_tick < 0:
+        raise ValueError(f"start_tick must be a whole number >= 0, got {start_tick!r}")
+    groups = optimizer.param_groups
+    multipliers = GROUP_MULTIPLIERS or (1.0,) * len(groups)
+    if len(groups) != len(multipliers):
+        raise ValueError(
+            f"this schedule was exported for {len(multipliers)} param group(s), the optimizer has "
+            f"{len(groups)}: export it again with one multiplier per group (in param_groups order)")
+    for i, group in enumerate(groups):
+        lr = group.get("initial_lr", group["lr"])
+        if lr != BASE_LR:
+            raise ValueError(
+                f"param_groups[{i}] starts at lr={lr!r}, not BASE_LR={BASE_LR!r}: build the optimizer "
+                "with lr=BASE_LR for every group (GROUP_MULTIPLIERS sets each group's share)")
+        if start_tick > 0:
+            group.setdefault("initial_lr", BASE_LR)
+    factors = [ExportedFactor(m) for m in multipliers]
+    return torch.optim.lr_scheduler.LambdaLR(optimizer, lr_lambda=factors, last_epoch=start_tick - 1)
+"""
+
+_LOOP = {
+    "step": "#             scheduler.step()  # once per optimizer update, right after optimizer.step()\n",
+    "epoch": "#         scheduler.step()  # once per epoch, after the epoch's last optimizer.step()\n",
+}
+_CLOCK = {
+    "step": """\
+# * Gradient accumulation over A micro-batches: t counts optimizer updates, not micro-batches;
+#   call scheduler.step() right after each optimizer.step(), once per update.
+# * Several processes (DistributedDataParallel): every process builds its own scheduler and steps
+#   it once per update, so all of them read the same t.
+# * Mixed precision: when GradScaler skips an update (inf/NaN gradients), scaler.step(optimizer)
+#   does not run optimizer.step(), but scheduler.step() still advances t. Keep calling it: t then
+#   counts attempted updates and the schedule ends with the loop (skips are rare and come early,
+#   while the scale settles; torch may warn once that scheduler.step() ran before optimizer.step()).
+#   To count only applied updates, read scaler.get_scale() before and after scaler.update() and
+#   call scheduler.step() only when it did not drop.
+""",
+    "epoch": """\
+# * Gradient accumulation, several processes (DistributedDataParallel) or updates that GradScaler
+#   skips change nothing: t counts epochs, so every process calls scheduler.step() once after
+#   each epoch, never inside the batch loop.
+""",
+}
+
+
+def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[float] | None = None,
+             steps: int | None = None, name: str = "lr_at", steps_per_epoch: int | None = None) -> str:
+    """A ready torch snippet: the generated function, a picklable factor class and ``make_scheduler``.
+
+    The snippet needs only torch and the standard library.  Its comments say
+    where ``scheduler.step()`` goes for the unit, what the clock counts (with
+    gradient accumulation, several processes or skipped mixed-precision
+    updates) and how to resume, by state dicts or by tick alone.  With
+    ``groups=[1.0, 0.1, ...]`` the group count is checked when the scheduler is
+    built; every group must start at ``lr=base_lr``.
+
+    Parameters
+    ----------
+    s : the schedule.
+    base_lr : the optimizer's lr for every param group (> 0).
+    unit : "step" (scheduler.step() after every update) or "epoch" (after every epoch).
+    groups : one rate multiplier per param group, or None for the same rate in every group.
+    steps : the budget the snippet is for, in ticks of ``unit``, or a ``Budget``; a design of
+        another length is a ScheduleError (budget mismatch).
+    name : the function's name (a plain identifier).
+    steps_per_epoch : adds the budget in epochs to the comments (unit "step").
+
+    Examples
+    --------
+    >>> from schedwidget import cosine, warmup
+    >>> text = to_torch(warmup(cosine(0.1, steps=97_750), steps=5_750), base_lr=0.1, steps=103_500)
+    >>> "LambdaLR(optimizer, lr_lambda=factors" in text
+    True
+    """
+    from string import Template
+
+    _schedule("to_torch", s)
+    check_name("to_torch", name, TAKEN | SNIPPET_NAMES)
+    _unit("to_torch", unit)
+    spe = _spe("to_torch", steps_per_epoch)
+    base = _positive("to_torch", "base_lr", base_lr)
+    mults = None if groups is None else _multipliers("to_torch", groups)
+    if steps is not None:
+        check_length(s, steps, unit, owner="to_torch")
+    body, modules = function_source(s, name, unit, spe)
+    n = s.length
+    budget = "open-ended" if n is None else f"{n:,} {unit}s"
+    if n is not None and spe and unit == "step":
+        budget += f" ({n / spe:g} epochs of {spe:,} steps)"
+    words = dict(
+        unit=unit, budget=budget, name=name, loop=_LOOP[unit], clock=_CLOCK[unit],
+        counts="optimizer updates: t = k is the (k+1)-th update" if unit == "step"
+        else "finished epochs: every update in epoch e uses the rate for t = e",
+        done="the optimizer updates already done" if unit == "step" else "the epochs already done",
+        imports="".join(f"import {m}\n" for m in sorted(modules)), base=repr(base),
+        mults="None" if mults is None else "(" + ", ".join(map(repr, mults)) + (",)" if len(mults) == 1 else ")"),
+        groups_doc="the same rate for every param group" if mults is None
+        else "one per param group, in optimizer.param_groups order",
+    )
+    return Template(_HEAD).substitute(words) + body + Template(_TAIL).substitute(words)

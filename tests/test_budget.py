@@ -1,0 +1,177 @@
+"""Budget arithmetic: optimizer updates from samples, batch, processes and accumulation; batch-size rescaling."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from schedwidget import ScheduleError, cosine, exp_decay, flat, warmup
+from schedwidget.budget import Budget, check_length, scale_for_batch
+
+# Invented demo scenario (DESIGN section 5): 90 epochs x 1,150 steps at batch 128, i.e. 147,200 samples per epoch.
+SAMPLES = 147_200
+DEMO = warmup(cosine(0.1, steps=85 * 1150), steps=5 * 1150)
+
+
+class TestBudget:
+    """Budget counts optimizer updates, with its rounding stated."""
+
+    def test_demo_scenario(self):
+        """147,200 samples at batch 128 make 1,150 updates per epoch, 103,500 in 90 epochs."""
+        b = Budget(samples=SAMPLES, batch=128, epochs=90)
+        assert (b.global_batch, b.steps_per_epoch, b.steps) == (128, 1150, 103_500)
+
+    def test_rounding_of_the_last_batch(self):
+        """At batch 1,024 (143.75 batches) drop_last floors to 143, otherwise the partial batch is one more update."""
+        assert Budget(samples=SAMPLES, batch=1024, epochs=90).steps_per_epoch == 143
+        assert Budget(samples=SAMPLES, batch=1024, epochs=90, drop_last=False).steps_per_epoch == 144
+        assert Budget(samples=SAMPLES, batch=128, epochs=90, drop_last=False).steps_per_epoch == 1150
+
+    def test_processes_and_accumulation_count_updates(self):
+        """Two processes of batch 32 accumulating two micro-batches make one update per 128 samples."""
+        b = Budget(samples=SAMPLES, batch=32, epochs=90, processes=2, accumulation=2)
+        assert (b.global_batch, b.steps_per_epoch) == (128, 1150)
+        assert Budget(samples=SAMPLES, batch=128, epochs=1, accumulation=4).steps_per_epoch == 287  # 1150 / 4
+
+    def test_epochs_and_steps(self):
+        """epochs_to_steps rounds to the nearest update; steps_to_epochs is exact division."""
+        b = Budget(samples=SAMPLES, batch=128, epochs=90)
+        assert b.epochs_to_steps(5) == 5750 and b.epochs_to_steps(0.5) == 575 and b.epochs_to_steps(0) == 0
+        assert Budget(samples=SAMPLES, batch=1024, epochs=90).epochs_to_steps(5) == 715   # 5 x 143
+        assert b.steps_to_epochs(5750) == 5.0 and b.steps_to_epochs(575) == 0.5
+        assert b.length("step") == 103_500 and b.length("epoch") == 90
+
+    def test_describe(self):
+        """The budget in words names epochs, updates per epoch and the global batch."""
+        b = Budget(samples=SAMPLES, batch=1024, epochs=90)
+        assert b.describe() == "90 epochs x 143 steps = 12,870 steps (global batch 1,024)"
+        assert b.describe("epoch") == "90 epochs"
+
+    @pytest.mark.parametrize("kwargs,message", [
+        (dict(samples=0, batch=128, epochs=90), r"Budget: samples must be a whole number >= 1, got 0"),
+        (dict(samples=SAMPLES, batch=1.5, epochs=90), r"Budget: batch must be a whole number >= 1, got 1.5"),
+        (dict(samples=SAMPLES, batch=128, epochs=True), r"Budget: epochs must be a whole number >= 1, got True"),
+        (dict(samples=SAMPLES, batch=128, epochs=90, processes=0), r"Budget: processes must be"),
+        (dict(samples=SAMPLES, batch=128, epochs=90, accumulation=-2), r"Budget: accumulation must be"),
+        (dict(samples=SAMPLES, batch=128, epochs=90, drop_last="yes"), r"Budget: drop_last must be True or False"),
+        (dict(samples=100, batch=128, epochs=90), r"Budget: samples must be >= the global batch 128 when "
+                                                  r"drop_last=True, got 100 \(otherwise every batch is dropped"),
+    ])
+    def test_bad_values(self, kwargs, message):
+        """Every bad field raises ScheduleError naming it, its value and the allowed range."""
+        with pytest.raises(ScheduleError, match=message):
+            Budget(**kwargs)
+
+    def test_partial_epoch_without_drop_last(self):
+        """Fewer samples than a global batch still make one update when the last batch is kept."""
+        assert Budget(samples=100, batch=128, epochs=3, drop_last=False).steps == 3
+
+    def test_bad_conversions(self):
+        """Conversions refuse negative and non-finite amounts."""
+        b = Budget(samples=SAMPLES, batch=128, epochs=90)
+        with pytest.raises(ScheduleError, match=r"Budget.epochs_to_steps: epochs must be a finite number >= 0"):
+            b.epochs_to_steps(float("inf"))
+        with pytest.raises(ScheduleError, match=r"Budget.steps_to_epochs: steps must be a whole number >= 0"):
+            b.steps_to_epochs(-1)
+        with pytest.raises(ScheduleError, match=r"Budget.length: unit must be one of 'step', 'epoch'"):
+            b.length("batch")
+
+
+class TestCheckLength:
+    """check_length refuses a design whose length does not match the budget."""
+
+    def test_match(self):
+        """A matching design passes and returns the budget."""
+        assert check_length(DEMO, Budget(samples=SAMPLES, batch=128, epochs=90)) == 103_500
+        assert check_length(DEMO, 103_500) == 103_500
+        assert check_length(exp_decay(0.1, 0.9), 77) == 77          # open-ended fits any budget
+
+    def test_too_long(self):
+        """A design longer than the budget names both numbers and what would never run."""
+        with pytest.raises(ScheduleError, match=r"check_length: steps must equal the design's length of 103,500 steps, "
+                                                r"got 12,870 steps \(90 epochs x 143 steps = 12,870 steps .*\) "
+                                                r"\(budget mismatch: its last 90,630 steps would never run; "
+                                                r"fit the design with s.stretch\(12870\)"):
+            check_length(DEMO, Budget(samples=SAMPLES, batch=1024, epochs=90))
+
+    def test_too_short(self):
+        """A design shorter than the budget says which rate would be held."""
+        with pytest.raises(ScheduleError, match=r"its last rate 0.05 would be held for 10 more epochs"):
+            check_length(flat(0.05, steps=80), 90, unit="epoch")
+
+    def test_steps_and_epochs_mixed_up(self):
+        """A step design checked against an epoch count hints at the mix-up."""
+        with pytest.raises(ScheduleError, match=r"a ratio of 1,150 usually means steps and epochs are mixed up"):
+            check_length(DEMO, Budget(samples=SAMPLES, batch=128, epochs=90), unit="epoch")
+
+    def test_bad_arguments(self):
+        """The budget is a whole number >= 1 or a Budget; unit is step or epoch."""
+        with pytest.raises(ScheduleError, match=r"check_length: steps must be a whole number >= 1 or a Budget, got 0"):
+            check_length(DEMO, 0)
+        with pytest.raises(ScheduleError, match=r"check_length: unit must be one of"):
+            check_length(DEMO, 5, unit="batches")
+        with pytest.raises(ScheduleError, match=r"check_length: s must be a Schedule"):
+            check_length("design", 5)
+
+
+class TestScaleForBatch:
+    """scale_for_batch moves a design to another batch size by a published rule."""
+
+    def test_linear_rule(self):
+        """Linear scaling rule: 0.1 at batch 256 is 0.4 at 1,024 and 3.2 at 8,192."""
+        # Goyal et al. 2017, section 2.1 (linear scaling rule) with their reference 0.1 x kn / 256 (from memory)
+        s = flat(0.1, steps=1000)
+        assert scale_for_batch(s, 256, 1024, keep="steps")(0) == pytest.approx(0.4, rel=1e-15)
+        assert scale_for_batch(s, 256, 8192, keep="steps")(0) == pytest.approx(3.2, rel=1e-15)
+
+    def test_sqrt_rule(self):
+        """Square-root rule (from memory: Krizhevsky 2014; Hoffer et al. 2017): 4x the batch, 2x the rate."""
+        assert scale_for_batch(flat(0.1, steps=10), 256, 1024, rule="sqrt")(0) == pytest.approx(0.2, rel=1e-15)
+
+    def test_warmup_stays_five_epochs(self):
+        """A 5-epoch gradual warmup stays 5 epochs (in samples seen) after rescaling."""
+        # Goyal et al. 2017, section 2.2: gradual warmup over the first 5 epochs (from memory)
+        # ImageNet-1k has about 1.28M training images (Goyal et al. 2017 train on it); 1,280,000 keeps numbers whole.
+        small = Budget(samples=1_280_000, batch=256, epochs=90)
+        s = warmup(cosine(0.1, steps=85 * small.steps_per_epoch), steps=small.epochs_to_steps(5))
+        big = Budget(samples=1_280_000, batch=1024, epochs=90)
+        moved = scale_for_batch(s, 256, 1024)
+        assert moved.length == big.steps
+        end = big.epochs_to_steps(5)                                  # 6,250 updates at batch 1,024
+        assert moved(end) == pytest.approx(0.4, rel=1e-12) and moved(end - 1) < 0.4 * (1 - 1e-6)
+        huge = scale_for_batch(s, 256, 8192)                          # 156.25 updates per epoch
+        peak_at = int(np.argmax(huge(np.arange(huge.length))))
+        assert peak_at == 782 and abs(peak_at - 5 * 156.25) < 1      # first tick at or after epoch 5
+        assert huge(peak_at) == pytest.approx(3.2, rel=1e-6)
+
+    def test_keep_steps_keeps_ticks(self):
+        """keep='steps' scales rates only: joins stay at the same tick."""
+        moved = scale_for_batch(DEMO, 128, 1024, keep="steps")
+        assert moved.length == DEMO.length and moved(5750) == pytest.approx(0.8, rel=1e-15)
+
+    def test_explicit_new_budget(self):
+        """steps= gives the new length exactly, e.g. the new Budget's updates."""
+        big = Budget(samples=SAMPLES, batch=1024, epochs=90)
+        moved = scale_for_batch(DEMO, 128, 1024, steps=big.steps)
+        assert check_length(moved, big) == 12_870
+        assert scale_for_batch(DEMO, 128, 1024).length == round(103_500 / 8)   # 12,937.5 -> 12,938 (to even)
+
+    @pytest.mark.parametrize("kwargs,message", [
+        (dict(rule="cube"), r"scale_for_batch: rule must be one of 'linear', 'sqrt', got 'cube'"),
+        (dict(keep="time"), r"scale_for_batch: keep must be one of 'samples', 'steps', got 'time'"),
+        (dict(from_batch=0), r"scale_for_batch: from_batch must be a whole number >= 1, got 0"),
+        (dict(to_batch=2.5), r"scale_for_batch: to_batch must be a whole number >= 1, got 2.5"),
+        (dict(keep="steps", steps=100), r"scale_for_batch: steps must be None with keep='steps'"),
+        (dict(steps=0), r"scale_for_batch: steps must be a whole number >= 1, got 0"),
+    ])
+    def test_bad_arguments(self, kwargs, message):
+        """Bad rules, keeps and batch sizes raise ScheduleError naming them."""
+        args = dict(s=DEMO, from_batch=128, to_batch=1024) | kwargs
+        with pytest.raises(ScheduleError, match=message):
+            scale_for_batch(**args)
+
+    def test_open_ended_needs_keep_steps(self):
+        """An open-ended design cannot rescale its clock."""
+        with pytest.raises(ScheduleError, match=r"an open-ended design has no budget to rescale; use keep='steps'"):
+            scale_for_batch(exp_decay(0.1, 0.9), 128, 1024)
+        assert scale_for_batch(exp_decay(0.1, 0.9), 128, 1024, keep="steps")(0) == pytest.approx(0.8)

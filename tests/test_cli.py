@@ -1,0 +1,169 @@
+"""The command line: show, export, check and schema over spec files; bad input is one line and exit code 1."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from importlib import resources
+
+import numpy as np
+import pytest
+
+from schedwidget import cosine, drops, load, save, warmup
+from schedwidget.__main__ import main
+from schedwidget.budget import Budget, scale_for_batch
+from schedwidget.spec import json_schema
+
+DEMO_DIR = resources.files("schedwidget").joinpath("demo")
+COSINE = str(DEMO_DIR.joinpath("flakes_warmup_cosine.json"))
+EPOCHS = str(DEMO_DIR.joinpath("flakes_drops_epochs.json"))
+BIG = str(DEMO_DIR.joinpath("flakes_batch1024.json"))
+# Invented demo scenario (DESIGN section 5): 90 epochs x 1,150 steps at batch 128, later batch 1,024.
+SPE = 1150
+DEMO = warmup(cosine(0.1, steps=85 * SPE), steps=5 * SPE)
+
+
+def one_line_error(capsys, argv) -> str:
+    """Run ``main(argv)``; it must fail with exit code 1 and exactly one line on stderr, no traceback."""
+    assert main(argv) == 1
+    out = capsys.readouterr()
+    assert out.err.endswith("\n") and out.err.count("\n") == 1, out.err
+    assert "Traceback" not in out.err and out.out == ""
+    return out.err
+
+
+class TestDemoFiles:
+    """The shipped demo specs are the scenario's designs."""
+
+    def test_demo_specs(self):
+        """Warmup + cosine at batch 128, drops per epoch, and the same design moved to batch 1,024."""
+        assert load(COSINE) == DEMO
+        assert load(EPOCHS) == drops(0.1, at=(30, 60, 80), steps=90)
+        big = Budget(samples=SPE * 128, batch=1024, epochs=90)
+        assert load(BIG) == scale_for_batch(DEMO, 128, 1024, steps=big.steps)
+        assert json.loads(DEMO_DIR.joinpath("flakes_batch1024.json").read_text())["steps_per_epoch"] == 143
+
+
+class TestShow:
+    """show prints the facts sentence, the numbers and the boundary table."""
+
+    def test_show_demo(self, capsys):
+        """The warmup + cosine demo: peak at the join, both sides of the join in the table."""
+        assert main(["show", COSINE]) == 0
+        out = capsys.readouterr().out
+        assert "peaks at 0.1 at step 5,750 (epoch 5.0)" in out
+        assert "peak               0.1 at step 5,750" in out
+        assert "where" in out and "start of stage 2         5,750   5.000         0.1" in out
+
+    def test_show_epochs(self, capsys):
+        """A design in epochs is read in epochs."""
+        assert main(["show", EPOCHS]) == 0
+        out = capsys.readouterr().out
+        assert "unit epoch, 90 epochs" in out and "jumps              3" in out
+
+
+class TestExport:
+    """export writes Python or a torch snippet, to stdout or atomically to a file."""
+
+    def test_python_to_stdout(self, capsys):
+        """The printed function equals the design."""
+        assert main(["export", COSINE, "--to", "python", "--name", "flake_rate"]) == 0
+        ns = {}
+        exec(capsys.readouterr().out, ns)
+        t = np.arange(0, 103_600, 97)
+        np.testing.assert_allclose([ns["flake_rate"](int(i)) for i in t], DEMO(t), rtol=1e-12, atol=1e-16)
+
+    def test_torch_to_file(self, tmp_path, capsys):
+        """The snippet lands in the file, nothing is left behind, and the base rate defaults to the peak."""
+        target = tmp_path / "schedule_snippet.py"
+        assert main(["export", BIG, "--to", "torch", "--groups", "1.0,0.1", "-o", str(target)]) == 0
+        assert capsys.readouterr().out == ""
+        text = target.read_text()
+        assert "BASE_LR = 0.8" in text and "GROUP_MULTIPLIERS = (1.0, 0.1)" in text
+        assert "Budget: 12,870 steps (90 epochs of 143 steps)" in text
+        assert [p.name for p in tmp_path.iterdir()] == ["schedule_snippet.py"]
+        assert main(["export", BIG, "--to", "torch", "--base-lr", "0.5", "-o", str(target)]) == 0
+        assert "BASE_LR = 0.5" in target.read_text()
+
+    def test_budget_mismatch(self, capsys):
+        """--steps of another length is one line naming both numbers."""
+        err = one_line_error(capsys, ["export", COSINE, "--to", "torch", "--steps", "12870"])
+        assert "length of 103,500 steps, got 12,870 steps" in err
+
+    @pytest.mark.parametrize("argv,words", [
+        (["export", COSINE, "--to", "python", "--name", "lr_at()"], "name must be a plain Python identifier"),
+        (["export", COSINE, "--to", "torch", "--base-lr", "-1"], "base_lr must be a finite number > 0"),
+        (["export", COSINE, "--to", "torch", "--groups", "1,x"], "--groups must be comma-separated numbers"),
+        (["export", COSINE, "--to", "java"], "invalid choice: 'java'"),
+        (["export", COSINE], "the following arguments are required: --to"),
+        (["export", COSINE, "--to", "python", "-o", "/nonexistent/dir/x.py"], "-o must name a file in an existing"),
+    ])
+    def test_bad_arguments(self, capsys, argv, words):
+        """Bad names, rates, groups and output paths are one line with exit code 1."""
+        assert words in one_line_error(capsys, argv)
+
+
+class TestCheckAndSchema:
+    """check validates a spec; schema prints the JSON Schema."""
+
+    def test_check_ok(self, capsys):
+        """A valid spec prints ok with its kind and length."""
+        assert main(["check", COSINE]) == 0
+        assert capsys.readouterr().out == f"ok: {COSINE}: warmup, 103,500 steps, 1,150 steps per epoch\n"
+        assert main(["check", BIG, "--steps", "12870"]) == 0
+
+    def test_check_budget(self, capsys):
+        """--steps of another length fails in one line."""
+        assert "steps must equal the design's length" in one_line_error(capsys, ["check", BIG, "--steps", "103500"])
+
+    def test_schema(self, capsys):
+        """schema prints the generated JSON Schema."""
+        assert main(["schema"]) == 0
+        assert json.loads(capsys.readouterr().out) == json_schema()
+
+    def test_help(self, capsys):
+        """--help lists the subcommands and exits 0."""
+        assert main(["--help"]) == 0
+        out = capsys.readouterr().out
+        assert all(word in out for word in ("show", "export", "check", "schema", "never runs code"))
+
+
+def _bad_files(tmp_path):
+    (tmp_path / "not.json").write_text("{ this is not json", "utf-8")
+    (tmp_path / "schema.json").write_text(json.dumps({"version": 1, "schedule": {"kind": "cosine", "peak": "high"}}))
+    (tmp_path / "newer.json").write_text(json.dumps({"version": 99, "schedule": {"kind": "flat", "lr": 0.1}}))
+    (tmp_path / "code.json").write_text(json.dumps({"version": 1, "schedule": {"kind": "__import__('os')"}}))
+    save(warmup(cosine(0.1, steps=10), steps=2), tmp_path / "good.json")
+    return {
+        "missing": (tmp_path / "missing.json", "path must name an existing file"),
+        "not json": (tmp_path / "not.json", "is not JSON (line 1, column 3"),
+        "wrong schema": (tmp_path / "schema.json", "schedule.peak: 'high' is not of type 'number'"),
+        "newer version": (tmp_path / "newer.json", "written by a newer schedwidget"),
+        "code as kind": (tmp_path / "code.json", "spec: "),
+        "a folder": (tmp_path, "cannot be read"),
+    }
+
+
+class TestBadFiles:
+    """Missing, non-JSON, wrong-schema and newer-version files: exit code 1 and one line, for every subcommand."""
+
+    @pytest.mark.parametrize("case", ["missing", "not json", "wrong schema", "newer version", "code as kind",
+                                      "a folder"])
+    @pytest.mark.parametrize("command", [["show"], ["check"], ["export", "--to", "python"]])
+    def test_bad_file(self, tmp_path, capsys, case, command):
+        """Each bad file gives exit code 1 and a one-line message naming the problem."""
+        path, words = _bad_files(tmp_path)[case]
+        err = one_line_error(capsys, command[:1] + [str(path)] + command[1:])
+        assert err.startswith("schedwidget: error: ") and words in err
+
+    def test_subprocess(self, tmp_path):
+        """As a real process: check passes on a demo spec, a bad file is one stderr line, no traceback."""
+        ok = subprocess.run([sys.executable, "-m", "schedwidget", "check", COSINE], capture_output=True, text=True,
+                            timeout=120)
+        assert ok.returncode == 0 and ok.stdout.startswith("ok: ") and ok.stderr == ""
+        path, _ = _bad_files(tmp_path)["newer version"]
+        bad = subprocess.run([sys.executable, "-m", "schedwidget", "show", str(path)], capture_output=True,
+                             text=True, timeout=120)
+        assert bad.returncode == 1 and bad.stdout == "" and bad.stderr.count("\n") == 1
+        assert "Traceback" not in bad.stderr and "newer schedwidget" in bad.stderr
