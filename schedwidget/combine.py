@@ -9,7 +9,7 @@ first integer tick at or after their scaled position.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
 import numpy as np
@@ -134,6 +134,7 @@ class Warmup(Schedule):
     start: float = param(0.0, kind="rate", lo=0.0, soft=(0.0, 1.0), doc="rate at tick 0")
     curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine"),
                        doc="shape of the warmup ramp")
+    _stages: Stages = field(init=False, repr=False, compare=False)  # derived once, for evaluation
 
     def __post_init__(self) -> None:
         _schedule("warmup", "target", self.target)
@@ -142,14 +143,17 @@ class Warmup(Schedule):
         if n is not None and self.steps > n:
             raise complain("warmup", "steps", self.steps, f"<= {n} (the length of the schedule it leads into)",
                            "a warmup longer than the run it warms up is usually a steps/epochs mix-up")
-        self.ramp()  # validates start/curve against the target's first rate
+        # building the ramp validates start/curve against the target's first rate
+        ramp = Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
+        object.__setattr__(self, "_stages", Stages(parts=(ramp, self.target)))
 
     def ramp(self) -> Schedule:
         """The warmup ramp itself."""
-        return Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
+        return self._stages.parts[0]
 
     def as_stages(self) -> Stages:
-        return Stages(parts=(self.ramp(), self.target))
+        """The same design as two plain stages: the ramp, then the target."""
+        return self._stages
 
     @property
     def length(self) -> int | None:
@@ -184,6 +188,7 @@ class Restarts(Schedule):
                           doc="each cycle is this many times longer than the one before")
     peak_decay: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=1.0, soft=(0.3, 1.0),
                               doc="each cycle is scaled by this factor relative to the one before")
+    _length: int | None = field(init=False, repr=False, compare=False)  # derived once; read on every call
 
     def __post_init__(self) -> None:
         _schedule("restarts", "target", self.target)
@@ -191,12 +196,12 @@ class Restarts(Schedule):
         if self.target.length is None:
             raise complain("restarts", "target", self.target, "a schedule with a length (steps=...)",
                            "an open-ended schedule never ends, so it cannot restart")
+        total = None if self.cycles is None else int(self._lengths(self.cycles).sum())
+        object.__setattr__(self, "_length", total)
 
     @property
     def length(self) -> int | None:
-        if self.cycles is None:
-            return None
-        return int(self._lengths(self.cycles).sum())
+        return self._length
 
     def children(self):
         return (self.target,)
