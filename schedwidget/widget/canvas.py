@@ -1,0 +1,251 @@
+"""The curve panel: one bqplot figure, built once, whose marks get new arrays on every change.
+
+Points come only from ``schedwidget.sample.trace`` (a bounded number whatever
+the budget; jumps as vertical edges at their exact tick; cycles shorter than a
+pixel as their min/max band), so drawing cost does not grow with the budget.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Sequence
+
+import warnings
+
+import ipywidgets as W
+import numpy as np
+
+with warnings.catch_warnings():
+    # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
+    warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
+    from bqplot import Axis, Figure, LinearScale, Lines, LogScale
+    from bqplot.interacts import IndexSelector
+
+from ..sample import Trace, trace
+from ..schedule import Schedule
+
+__all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR"]
+
+CURVE = "#0f766e"                                           # deep teal: the current design
+JOIN = "#64748b"                                            # slate: stage joins, dotted
+GHOSTS = ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")  # muted greys: pinned designs
+MAX_JOIN_LINES = 200                                        # more joins than this are not drawn one by one
+LOG_FLOOR = 1e-12                                           # on the log axis nothing is drawn below peak * this
+
+
+@dataclass(frozen=True)
+class Clock:
+    """How ticks of the design's clock map to the x axis."""
+
+    unit: str                     # "step" or "epoch": the design's clock
+    steps_per_epoch: int | None
+    axis: str                     # "steps" or "epochs": what the x axis shows
+
+    @property
+    def factor(self) -> float:
+        """x = tick * factor."""
+        if self.axis == "epochs" and self.unit == "step" and self.steps_per_epoch:
+            return 1.0 / self.steps_per_epoch
+        if self.axis == "steps" and self.unit == "epoch" and self.steps_per_epoch:
+            return float(self.steps_per_epoch)
+        return 1.0
+
+    @property
+    def label(self) -> str:
+        if self.factor == 1.0:
+            return "epoch" if self.unit == "epoch" else "step"
+        return "epoch" if self.axis == "epochs" else "step"
+
+
+class CurvePanel(W.VBox):
+    """The figure, its two toggles (rate axis, x axis) and the hover readout.
+
+    ``draw(s, steps, clock)`` puts a design on the figure; ``ghost(i, label, s, steps, clock)``
+    pins one.  Marks: ``curve`` (teal), ``ghosts`` (five greys), ``joins`` (dotted slate,
+    on a 0..1 scale so they always span the plot).
+    """
+
+    def __init__(self) -> None:
+        self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
+        self.ys_linear = LinearScale(min=0.0)
+        self.ys_log = LogScale()
+        self.unit_scale = LinearScale(min=0.0, max=1.0)
+        # unused ghosts sit on a scale of their own, so their placeholder data never reaches the rate axis
+        self.parking = LinearScale(min=0.0, max=1.0)
+        ys = {"x": self.xs, "y": self.ys_linear}
+        self.curve = Lines(x=np.zeros(1), y=np.zeros(1), scales=dict(ys), colors=[CURVE], stroke_width=2,
+                           labels=["current"], display_legend=False)
+        self.ghosts = [Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.parking}, colors=[g],
+                             stroke_width=1.5,
+                             labels=[""], visible=False, display_legend=False, opacities=[0.9])
+                       for g in GHOSTS]
+        self.joins = Lines(x=np.zeros((1, 2)), y=np.array([[0.0, 1.0]]),
+                           scales={"x": self.xs, "y": self.unit_scale}, colors=[JOIN], line_style="dotted",
+                           stroke_width=1, visible=False, labels=["stage joins"])
+        self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s")
+        self.y_axis = Axis(scale=self.ys_linear, side="left", label="rate", tick_format=".2~g")
+        self.hover = IndexSelector(scale=self.xs, marks=[self.curve], color="#94a3b8", line_width=1)
+        self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve], axes=[self.x_axis, self.y_axis],
+                             interaction=self.hover, animation_duration=0, padding_y=0.05,
+                             legend_location="top-right", legend_style={"stroke-width": 0},
+                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 96},
+                             layout=W.Layout(width="100%", height="320px"))
+        self.figure.add_class("sw-curve")
+        self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
+                                         tooltip="linear or logarithmic rate axis",
+                                         style={"button_width": "5em", "description_width": "5em"})
+        self.x_choice = W.ToggleButtons(options=["steps", "epochs"], value="steps", description="x axis",
+                                        tooltip="ticks of the x axis: optimizer steps or epochs",
+                                        style={"button_width": "6em", "description_width": "4em"})
+        self.hover_label = W.Label("move the mouse over the curve to read a step", layout={"min_height": "1.6em"})
+        self.hover_label.add_class("sw-hover")
+        self.current: Trace | None = None
+        self._tops: dict[object, float] = {}  # right end of each drawn curve, in x-axis units
+        self.clock = Clock("step", None, "steps")
+        self.peak = 1.0
+        self.log_bottom = 1e-6
+        super().__init__([self.figure, W.HBox([self.rate_axis, self.x_choice]), self.hover_label])
+
+    # ----------------------------------------------------------------- marks
+    def _y(self, y: np.ndarray) -> np.ndarray:
+        """Rates as drawn: unchanged on the linear axis; on the log axis a rate of 0 sits a decade
+        below the current curve's smallest positive rate (and nothing goes below peak * LOG_FLOOR)."""
+        if self.rate_axis.value == "log":
+            return np.maximum(np.where(y > 0, y, self.log_bottom), self.peak * LOG_FLOOR)
+        return y
+
+    def _set_log_bottom(self, y: np.ndarray) -> None:
+        positive = y[y > 0]
+        low = float(positive.min()) / 10.0 if positive.size else 1e-6
+        self.log_bottom = max(low, self.peak * LOG_FLOOR if self.peak > 0 else 0.0)
+
+    def _log_ticks(self) -> None:
+        """Powers of ten on the log axis (the axis picks its own ticks on the linear one)."""
+        if self.rate_axis.value != "log":
+            if self.y_axis.tick_values is not None:
+                self.y_axis.tick_values = None
+            return
+        shown = [np.asarray(m.y) for m in (self.curve, *self.ghosts) if m is self.curve or m.visible]
+        lo = min(float(np.min(v)) for v in shown if v.size)
+        hi = max(float(np.max(v)) for v in shown if v.size)
+        a, b = math.floor(math.log10(max(lo, 1e-300))), math.ceil(math.log10(max(hi, 1e-300)))
+        every = max(1, math.ceil((b - a + 1) / 8))
+        ticks = 10.0 ** np.arange(a, b + 1, every)
+        if self.y_axis.tick_values is None or not np.array_equal(self.y_axis.tick_values, ticks):
+            self.y_axis.tick_values = ticks
+
+    def draw(self, s: Schedule, steps: int, clock: Clock) -> Trace:
+        """Trace ``s`` over ``steps`` ticks and give the curve and join marks their new arrays."""
+        tr = trace(s, steps)
+        self.current, self.clock = tr, clock
+        self.peak = float(np.max(tr.y)) if tr.y.size else 1.0
+        self._set_log_bottom(tr.y)
+        f = clock.factor
+        with self.curve.hold_sync():
+            self.curve.x = tr.x * f
+            self.curve.y = self._y(tr.y)
+        self._tops["current"] = max(tr.steps - 1, 1) * f
+        self._fit_x()
+        self._log_ticks()
+        joins = tr.joins[:MAX_JOIN_LINES] * f
+        with self.joins.hold_sync():
+            if joins.size:
+                self.joins.x = np.stack([joins, joins], axis=1)
+                self.joins.y = np.tile([0.0, 1.0], (joins.size, 1))
+                if len(self.joins.colors) != joins.size:
+                    self.joins.colors = [JOIN] * int(joins.size)
+            self.joins.visible = bool(joins.size)
+        if self.x_axis.label != clock.label:
+            self.x_axis.label = clock.label
+        return tr
+
+    def ghost(self, i: int, label: str | None, s: Schedule | None = None, steps: int | None = None,
+              clock: Clock | None = None) -> None:
+        """Draw pin ``i`` (``label`` None hides it); its ticks are mapped with its own clock."""
+        m = self.ghosts[i]
+        if label is None or s is None:
+            self._tops.pop(i, None)
+            if m.visible:
+                with m.hold_sync():
+                    m.visible = m.display_legend = False
+                    m.scales = {"x": self.xs, "y": self.parking}
+            self._legend()
+            self._fit_x()
+            return
+        tr = trace(s, steps)
+        f = clock.factor if clock else 1.0
+        with m.hold_sync():
+            m.x = tr.x * f
+            m.y = self._y(tr.y)
+            m.labels = [label]
+            m.visible = m.display_legend = True
+            if m.scales.get("y") is not self.rate_scale:
+                m.scales = {"x": self.xs, "y": self.rate_scale}
+        self._legend()
+        self._tops[i] = max(tr.steps - 1, 1) * f
+        self._fit_x()
+        self._log_ticks()
+
+    def _legend(self) -> None:
+        """The legend names the pins (and then the current curve); with no pins there is none."""
+        pinned = any(g.visible for g in self.ghosts)
+        if self.curve.display_legend != pinned:
+            self.curve.display_legend = pinned
+
+    def _fit_x(self) -> None:
+        """The x axis spans tick 0 to the last tick of the longest curve shown (no padding, no negative ticks)."""
+        top = float(max(self._tops.values(), default=1.0))
+        if self.xs.max != top or self.xs.min != 0.0:
+            with self.xs.hold_sync():
+                self.xs.min, self.xs.max = 0.0, top
+
+    @property
+    def rate_scale(self):
+        """The rate scale in use (linear or log)."""
+        return self.ys_log if self.rate_axis.value == "log" else self.ys_linear
+
+    def use_log(self, log: bool) -> None:
+        """Swap the rate scale of every rate mark and of the axis (the figure itself stays)."""
+        scale = self.ys_log if log else self.ys_linear
+        for m in (self.curve, *[g for g in self.ghosts if g.visible]):
+            if m.scales.get("y") is not scale:
+                m.scales = {"x": self.xs, "y": scale}
+        if self.y_axis.scale is not scale:
+            with self.y_axis.hold_sync():
+                self.y_axis.scale = scale
+                self.y_axis.tick_format = ".0e" if log else ".2~g"
+
+    # ----------------------------------------------------------------- hover
+    def tick_at(self, x: float) -> int | None:
+        """The tick under the x-axis position ``x`` (None outside the budget)."""
+        if self.current is None or not math.isfinite(x):
+            return None
+        t = int(math.floor(x / self.clock.factor + 0.5))
+        return min(max(t, 0), self.current.steps - 1)
+
+    def read(self, s: Schedule, x: Sequence[float] | None) -> str:
+        """The hover line for the x position ``x``: step, epoch and the exact rate there."""
+        if x is None or len(x) == 0:
+            return ""
+        t = self.tick_at(float(x[0]))
+        if t is None:
+            return ""
+        c = self.clock
+        words = [f"{c.unit} {t:,}"]
+        if c.steps_per_epoch and c.unit == "step":
+            words.append(f"epoch {t / c.steps_per_epoch:,.3f}")
+        elif c.steps_per_epoch:
+            words.append(f"step {t * c.steps_per_epoch:,}")
+        words.append(f"rate {s(t):.6g}")
+        return " · ".join(words)
+
+
+def bounded_state_bytes(marks: Sequence[Any]) -> int:
+    """Bytes of array data the marks would send (x and y buffers), for the size check."""
+    total = 0
+    for m in marks:
+        for name in ("x", "y"):
+            v = getattr(m, name)
+            total += int(np.asarray(v).nbytes)
+    return total

@@ -1,0 +1,228 @@
+"""One control per declared parameter, generated from its ``Param`` declaration.
+
+kind "rate" -> a log slider plus a text box for the exact value; "ticks"/"count" ->
+an integer slider plus an integer box (and an "open-ended" box when None is
+allowed); "ratio" -> a slider (log when declared so) plus a text box; "choice" ->
+a dropdown; "flag" -> a checkbox; "ticklist" / "points" -> a text box.
+
+Sliders span the declared soft bounds (tick sliders: up to the budget) and
+clamp what they show; the text box takes any value, and the core's hard
+bounds decide whether it is valid.  Writing a value into a control from code
+never reports it back as an edit.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Callable
+
+import ipywidgets as W
+
+from ..schedule import Param, ScheduleError, as_whole, complain
+
+__all__ = ["ParamControl", "parse_ticklist", "parse_points", "format_points"]
+
+LABEL = {"description_width": "6.5em"}
+SLIDER_LAYOUT = {"width": "23em"}
+BOX_LAYOUT = {"width": "7.5em"}
+RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range starts at 0
+
+
+def parse_ticklist(owner: str, name: str, text: str) -> tuple[int, ...]:
+    """``"30, 60, 80"`` -> ``(30, 60, 80)``; the core then checks the order and bounds.
+
+    >>> parse_ticklist("drops", "at", "30, 60,80")
+    (30, 60, 80)
+    """
+    out = []
+    for i, part in enumerate(p.strip() for p in text.replace(";", ",").split(",")):
+        if not part:
+            continue
+        try:
+            v = float(part.replace("_", ""))
+        except ValueError:
+            raise complain(owner, f"{name}[{i}]", part, "a whole number of ticks",
+                           "write the ticks separated by commas, e.g. 30, 60, 80") from None
+        w = as_whole(v)
+        if w is None:
+            raise complain(owner, f"{name}[{i}]", part, "a whole number of ticks")
+        out.append(w)
+    return tuple(out)
+
+
+def parse_points(owner: str, name: str, text: str) -> tuple[tuple[int, float], ...]:
+    """``"0: 0.1, 500: 0.01"`` -> ``((0, 0.1), (500, 0.01))``; the core checks the rest.
+
+    >>> parse_points("knots", "points", "0: 0.1, 500: 0.01")
+    ((0, 0.1), (500, 0.01))
+    """
+    out = []
+    for i, part in enumerate(p.strip() for p in text.split(",")):
+        if not part:
+            continue
+        tick, sep, rate = part.partition(":")
+        try:
+            t, y = float(tick.replace("_", "")), float(rate)
+        except ValueError:
+            t = y = math.nan
+        if not sep or as_whole(t) is None or not math.isfinite(y):
+            raise complain(owner, f"{name}[{i}]", part, "a pair tick: rate",
+                           "write the knots as tick: rate, separated by commas, e.g. 0: 0.1, 500: 0.01")
+        out.append((as_whole(t), y))
+    return tuple(out)
+
+
+def format_points(points) -> str:
+    """The text a points box shows: ``"0: 0.1, 500: 0.01"``."""
+    return ", ".join(f"{t}: {y!r}" for t, y in points)
+
+
+def _log_range(p: Param) -> tuple[float, float]:
+    lo, hi = p.soft if p.soft else (1e-6, 1.0)
+    lo = lo if lo > 0 else RATE_FLOOR
+    return math.log10(lo), math.log10(hi)
+
+
+class ParamControl:
+    """The control row of one parameter; ``box`` is the widget to lay out.
+
+    ``on_commit(name, value)`` is called when the person changes the value;
+    ``show(value, budget)`` writes a value from the design without calling it;
+    ``guard`` wraps the change handler (the designer passes one that turns any
+    exception into its error message).
+
+    Examples
+    --------
+    >>> from schedwidget.shapes import Cosine
+    >>> c = ParamControl("cosine", "peak", Cosine.params()["peak"], 0.1, 1000, print)
+    >>> c.text.value
+    0.1
+    """
+
+    def __init__(self, owner: str, name: str, p: Param, value: Any, budget: int,
+                 on_commit: Callable[[str, Any], None],
+                 guard: Callable[[Callable], Callable] = lambda fn: fn) -> None:
+        self.owner, self.name, self.p, self.on_commit = owner, name, p, on_commit
+        self._quiet = 0
+        self.slider: W.Widget | None = None
+        self.text: W.Widget | None = None
+        self.none: W.Checkbox | None = None
+        tip = p.doc
+        k = p.kind
+        if k == "rate" or (k == "ratio" and p.log):
+            lo, hi = _log_range(p)
+            self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=name, tooltip=tip,
+                                           readout_format=".3g", style=LABEL, layout=SLIDER_LAYOUT)
+            if k == "rate":
+                self.slider.add_class("sw-rate")
+            self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
+        elif k == "ratio":
+            lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
+            self.slider = W.FloatSlider(min=lo, max=hi, step=(hi - lo) / 1000, description=name, tooltip=tip,
+                                        readout_format=".4g", style=LABEL, layout=SLIDER_LAYOUT)
+            self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
+        elif k in ("ticks", "count"):
+            self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=name,
+                                      tooltip=tip, style=LABEL, layout=SLIDER_LAYOUT)
+            self.text = W.IntText(tooltip=tip, layout=BOX_LAYOUT)
+            if p.optional:
+                self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
+                                       layout={"width": "7.5em"})
+                self.slider.layout.width = "17em"
+        elif k == "choice":
+            self.text = W.Dropdown(options=list(p.choices), description=name, tooltip=tip, style=LABEL)
+        elif k == "flag":
+            self.text = W.Checkbox(description=name, tooltip=tip, indent=False)
+        elif k in ("ticklist", "points"):
+            self.text = W.Text(description=name, tooltip=tip, continuous_update=False, style=LABEL,
+                               layout={"width": "23em"})
+        else:
+            raise complain("designer", f"{owner}.{name}", k, "a parameter kind with a control")
+        if self.text is not None and k not in ("choice", "flag"):
+            self.text.add_class("sw-value")
+        self.show(value, budget)
+        parts = [w for w in (self.slider, self.text, self.none) if w is not None]
+        for w in parts:
+            w.observe(guard(self._edited), names="value")
+        self.box = W.HBox(parts)
+
+    # ---------------------------------------------------------------- ranges
+    def _int_lo(self) -> int:
+        return int(self.p.soft[0]) if self.p.soft else int(self.p.lo or 0)
+
+    def _int_hi(self, budget: int, value: Any) -> int:
+        if self.p.kind == "ticks":
+            hi = max(int(budget), self._int_lo() + 1)
+        else:
+            hi = int(self.p.soft[1]) if self.p.soft else 100
+        if isinstance(value, int):
+            hi = max(hi, min(value, 10 ** 12)) if self.p.kind == "ticks" else hi
+        return hi
+
+    def _slider_bounds(self) -> tuple[float, float]:
+        s = self.slider
+        if isinstance(s, W.FloatLogSlider):
+            return s.base ** s.min, s.base ** s.max
+        return s.min, s.max
+
+    # ------------------------------------------------------------------ sync
+    def show(self, value: Any, budget: int | None = None) -> None:
+        """Write ``value`` (from the design) into the widgets; compares before writing, reports nothing."""
+        self._quiet += 1
+        try:
+            k = self.p.kind
+            if isinstance(self.slider, W.IntSlider) and budget is not None:
+                hi = self._int_hi(budget, value)
+                if self.slider.max != hi:
+                    self.slider.max = hi
+            if self.none is not None:
+                put(self.none, value is None)
+                for w in (self.slider, self.text):
+                    put(w, value is None, "disabled")
+                if value is None:  # park the slider where unticking "open-ended" should start from
+                    put(self.slider, self.slider.max if k == "ticks" else min(self.slider.min + 1, self.slider.max))
+                    return
+            if k == "ticklist":
+                put(self.text, ", ".join(str(t) for t in value))
+            elif k == "points":
+                put(self.text, format_points(value))
+            else:
+                put(self.text, value)
+            if self.slider is not None:
+                lo, hi = self._slider_bounds()
+                put(self.slider, min(max(value, lo), hi))
+        finally:
+            self._quiet -= 1
+
+    def _edited(self, change: dict) -> None:
+        if self._quiet:
+            return
+        w = change["owner"]
+        if w is self.none:
+            value = None if change["new"] else self.slider.value
+        elif self.p.kind == "ticklist":
+            value = parse_ticklist(self.owner, self.name, change["new"])
+        elif self.p.kind == "points":
+            value = parse_points(self.owner, self.name, change["new"])
+        else:
+            value = change["new"]
+        self.on_commit(self.name, value)
+
+    def widgets(self) -> list[W.Widget]:
+        """Every widget of this row."""
+        return [w for w in (self.slider, self.text, self.none) if w is not None]
+
+
+def put(widget: W.Widget, value: Any, trait: str = "value") -> None:
+    """Assign only when different (so no change event goes out for nothing)."""
+    if getattr(widget, trait) != value:
+        setattr(widget, trait, value)
+
+
+def check_error(exc: BaseException) -> str:
+    """The words shown for a failed edit: the core's message, or the exception's type and text."""
+    if isinstance(exc, ScheduleError):
+        return str(exc)
+    if isinstance(exc, OSError):
+        return f"{type(exc).__name__}: {exc}"
+    return f"{type(exc).__name__}: {exc} (this is a bug in schedwidget; the last valid design is kept)"

@@ -1,0 +1,220 @@
+"""The editable form of a design: an optional warmup, then a list of stages.
+
+The designer edits a design as
+
+* an optional **warmup** at the start (``warmup(rest, steps, start, curve)``: a ramp
+  up to the first stage's first rate), then
+* an ordered list of **stages**, each a leaf shape (``cosine``, ``drops``, ...) or
+  ``restarts(leaf, ...)`` of one.
+
+``read_form(s)`` turns a schedule into that form, or returns None when the design
+does not fit it (a product, a clip, a stretch, nested stages inside restarts, ...);
+such a design is still drawn and read out, and is edited in code.
+``Form.build()`` turns the form back into one schedule value.  This module is
+pure: no widgets.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from ..combine import Restarts, Stages, Warmup, restarts, stages, warmup
+from ..schedule import Param, Schedule, ScheduleError, complain
+from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle
+
+__all__ = ["LEAVES", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale"]
+
+#: Leaf shapes a stage can be, by kind (the "add stage" menu, in this order).
+LEAVES: dict[str, type[Schedule]] = {c.kind: c for c in (
+    Cosine, Ramp, Flat, ExpDecay, Drops, Poly, InvSqrt, Triangle, OneCycle, Knots)}
+
+
+@dataclass(frozen=True)
+class Warm:
+    """The warmup at the start of a design: its own parameters, without the target."""
+
+    steps: int
+    start: float = 0.0
+    curve: str = "linear"
+
+    kind = "warmup"
+
+    @staticmethod
+    def params() -> dict[str, Param]:
+        """Warmup's declared parameters except its target."""
+        return {k: p for k, p in Warmup.params().items() if p.kind != "schedule"}
+
+
+@dataclass(frozen=True)
+class Form:
+    """A design as the stages panel edits it: ``warm`` (or None), then ``stages`` in order."""
+
+    stages: tuple[Schedule, ...]
+    warm: Warm | None = None
+
+    def build(self) -> Schedule:
+        """The schedule this form describes (raises ScheduleError for an invalid combination).
+
+        >>> from schedwidget import cosine
+        >>> Form((cosine(0.1, steps=90),), Warm(10)).build()(10)
+        0.1
+        """
+        if not self.stages:
+            raise complain("designer", "stages", 0, "at least one stage", "add a shape with 'Add stage'")
+        body = stages(*self.stages)
+        if self.warm is None:
+            return body
+        w = self.warm
+        return warmup(body, steps=w.steps, start=w.start, curve=w.curve)
+
+    def signature(self) -> tuple:
+        """What the controls depend on: the kind of each stage and whether it repeats."""
+        rows = tuple((leaf_of(s).kind, isinstance(s, Restarts)) for s in self.stages)
+        return (self.warm is not None,) + rows
+
+
+def leaf_of(stage: Schedule) -> Schedule:
+    """The leaf shape of a stage (itself, or the shape a ``restarts`` repeats)."""
+    return stage.target if isinstance(stage, Restarts) else stage
+
+
+def _is_stage(s: Schedule) -> bool:
+    if isinstance(s, Restarts):
+        return type(s.target) in LEAVES.values()
+    return type(s) in LEAVES.values()
+
+
+def read_form(s: Schedule) -> Form | None:
+    """The editable form of ``s``, or None if it does not fit (it can still be drawn and edited in code).
+
+    >>> from schedwidget import cosine, warmup
+    >>> f = read_form(warmup(cosine(0.1, steps=90), 10))
+    >>> f.warm.steps, [st.kind for st in f.stages]
+    (10, ['cosine'])
+    """
+    warm = None
+    if isinstance(s, Warmup):
+        warm = Warm(steps=s.steps, start=s.start, curve=s.curve)
+        s = s.target
+    parts = s.parts if isinstance(s, Stages) else (s,)
+    if not all(_is_stage(p) for p in parts):
+        return None
+    return Form(tuple(parts), warm)
+
+
+def new_stage(kind: str, rate: float, length: int) -> Schedule:
+    """A new stage of shape ``kind`` starting near ``rate`` and lasting ``length`` ticks.
+
+    These are starting points to edit, not recommendations.
+
+    >>> new_stage("cosine", 0.1, 100)
+    cosine(peak=0.1, floor=0.0, steps=100)
+    """
+    r = rate if rate > 0 and math.isfinite(rate) else 0.1
+    n = max(int(length), 3)
+    made = {
+        "cosine": lambda: Cosine(peak=r, floor=0.0, steps=n),
+        "ramp": lambda: Ramp(start=r, end=r / 10, steps=n),
+        "flat": lambda: Flat(lr=r, steps=n),
+        "exp_decay": lambda: ExpDecay(peak=r, factor=0.95, every=max(1, n // 90), steps=n),
+        "drops": lambda: Drops(peak=r, at=(n // 2,), factor=0.1, steps=n),
+        "poly": lambda: Poly(peak=r, floor=0.0, steps=n, power=1.0),
+        "inv_sqrt": lambda: InvSqrt(peak=r, warmup=max(1, n // 10), steps=n),
+        "triangle": lambda: Triangle(low=r / 10, high=r, half_period=max(1, n // 8), steps=n),
+        "one_cycle": lambda: OneCycle(peak=r, steps=n, low=r / 10, final=r / 1000),
+        "knots": lambda: Knots(points=((0, r), (n, r / 10))),
+    }
+    if kind not in made:
+        raise complain("designer", "shape", kind, "one of " + ", ".join(repr(k) for k in LEAVES))
+    return made[kind]()
+
+
+# ------------------------------------------------------------------ proportions
+def _scaled_tick(v: int, r: float, lo: int) -> int:
+    return max(int(lo), int(math.floor(v * r + 0.5)))
+
+
+def _scale_node(s: Any, r: float) -> Any:
+    """``s`` with every tick-valued parameter multiplied by ``r`` (rounded to whole ticks)."""
+    params = Warm.params() if isinstance(s, Warm) else type(s).params()
+    changes: dict[str, Any] = {}
+    for name, p in params.items():
+        v = getattr(s, name)
+        if v is None:
+            continue
+        if p.kind == "ticks":
+            changes[name] = _scaled_tick(v, r, p.lo or 1)
+        elif p.kind == "ticklist":
+            changes[name] = tuple(_scaled_tick(t, r, p.lo or 0) for t in v)
+        elif p.kind == "points":
+            changes[name] = tuple((int(math.floor(t * r + 0.5)), y) for t, y in v)
+        elif p.kind == "schedule":
+            changes[name] = _scale_node(v, r)
+    return dataclasses.replace(s, **changes) if changes else s
+
+
+def scale_ticks(form: Form, r: float) -> Form:
+    """Every tick of every stage (and of the warmup) multiplied by ``r``, rounded to whole ticks.
+
+    Rates, factors and cycle counts are kept; raises ScheduleError if rounding
+    breaks the design (for example two drops landing on the same tick).
+
+    >>> from schedwidget import cosine
+    >>> scale_ticks(Form((cosine(0.1, steps=90),), Warm(10)), 2.0).build().length
+    200
+    """
+    if not (r > 0 and math.isfinite(r)):
+        raise complain("designer", "scale", r, "a finite number > 0")
+    warm = _scale_node(form.warm, r) if form.warm is not None else None
+    return Form(tuple(_scale_node(s, r) for s in form.stages), warm)
+
+
+def fit_total(form: Form, total: int) -> Form:
+    """``form`` scaled in proportion so that its length is exactly ``total`` ticks.
+
+    Ticks are scaled by ``total / length`` and rounded; the last stage with a
+    ``steps`` parameter absorbs the rounding difference.  An open-ended design
+    is scaled by the ratio of the budgets instead and keeps no exact total.
+
+    >>> from schedwidget import cosine
+    >>> fit_total(Form((cosine(0.1, steps=95),), Warm(5)), 1000).build().length
+    1000
+    """
+    length = form.build().length
+    if length is None:
+        raise ScheduleError("designer: an open-ended design has no total to fit; scale it with scale_ticks")
+    out = scale_ticks(form, total / length)
+    got = out.build().length
+    if got == total:
+        return out
+    stages_ = list(out.stages)
+    for i in range(len(stages_) - 1, -1, -1):
+        s = stages_[i]
+        if type(s) in LEAVES.values() and "steps" in type(s).params() and s.steps is not None:
+            stages_[i] = dataclasses.replace(s, steps=s.steps + (total - got))
+            return Form(tuple(stages_), out.warm)
+    return out
+
+
+def rescale(s: Schedule, budget: int, new_budget: int) -> Schedule:
+    """``s`` for a budget of ``new_budget`` ticks instead of ``budget``, in proportion.
+
+    An editable design has every stage's ticks scaled (exactly to ``new_budget`` when
+    its length was the budget, see ``fit_total``); any other design with a length is
+    ``stretch``-ed; an open-ended one that does not fit the form is returned as is.
+
+    >>> from schedwidget import cosine, warmup
+    >>> rescale(warmup(cosine(0.1, steps=85), steps=5), 90, 90 * 1150)
+    warmup(target=cosine(peak=0.1, floor=0.0, steps=97750), steps=5750, start=0.0, curve='linear')
+    """
+    form = read_form(s)
+    if form is not None:
+        if s.length == budget:
+            return fit_total(form, new_budget).build()
+        return scale_ticks(form, new_budget / budget).build()
+    if s.length is not None:
+        return s.stretch(max(1, round(s.length * new_budget / budget)))
+    return s

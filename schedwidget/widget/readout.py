@@ -1,0 +1,87 @@
+"""The readout panel: the facts of the current design in numbers, one plain sentence, cautions in amber.
+
+The numbers come from ``schedwidget.facts.facts``; this module only lays them out
+as HTML (escaped) for two HTML widgets: the readout and the cautions.
+"""
+
+from __future__ import annotations
+
+import html
+
+import ipywidgets as W
+
+from ..facts import Facts
+
+__all__ = ["ReadoutPanel", "AMBER", "facts_html", "cautions_html", "when"]
+
+AMBER = "#b45309"
+
+
+def when(t: int | None, f: Facts) -> str:
+    """A tick in words: ``step 5,750 (epoch 5.00)``; em dash for None."""
+    if t is None:
+        return "—"
+    words = f"{f.unit} {t:,}"
+    if f.steps_per_epoch and f.unit == "step":
+        words += f" (epoch {t / f.steps_per_epoch:,.2f})"
+    return words
+
+
+def _g(x: float) -> str:
+    return f"{x:.4g}"
+
+
+def facts_html(f: Facts) -> str:
+    """The readout as HTML: sentence, a table of numbers, the boundary table."""
+    e = html.escape
+    unit = f.unit
+    half = "—" if f.half_life is None else f"{f.half_life:,.4g} {unit}s"
+    rows = [
+        ("peak", f"{_g(f.peak)} at {when(f.peak_at, f)}"),
+        ("final", f"{_g(f.final)} at {when(f.steps - 1, f)}; {_g(f.after)} after the budget"),
+        ("minimum", f"{_g(f.minimum)} at {when(f.minimum_at, f)}"),
+        ("area", f"{f.area:,.6g} (sum of the rates; mean {_g(f.mean)})"),
+        ("half-life", half),
+        ("under 10 % of peak", f"from {when(f.under_10, f)}" if f.under_10 is not None else "never"),
+        ("under 1 % of peak", f"from {when(f.under_1, f)}" if f.under_1 is not None else "never"),
+        ("jumps", f"{len(f.breaks):,}" + (f" (first at {when(f.breaks[0], f)})" if f.breaks else "")),
+    ]
+    if not f.exact:
+        rows.append(("read from", "an even grid of ticks plus every jump and join (the budget is long)"))
+    cell = 'style="text-align:left;padding:0 10px 0 0;line-height:1.5"'
+    num = f"<table>{''.join(f'<tr><th {cell}>{e(k)}</th><td {cell}>{e(v)}</td></tr>' for k, v in rows)}</table>"
+    head = "".join(f"<th {cell}>{e(h)}</th>" for h in ("joins and ends", unit, "epoch" if f.steps_per_epoch else "",
+                                                       "rate"))
+    body = []
+    for label, t, r in f.boundary:
+        ep = f"{t / f.steps_per_epoch:,.3f}" if f.steps_per_epoch else ""
+        body.append("<tr>" + "".join(f"<td {cell}>{e(c)}</td>" for c in (label, f"{t:,}", ep, f"{r:.6g}")) + "</tr>")
+    boundary = f"<table><tr>{head}</tr>{''.join(body)}</table>"
+    return (f"<div style=\"margin:0 0 4px 0;line-height:1.4\">{e(f.sentence)}</div>"
+            f"<div style=\"display:flex;flex-wrap:wrap;gap:4px 24px;align-items:flex-start\">{num}{boundary}</div>")
+
+
+def cautions_html(f: Facts) -> str:
+    """The cautions as HTML lines (empty string when there are none)."""
+    return "".join(f"<div>&#9888; {html.escape(c)}</div>" for c in f.cautions)
+
+
+class ReadoutPanel(W.VBox):
+    """The readout HTML (class ``sw-readout``) and the amber cautions HTML (class ``sw-caution``)."""
+
+    def __init__(self) -> None:
+        self.text = W.HTML("")
+        self.text.add_class("sw-readout")
+        self.cautions = W.HTML("", style={"text_color": AMBER})
+        self.cautions.add_class("sw-caution")
+        self.facts: Facts | None = None
+        super().__init__([self.cautions, self.text])
+
+    def show(self, f: Facts) -> None:
+        """Show ``f`` (writes only what changed)."""
+        self.facts = f
+        text, warn = facts_html(f), cautions_html(f)
+        if self.text.value != text:
+            self.text.value = text
+        if self.cautions.value != warn:
+            self.cautions.value = warn

@@ -1,0 +1,294 @@
+"""The stages panel: the budget row, then the design as an ordered list of stages with generated controls.
+
+Every edit builds a new design value from the editable form (``form.py``) and
+hands it to the designer (``designer.propose``); the panel never keeps a copy
+of the design of its own, it re-reads ``designer.schedule`` in ``sync()``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import TYPE_CHECKING, Any
+
+import ipywidgets as W
+import numpy as np
+
+from ..combine import Restarts
+from ..schedule import ScheduleError, complain
+from .controls import LABEL, ParamControl, put
+from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .designer import ScheduleDesigner
+
+__all__ = ["StagesPanel"]
+
+BUTTON = {"width": "2.6em"}
+NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot be edited here; "
+                "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
+
+
+class StagesPanel(W.VBox):
+    """Budget row, 'add stage' row, one box per stage (class ``sw-stage``), and a note for other designs."""
+
+    def __init__(self, designer: ScheduleDesigner) -> None:
+        d = self.d = designer
+        g = d.guarded
+        self.unit = W.Dropdown(options=[("steps", "step"), ("epochs", "epoch")], description="clock",
+                               tooltip="the unit of the design's clock: optimizer steps or epochs; changing it "
+                                       "converts the design with steps per epoch when known", style=LABEL,
+                               layout={"width": "15em"})
+        self.spe = W.IntText(description="steps/epoch", tooltip="optimizer steps per epoch (0: unknown)",
+                             style=LABEL, layout={"width": "15em"})
+        self.total = W.IntText(description="total", tooltip="the budget in ticks of the clock; changing it "
+                                                          "scales every stage's ticks in proportion",
+                               style=LABEL, layout={"width": "15em"})
+        self.total.add_class("sw-total")
+        self.batch = W.IntText(description="batch", tooltip="batch size per update (0: unknown); used for cautions",
+                               style=LABEL, layout={"width": "15em"})
+        self.total_words = W.Label("")
+        self.shape = W.Dropdown(options=list(LEAVES) + ["warmup"], value="cosine", description="shape",
+                                tooltip="the shape of the stage to add at the end ('warmup' goes first)",
+                                style=LABEL, layout={"width": "15em"})
+        self.shape.add_class("sw-add-shape")
+        self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
+        self.add.add_class("sw-add-stage")
+        self.note = W.HTML("")
+        self.list = W.VBox([])
+        self.controls: list[list[ParamControl]] = []
+        self.signature: tuple | None = None
+        self._quiet = 0
+        self.unit.observe(g(self._unit_edited), names="value")
+        self.spe.observe(g(self._spe_edited), names="value")
+        self.total.observe(g(self._total_edited), names="value")
+        self.batch.observe(g(self._batch_edited), names="value")
+        self.add.on_click(g(self._add))
+        super().__init__([W.HBox([self.unit, self.spe]), W.HBox([self.total, self.batch]), self.total_words,
+                          W.HBox([self.shape, self.add]), self.note, self.list])
+
+    # ------------------------------------------------------------- reading
+    @property
+    def form(self) -> Form | None:
+        """The editable form of the designer's current design (None if it does not fit)."""
+        return read_form(self.d.schedule)
+
+    def sync(self) -> None:
+        """Make every control show the designer's current design; rebuild only when the structure changed."""
+        self._quiet += 1
+        try:
+            d = self.d
+            put(self.unit, d.unit)
+            put(self.spe, d.steps_per_epoch or 0)
+            put(self.total, d.steps)
+            put(self.batch, d.batch or 0)
+            words = f"{d.steps:,} {d.unit}s"
+            if d.steps_per_epoch and d.unit == "step":
+                words += f" = {d.steps / d.steps_per_epoch:,.4g} epochs of {d.steps_per_epoch:,} steps"
+            elif d.steps_per_epoch:
+                words += f" = {d.steps * d.steps_per_epoch:,} steps"
+            if d.schedule.length is None:
+                words += " (open-ended design: this is the budget read and drawn)"
+            elif d.schedule.length != d.steps:
+                words += f" (the design itself is {d.schedule.length:,} {d.unit}s long)"
+            put(self.total_words, words)
+            form = self.form
+            put(self.note, "" if form is not None else f"<i>{NOT_EDITABLE}</i>")
+            put(self.add, form is None, "disabled")
+            if form is None:
+                if self.list.children:
+                    self.list.children = ()
+                self.controls, self.signature = [], None
+                return
+            if form.signature() != self.signature:
+                self._rebuild(form)
+            else:
+                self._show(form)
+        finally:
+            self._quiet -= 1
+
+    def _items(self, form: Form) -> list[tuple[str, Any]]:
+        """(where, object) for every box: 'warm', then 'i' for stage i."""
+        out: list[tuple[str, Any]] = [("warm", form.warm)] if form.warm is not None else []
+        return out + [(str(i), s) for i, s in enumerate(form.stages)]
+
+    def _show(self, form: Form) -> None:
+        budget = self.d.steps
+        for (where, obj), (box, rows) in zip(self._items(form), zip(self.list.children, self.controls)):
+            header = box.children[0].children[0]
+            put(header, self._title(form, where))
+            for c in rows:
+                c.show(getattr(_owner(obj, c), c.name), budget)
+
+    # ------------------------------------------------------------ building
+    def _title(self, form: Form, where: str) -> str:
+        starts = np.concatenate([[0], np.cumsum([s.length or 0 for s in form.stages])])
+        w = form.warm.steps if form.warm is not None else 0
+        if where == "warm":
+            return f"warmup · {self.d.unit}s 0–{w:,}"
+        i = int(where)
+        s = form.stages[i]
+        kind = leaf_of(s).kind + (" (repeated)" if isinstance(s, Restarts) else "")
+        a = w + int(starts[i])
+        span = f"from {self.d.unit} {a:,}" if s.length is None else f"{self.d.unit}s {a:,}–{a + s.length:,}"
+        return f"{i + 1}. {kind} · {span}"
+
+    def _rebuild(self, form: Form) -> None:
+        boxes, self.controls = [], []
+        items = self._items(form)
+        first = 1 if form.warm is not None else 0
+        for pos, (where, obj) in enumerate(items):
+            rows: list[ParamControl] = []
+            title = W.Label(self._title(form, where), layout={"width": "22em"})
+            remove = W.Button(description="✕", tooltip="remove this stage", layout=BUTTON)
+            up = W.Button(description="↑", tooltip="move this stage up", layout=BUTTON,
+                          disabled=where == "warm" or pos == first)
+            down = W.Button(description="↓", tooltip="move this stage down", layout=BUTTON,
+                            disabled=where == "warm" or pos == len(items) - 1)
+            for b, name in ((remove, "sw-remove"), (up, "sw-up"), (down, "sw-down")):
+                b.add_class(name)
+            remove.on_click(self.d.guarded(lambda _b, w=where: self._remove(w)))
+            up.on_click(self.d.guarded(lambda _b, w=where: self._move(w, -1)))
+            down.on_click(self.d.guarded(lambda _b, w=where: self._move(w, +1)))
+            head = [title, up, down, remove]
+            if where != "warm":
+                rep = W.Checkbox(value=isinstance(obj, Restarts), description="repeat", indent=False,
+                                 tooltip="repeat this stage as warm restarts", layout={"width": "6em"})
+                rep.observe(self.d.guarded(lambda ch, w=where: self._repeat(w, ch["new"])), names="value")
+                head.insert(1, rep)
+            parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if isinstance(obj, Restarts) else ["leaf"])
+            for part in parts:
+                target = obj if part != "leaf" else leaf_of(obj)
+                params = Warm.params() if part == "warm" else type(target).params()
+                for name, p in params.items():
+                    if p.kind in ("schedule", "schedules"):
+                        continue
+                    rows.append(self._control(where, part, target, name, p))
+            box = W.VBox([W.HBox(head)] + [c.box for c in rows],
+                         layout={"border": "1px solid #e5e7eb", "padding": "2px 4px", "margin": "2px 0"})
+            box.add_class("sw-stage")
+            boxes.append(box)
+            self.controls.append(rows)
+        self.list.children = boxes
+        self.signature = form.signature()
+
+    def _control(self, where: str, part: str, target: Any, name: str, p) -> ParamControl:
+        owner = "warmup" if part == "warm" else target.kind
+        c = ParamControl(owner, name, p, getattr(target, name), self.d.steps,
+                         lambda n, v, w=where, pt=part: self._edit(w, pt, n, v), guard=self.d.guarded)
+        c.part = part  # type: ignore[attr-defined]
+        return c
+
+    def control(self, stage: int | str, name: str) -> ParamControl:
+        """The control of parameter ``name`` of stage ``stage`` (0 = first stage; "warmup" = the warmup).
+
+        For a repeated stage the repeat's own parameters (cycles, growth, peak_decay) are found too.
+        """
+        form = self.form
+        if form is None:
+            raise complain("designer", "stage", stage, "a stage of an editable design",
+                           "this design is edited in code")
+        index = -1 if stage == "warmup" else int(stage)
+        pos = 0 if stage == "warmup" else index + (form.warm is not None)
+        if (stage == "warmup" and form.warm is None) or (stage != "warmup" and index < 0) \
+                or not 0 <= pos < len(self.controls):
+            raise complain("designer", "stage", stage, f"0 .. {len(form.stages) - 1} or 'warmup' if there is one")
+        for c in self.controls[pos]:
+            if c.name == name:
+                return c
+        names = ", ".join(c.name for c in self.controls[pos])
+        raise complain("designer", "name", name, f"one of {names}")
+
+    # -------------------------------------------------------------- editing
+    def _propose(self, form: Form) -> None:
+        self.d.propose(form.build())
+
+    def _edit(self, where: str, part: str, name: str, value: Any) -> None:
+        if self._quiet:
+            return
+        form = self.form
+        if where == "warm":
+            self._propose(Form(form.stages, dataclasses.replace(form.warm, **{name: value})))
+            return
+        i = int(where)
+        stages_ = list(form.stages)
+        s = stages_[i]
+        if part == "repeat":
+            stages_[i] = dataclasses.replace(s, **{name: value})
+        elif isinstance(s, Restarts):
+            stages_[i] = dataclasses.replace(s, target=dataclasses.replace(s.target, **{name: value}))
+        else:
+            stages_[i] = dataclasses.replace(s, **{name: value})
+        self._propose(Form(tuple(stages_), form.warm))
+
+    def _repeat(self, where: str, on: bool) -> None:
+        if self._quiet:
+            return
+        form = self.form
+        i = int(where)
+        stages_ = list(form.stages)
+        s = stages_[i]
+        if on and not isinstance(s, Restarts):
+            stages_[i] = Restarts(target=s, cycles=2)
+        elif not on and isinstance(s, Restarts):
+            stages_[i] = s.target
+        self._propose(Form(tuple(stages_), form.warm))
+
+    def _remove(self, where: str) -> None:
+        form = self.form
+        if where == "warm":
+            self._propose(Form(form.stages, None))
+            return
+        stages_ = list(form.stages)
+        del stages_[int(where)]
+        self._propose(Form(tuple(stages_), form.warm))
+
+    def _move(self, where: str, by: int) -> None:
+        form = self.form
+        i = int(where)
+        j = i + by
+        stages_ = list(form.stages)
+        if where == "warm" or not 0 <= j < len(stages_):
+            return
+        stages_[i], stages_[j] = stages_[j], stages_[i]
+        self._propose(Form(tuple(stages_), form.warm))
+
+    def _add(self, _button: Any = None) -> None:
+        """Add a stage of the chosen shape at the end (a warmup goes first, once)."""
+        form = self.form
+        if form is None:
+            return
+        s = self.d.schedule
+        n = self.d.steps
+        kind = self.shape.value
+        if kind == "warmup":
+            if form.warm is not None:
+                raise ScheduleError("designer: a design has at most one warmup, got a second one "
+                                    "(edit the warmup at the top, or remove it first)")
+            self._propose(Form(form.stages, Warm(steps=max(1, n // 20))))
+            return
+        end = s(s.length) if s.length is not None else s(n)
+        peak = self.d.readout.facts.peak if self.d.readout.facts is not None else 0.1
+        rate = end if end > 0 else peak
+        self._propose(Form(form.stages + (new_stage(kind, rate, max(3, n // 10)),), form.warm))
+
+    # --------------------------------------------------------------- budget
+    def _unit_edited(self, change: dict) -> None:
+        if not self._quiet:
+            self.d.set_unit(change["new"])
+
+    def _spe_edited(self, change: dict) -> None:
+        if not self._quiet:
+            self.d.steps_per_epoch = change["new"] or None
+
+    def _total_edited(self, change: dict) -> None:
+        if not self._quiet:
+            self.d.set_total(change["new"])
+
+    def _batch_edited(self, change: dict) -> None:
+        if not self._quiet:
+            self.d.batch = change["new"] or None
+
+
+def _owner(obj: Any, c: ParamControl) -> Any:
+    """The object a control's parameter lives on: the stage, or the shape a repeated stage repeats."""
+    return leaf_of(obj) if getattr(c, "part", "leaf") == "leaf" else obj

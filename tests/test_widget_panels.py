@@ -1,0 +1,267 @@
+"""The designer's panels, headless: stages, compare, files and export, driven through their widgets."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from schedwidget import ScheduleDesigner, ScheduleError, cosine, drops, flat, load, save, warmup
+from schedwidget.facts import facts
+from schedwidget.widget.designer import demo_design
+
+
+def stage_boxes(d):
+    return [b for b in d.stages.list.children if "sw-stage" in b._dom_classes]
+
+
+class TestStagesPanel:
+    """Stages are added, removed and reordered through the panel's buttons."""
+
+    def test_add_remove_and_move(self):
+        """Add a flat stage, move it up, then remove it: the design follows each step."""
+        d = ScheduleDesigner()
+        assert len(stage_boxes(d)) == 2  # warmup + cosine
+        d.stages.shape.value = "flat"
+        d.stages.add.click()
+        assert [type(p).__name__ for p in d.schedule.target.parts] == ["Cosine", "Flat"]
+        assert len(stage_boxes(d)) == 3 and d.steps == d.schedule.length
+        flat_box = stage_boxes(d)[2]
+        next(b for b in flat_box.children[0].children if "sw-up" in b._dom_classes).click()
+        assert [type(p).__name__ for p in d.schedule.target.parts] == ["Flat", "Cosine"]
+        next(b for b in stage_boxes(d)[2].children[0].children if "sw-remove" in b._dom_classes).click()
+        assert d.schedule == warmup(flat(0.1, steps=10_350), steps=5750)
+        assert len(stage_boxes(d)) == 2
+
+    def test_remove_the_warmup_and_add_it_back(self):
+        """The warmup is a removable first stage; a second one is refused."""
+        d = ScheduleDesigner()
+        next(b for b in stage_boxes(d)[0].children[0].children if "sw-remove" in b._dom_classes).click()
+        assert d.schedule == cosine(0.1, steps=97_750)
+        d.stages.shape.value = "warmup"
+        d.stages.add.click()
+        assert d.schedule.kind == "warmup" and d.schedule.steps == 97_750 // 20
+        d.stages.add.click()
+        assert d.error.startswith("designer: a design has at most one warmup")
+
+    def test_removing_the_last_stage_is_refused(self):
+        """A design keeps at least one stage."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        next(b for b in stage_boxes(d)[0].children[0].children if "sw-remove" in b._dom_classes).click()
+        assert d.error == "designer: stages must be at least one stage, got 0 (add a shape with 'Add stage')"
+        assert d.schedule == cosine(0.1, steps=100)
+
+    def test_repeat_wraps_a_stage_in_restarts(self):
+        """The repeat box turns a stage into two warm restarts of it, with its own controls."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        rep = next(w for w in stage_boxes(d)[0].children[0].children if getattr(w, "description", "") == "repeat")
+        rep.value = True
+        assert d.schedule.kind == "restarts" and d.schedule.cycles == 2 and d.steps == 200
+        d.control(0, "growth").text.value = 2.0
+        assert d.schedule.length == 300
+        rep.value = False
+        assert d.schedule == cosine(0.1, steps=100)
+
+    def test_other_designs_are_drawn_and_said_to_be_edited_in_code(self):
+        """A product of schedules is drawn and read out; the panel says in one line how to edit it."""
+        s = cosine(0.1, steps=500) * flat(0.5)
+        d = ScheduleDesigner(s)
+        assert stage_boxes(d) == [] and "can be edited in code" in d.stages.note.value
+        assert np.allclose(d.canvas.curve.y, s(np.asarray(d.canvas.curve.x).astype(int)))
+        assert "peaks" in d.readout.text.value or "Starts at its peak" in d.readout.text.value
+
+    def test_total_keeps_proportions(self):
+        """Doubling the total doubles every stage's ticks (warmup 5 epochs stays 5/90 of the run)."""
+        d = ScheduleDesigner()
+        d.stages.total.value = 207_000
+        assert d.schedule == warmup(cosine(0.1, steps=195_500), steps=11_500) and d.steps == 207_000
+
+    def test_unit_change_converts_the_design(self):
+        """With steps per epoch known, switching the clock to epochs converts every tick."""
+        d = ScheduleDesigner()
+        d.stages.unit.value = "epoch"
+        assert d.schedule == warmup(cosine(0.1, steps=85), steps=5)
+        assert (d.unit, d.steps) == ("epoch", 90)
+        assert d.canvas.x_axis.label == "epoch"
+
+    def test_tick_slider_spans_the_budget(self):
+        """A length slider reaches the budget; a rate floor of 0 leaves the log slider at its bottom."""
+        d = ScheduleDesigner()
+        assert d.control(0, "steps").slider.max == 103_500
+        floor = d.control(0, "floor")
+        assert floor.text.value == 0.0 and floor.slider.value == pytest.approx(1e-6)
+
+
+    def test_control_lookup(self):
+        """control() finds a parameter's control, and says what exists when asked for something else."""
+        d = ScheduleDesigner()
+        assert d.control("warmup", "steps").text.value == 5750
+        with pytest.raises(ScheduleError, match=r"designer: stage must be 0 \.\. 0 or 'warmup' if there is one, got 1"):
+            d.control(1, "peak")
+        with pytest.raises(ScheduleError, match=r"designer: name must be one of peak, floor, steps, got 'top'"):
+            d.control(0, "top")
+        with pytest.raises(ScheduleError, match=r"designer: stage must be a stage of an editable design"):
+            ScheduleDesigner(cosine(0.1, steps=10) * 0.5).control(0, "peak")
+
+
+class TestComparePanel:
+    """Pins are drawn as labelled grey ghosts, compared side by side, and restored."""
+
+    def test_pin_draw_compare_restore(self):
+        """Pin the demo, change the design, then compare and restore the pin."""
+        d = ScheduleDesigner()
+        d.compare.name.value = "warmup + cosine"
+        d.compare.pin_button.click()
+        g = d.canvas.ghosts[0]
+        assert g.visible and g.labels == ["warmup + cosine"] and g.display_legend and d.canvas.curve.display_legend
+        assert g.colors[0] in ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")
+        step = drops(0.1, at=(30 * 1150, 60 * 1150, 80 * 1150), factor=0.1, steps=103_500)
+        d.propose(step)
+        table = d.compare.table.value
+        assert "warmup + cosine" in table
+        t = np.arange(103_500)
+        diff = np.abs(step(t) - demo_design()(t))
+        # largest difference read on a grid plus every jump: it is the true maximum here (at the first jump)
+        assert f"{diff.max():.4g} at {int(np.argmax(diff)):,}" in table
+        area = facts(demo_design(), 103_500, exact_up_to=2**16).area / facts(step, 103_500, exact_up_to=2**16).area
+        assert f"{area:.4g}" in table
+        d.compare.choice.value = "warmup + cosine"
+        d.compare.restore_button.click()
+        assert d.schedule == demo_design()
+
+    def test_at_most_five_pins(self):
+        """A sixth pin is refused with a hint; a pin of the same name replaces the old one."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        for i in range(5):
+            d.pin(f"p{i}")
+        d.pin("p0")
+        assert len(d.pins) == 5
+        d.compare.name.value = "sixth"
+        d.compare.pin_button.click()
+        assert d.error == "compare: pins must be at most 5, got 6 (remove a pin in the Compare panel first)"
+        d.compare.choice.value = "p3"
+        d.compare.remove_button.click()
+        assert [p.name for p in d.pins] == ["p0", "p1", "p2", "p4"]
+        assert not d.canvas.ghosts[4].visible
+
+
+class TestFiles:
+    """The design survives on disk: save, load, autosave, from_file."""
+
+    def test_save_load_round_trip(self, tmp_path):
+        """Saving and loading through the export panel gives the same design and clock back."""
+        d = ScheduleDesigner()
+        d.export.path.value = str(tmp_path / "demo.json")
+        d.export.save_button.click()
+        assert "saved to" in d.export.message.value
+        assert load(tmp_path / "demo.json") == demo_design()
+        e = ScheduleDesigner(cosine(0.5, steps=10))
+        e.export.path.value = str(tmp_path / "demo.json")
+        e.export.load_button.click()
+        assert (e.schedule, e.steps, e.steps_per_epoch) == (demo_design(), 103_500, 1150)
+
+    def test_load_failure_is_clear(self, tmp_path):
+        """A missing or broken file leaves the design as it was and says why."""
+        d = ScheduleDesigner()
+        d.export.path.value = str(tmp_path / "nope.json")
+        d.export.load_button.click()
+        assert d.error.startswith("load: path must name an existing file")
+        assert "load: path must name an existing file" in d.export.message.value
+        (tmp_path / "bad.json").write_text('{"version": 1, "schedule": {"kind": "cosine", "peak": -1, "steps": 5}}')
+        d.export.path.value = str(tmp_path / "bad.json")
+        d.export.load_button.click()
+        assert "schedule.peak" in d.error and d.schedule == demo_design()
+
+    def test_save_into_a_missing_folder(self, tmp_path):
+        """Saving where no folder exists writes nothing and says so."""
+        d = ScheduleDesigner()
+        d.export.path.value = str(tmp_path / "no" / "x.json")
+        d.export.save_button.click()
+        assert d.error.startswith("save: path must be in an existing folder")
+
+    def test_autosave_after_every_valid_change(self, tmp_path):
+        """The autosave file holds the last valid design, and from_file restores it."""
+        path = tmp_path / "auto.json"
+        d = ScheduleDesigner(autosave=path)
+        assert load(path) == demo_design()
+        d.control(0, "peak").text.value = 0.2
+        assert load(path).target.peak == 0.2
+        d.control(0, "floor").text.value = 0.5  # invalid: not written
+        assert load(path).target == cosine(0.2, 0.0, steps=97_750)
+        e = ScheduleDesigner.from_file(path)
+        assert (e.schedule, e.steps_per_epoch, e.unit) == (d.schedule, 1150, "step")
+
+    def test_to_spec(self):
+        """to_spec carries the unit and steps per epoch."""
+        spec = ScheduleDesigner().to_spec()
+        assert spec["unit"] == "step" and spec["steps_per_epoch"] == 1150 and spec["schedule"]["kind"] == "warmup"
+
+    def test_existing_file_survives_a_failed_save(self, tmp_path, monkeypatch):
+        """If writing fails mid-way, the old file is intact (the save is atomic)."""
+        path = tmp_path / "keep.json"
+        save(cosine(0.3, steps=10), path)
+        d = ScheduleDesigner()
+        import os
+
+        def fail(*_a):
+            raise OSError("disk full")
+
+        monkeypatch.setattr(os, "fsync", fail)
+        d.export.path.value = str(path)
+        d.export.save_button.click()
+        assert "disk full" in d.error
+        assert load(path) == cosine(0.3, steps=10)
+
+
+class TestExportPanel:
+    """The export panel shows generated code that cannot be edited by accident."""
+
+    def test_python_and_torch_code(self):
+        """Python code defines lr_at and gives the design's rates; torch code builds a LambdaLR."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        d.tabs.selected_index = 1
+        code = d.export.code.value
+        assert "sw-export-code" in d.export.code._dom_classes
+        ns: dict = {}
+        exec(code, ns)
+        assert [ns["lr_at"](t) for t in (0, 50, 99)] == pytest.approx([d.schedule(t) for t in (0, 50, 99)])
+        d.export.language.value = "torch"
+        assert "LambdaLR" in d.export.code.value
+
+    def test_typing_is_put_back(self):
+        """The text area returns to the generated code after an edit."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        d.tabs.selected_index = 1
+        code = d.export.code.value
+        d.export.code.value = "oops"
+        assert d.export.code.value == code
+
+    def test_code_follows_the_design_while_shown(self):
+        """A change while the panel is shown regenerates the code."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        d.tabs.selected_index = 1
+        d.control(0, "peak").text.value = 0.25
+        assert "0.25" in d.export.code.value
+
+
+class TestOtherPanels:
+    """Replay and Rescale are tabs that start when first opened, installed or not."""
+
+    def test_tabs_start_on_first_opening(self):
+        """Four tabs in order; the Replay tab holds one panel (or a note) once it is selected."""
+        d = ScheduleDesigner()
+        assert d.tabs.titles == ("Compare", "Export", "Replay", "Rescale")
+        assert d.tabs.children[2].children == ()
+        d.tabs.selected_index = 2
+        (panel,) = d.tabs.children[2].children
+        d.tabs.selected_index = 0
+        d.tabs.selected_index = 2
+        assert d.tabs.children[2].children == (panel,)
+        assert d.error == ""
+
+    def test_a_missing_panel_is_a_note(self, monkeypatch):
+        """A panel module that is not installed leaves a one-line note, not an exception."""
+        d = ScheduleDesigner()
+        d.later[3] = ("not_a_panel", "Nothing")
+        d.tabs.selected_index = 3
+        (note,) = d.tabs.children[3].children
+        assert note.value == "<i>The not_a_panel panel is not part of this installation.</i>"
