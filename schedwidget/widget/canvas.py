@@ -24,12 +24,10 @@ with warnings.catch_warnings():
 
 from ..sample import Trace, trace
 from ..schedule import Schedule
+from ..svg import CURVE, GHOSTS, JOIN  # one palette for the live curve and the static picture
 
 __all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR"]
 
-CURVE = "#0f766e"                                           # deep teal: the current design
-JOIN = "#64748b"                                            # slate: stage joins, dotted
-GHOSTS = ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")  # muted greys: pinned designs
 MAX_JOIN_LINES = 200                                        # more joins than this are not drawn one by one
 LOG_FLOOR = 1e-12                                           # on the log axis nothing is drawn below peak * this
 
