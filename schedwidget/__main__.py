@@ -12,13 +12,12 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
-import tempfile
 from pathlib import Path
 from typing import Sequence
 
 from .schedule import ScheduleError
+from .spec import write_atomic
 
 PROG = "python -m schedwidget"
 
@@ -110,17 +109,7 @@ def _write(text: str, output: str | None) -> None:
     target = Path(output)
     if not target.parent.is_dir() or target.is_dir():
         raise ScheduleError(f"export: -o must name a file in an existing folder, got {output!r}")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_atomic(target, text)
 
 
 def _run(args: argparse.Namespace) -> int:

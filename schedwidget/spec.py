@@ -261,6 +261,12 @@ def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,
     target = Path(path)
     if not target.parent.is_dir():
         raise ScheduleError(f"save: path must be in an existing folder, got {str(target)!r}")
+    write_atomic(target, text)
+    return target
+
+
+def write_atomic(target: Path, text: str) -> None:
+    """Write ``text`` to a temporary file beside ``target``, then rename it over ``target``."""
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
@@ -272,4 +278,3 @@ def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
-    return target
