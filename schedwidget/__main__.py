@@ -50,7 +50,7 @@ def _parser() -> argparse.ArgumentParser:
     show.add_argument("spec", metavar="SPEC.json")
     ex = sub.add_parser("export", help="write the design as Python or as a torch snippet",
                         description="Write the design as one stdlib-only Python function (--to python) or a "
-                                    "ready torch LambdaLR snippet (--to torch), to FILE or stdout.")
+                                    "ready torch snippet (--to torch), to FILE or stdout.")
     ex.add_argument("spec", metavar="SPEC.json")
     ex.add_argument("--to", required=True, choices=("python", "torch"), help="what to write")
     ex.add_argument("--name", default="lr_at", help="name of the generated function (default: lr_at)")

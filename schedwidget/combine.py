@@ -14,7 +14,10 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from .schedule import EDGE_CAP, Schedule, complain, literal, param
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, complain, literal, param
+
+#: growth must be 1 or at least this far from 1 (else a cycle table grows without bound).
+MIN_GROWTH_STEP = 0.01
 from .shapes import Ramp, node
 
 __all__ = ["stages", "warmup", "restarts"]
@@ -51,6 +54,11 @@ class Stages(Schedule):
             if p.length is None and i < len(parts) - 1:
                 raise complain("stages", f"parts[{i}]", p, "a stage with a length (steps=...)",
                                "only the last stage may be open-ended; an open-ended stage never hands over")
+        if len(parts) < 2:
+            raise complain("stages", "parts", parts, "two or more schedules", "a single stage is just that schedule")
+        total = sum(p.length for p in parts if p.length is not None)
+        if total > MAX_TICKS:
+            raise complain("stages", "parts", f"{len(parts)} stages of {total:.3g} ticks", "a total length <= 2**53")
         object.__setattr__(self, "parts", parts)
 
     @property
@@ -143,6 +151,9 @@ class Warmup(Schedule):
         if n is not None and self.steps > n:
             raise complain("warmup", "steps", self.steps, f"<= {n} (the length of the schedule it leads into)",
                            "a warmup longer than the run it warms up is usually a steps/epochs mix-up")
+        if self.curve == "geometric" and self.start <= 0:
+            raise complain("warmup", "start", self.start, "a rate > 0 with curve='geometric'",
+                           "a geometric warmup multiplies by a constant ratio from start; pass start=peak/100, say")
         # building the ramp validates start/curve against the target's first rate
         ramp = Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
         object.__setattr__(self, "_stages", Stages(parts=(ramp, self.target)))
@@ -184,8 +195,8 @@ class Restarts(Schedule):
     target: Schedule = param(kind="schedule", doc="one cycle")
     cycles: int | None = param(None, kind="count", lo=1, soft=(1, 20), optional=True,
                                doc="number of cycles; None repeats forever")
-    growth: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=10.0, soft=(1.0, 3.0),
-                          doc="each cycle is this many times longer than the one before")
+    growth: float = param(1.0, kind="ratio", lo=0.5, hi=10.0, soft=(1.0, 3.0),
+                          doc="each cycle is this many times longer than the one before (lengths round half up)")
     peak_decay: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=1.0, soft=(0.3, 1.0),
                               doc="each cycle is scaled by this factor relative to the one before")
     _length: int | None = field(init=False, repr=False, compare=False)  # derived once; read on every call
@@ -196,7 +207,13 @@ class Restarts(Schedule):
         if self.target.length is None:
             raise complain("restarts", "target", self.target, "a schedule with a length (steps=...)",
                            "an open-ended schedule never ends, so it cannot restart")
+        if self.growth != 1.0 and abs(self.growth - 1.0) < MIN_GROWTH_STEP:
+            raise complain("restarts", "growth", self.growth, f"1.0, or at least {MIN_GROWTH_STEP} away from 1",
+                           "cycles that change length by less than 1 % would need thousands of cycles; use 1.0")
         total = None if self.cycles is None else int(self._lengths(self.cycles).sum())
+        if total is not None and total > MAX_TICKS:
+            raise complain("restarts", "cycles", self.cycles, f"few enough that the length stays <= 2**53",
+                           f"these cycles add up to {total:.3g} ticks")
         object.__setattr__(self, "_length", total)
 
     @property
@@ -207,8 +224,10 @@ class Restarts(Schedule):
         return (self.target,)
 
     def _lengths(self, n: int) -> np.ndarray:
-        k = np.arange(n, dtype=float)
-        return np.maximum(1.0, np.floor(self.target.length * np.power(self.growth, k) + 0.5))
+        # One Python pow per cycle (a loop over cycles, not ticks): numpy's vectorised power can differ from it by
+        # an ulp, and the generated code computes cycle lengths this way, so both must round the same value.
+        L, g = float(self.target.length), self.growth
+        return np.array([max(1.0, math.floor(L * g ** k + 0.5)) for k in range(n)])
 
     def _table(self, umax: float) -> tuple[np.ndarray, np.ndarray]:
         """Starts and lengths of every cycle that begins at or before ``umax`` (growth != 1)."""
@@ -303,7 +322,12 @@ class Restarts(Schedule):
 
 @node
 class Product(Schedule):
-    """Tick-by-tick product of two schedules."""
+    """Tick-by-tick product of two schedules.
+
+    Its length is the longest finite length of the two (None only when both are
+    open-ended); past it, like every schedule, it holds its value, so an
+    open-ended factor stops changing there too.
+    """
 
     kind: ClassVar[str] = "product"
     left: Schedule = param(kind="schedule", doc="first factor")

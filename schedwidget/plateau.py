@@ -19,8 +19,8 @@ from .schedule import Param, Schedule, ScheduleError, complain, param
 
 __all__ = ["replay_plateau", "plateau_source", "PlateauReplay", "PlateauRule", "Drop", "lead_in"]
 
-#: A drop that would lower the rate by less than this fraction leaves it unchanged: the rate is at the
-#: floor up to rounding (0.1 * 0.1**4 is 1.0000000000000004e-05, a hair above a floor of 1e-05).
+#: A rate within this fraction above the floor counts as at the floor, and a drop leaves it unchanged
+#: (0.1 * 0.1**4 is 1.0000000000000004e-05, a hair above a floor of 1e-05). Every other drop is applied.
 NEGLIGIBLE = 1e-9
 
 
@@ -261,7 +261,7 @@ def _run(values: list[float], start: float, rule: PlateauRule, hold: int):
             count = 0
         if count > rule.patience:
             new = max(rate * rule.factor, rule.floor)
-            if new < rate * (1.0 - NEGLIGIBLE):
+            if new < rate and rate > rule.floor * (1.0 + NEGLIGIBLE):
                 drops.append(Drop(epoch=i + 1, rate_before=rate, rate_after=new, best=best,
                                   best_at=best_at, stale=count))
                 rate = new
@@ -357,7 +357,7 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
             self.count = 0
         if self.count > self.patience:
             new = max(self.level * self.factor, self.floor)
-            if new < self.level * (1.0 - {NEGLIGIBLE!r}):  # else: at the floor up to rounding
+            if new < self.level and self.level > self.floor * (1.0 + {NEGLIGIBLE!r}):  # else: at the floor
                 self.level = new
             self.count, self.wait = 0, self.wait_after_drop
         self.epoch += 1

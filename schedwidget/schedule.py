@@ -19,6 +19,8 @@ __all__ = ["Schedule", "ScheduleError", "Param", "param"]
 
 #: How many possible discontinuities a node reports before it counts as dense.
 EDGE_CAP = 4096
+#: Largest tick or length: every whole number up to 2**53 is exact as a float64 clock.
+MAX_TICKS = 2 ** 53
 
 
 class ScheduleError(ValueError):
@@ -86,6 +88,9 @@ class Param:
             out = as_whole(value)
             if out is None or (self.lo is not None and out < self.lo) or (self.hi is not None and out > self.hi):
                 raise complain(owner, name, value, self.allowed(), self.hint)
+            if out > MAX_TICKS:
+                raise complain(owner, name, value, "a whole number <= 2**53",
+                               "above that, ticks are no longer exact on a float64 clock")
             return out
         if self.kind == "flag":
             if not isinstance(value, (bool, np.bool_)):
@@ -131,8 +136,8 @@ def check_ticklist(owner: str, name: str, value: Any, lo: int) -> tuple[int, ...
     out: list[int] = []
     for i, v in enumerate(value):
         w = as_whole(v)
-        if w is None or w < lo:
-            raise complain(owner, f"{name}[{i}]", v, f"a whole number >= {lo}")
+        if w is None or w < lo or w > MAX_TICKS:
+            raise complain(owner, f"{name}[{i}]", v, f"a whole number >= {lo} and <= 2**53")
         if out and w <= out[-1]:
             raise complain(owner, f"{name}[{i}]", v, f"a tick > {name}[{i - 1}] = {out[-1]}",
                            "ticks must increase strictly: sort them and remove duplicates")
@@ -206,6 +211,8 @@ class Schedule:
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
         """The rate at integer tick(s) ``t``: a float for a scalar, a float64 array for an array."""
+        if isinstance(t, int) and not isinstance(t, bool) and t > MAX_TICKS:
+            raise complain(self.kind, "t", t, "a tick <= 2**53", "above that, ticks are not exact on a float64 clock")
         arr = np.asarray(t)
         if arr.dtype.kind in "iu":
             u = arr.astype(np.float64)
@@ -215,6 +222,9 @@ class Schedule:
                 raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
         else:
             raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
+        if u.size and u.max() > MAX_TICKS:
+            raise complain(self.kind, "t", t if arr.ndim == 0 else "an array with ticks above 2**53", "a tick <= 2**53",
+                           "above that, ticks are not exact on a float64 clock")
         if u.size and u.min() < 0:
             raise complain(self.kind, "t", t if arr.ndim == 0 else "an array with negative ticks",
                            "a tick >= 0", "t = 0 is the rate of the very first update")

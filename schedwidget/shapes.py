@@ -13,7 +13,7 @@ from typing import ClassVar, Sequence
 
 import numpy as np
 
-from .schedule import EDGE_CAP, Schedule, as_whole, complain, monotone_range, param
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, as_whole, complain, monotone_range, param
 
 __all__ = ["flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots"]
 
@@ -303,6 +303,9 @@ class OneCycle(_Leaf):
         if self.final > self.low:
             raise complain("one_cycle", "final", self.final, f"<= low = {self.low!r}",
                            "the tail anneals below the cycle's low rate")
+        if not 2.0 * ((1.0 - self.tail) * self.steps / 2.0) < self.steps:
+            raise complain("one_cycle", "tail", self.tail, f"at least {1.0 / self.steps:.3g} (one tick of {self.steps})",
+                           "the annihilation tail needs at least part of a tick after the cycle")
         if (1.0 - self.tail) * self.steps / 2.0 < 1.0:
             raise complain("one_cycle", "steps", self.steps, f"at least {math.ceil(2 / (1 - self.tail))} with tail={self.tail!r}",
                            "each half of the cycle needs at least one tick")
@@ -375,8 +378,8 @@ def _check_points(points) -> tuple[tuple[int, float], ...]:
         except (TypeError, ValueError):
             raise complain("knots", f"points[{i}]", pair, "a (tick, rate) pair") from None
         tick = as_whole(t)
-        if tick is None or tick < 0:
-            raise complain("knots", f"points[{i}] tick", t, "a whole number >= 0")
+        if tick is None or tick < 0 or tick > MAX_TICKS:
+            raise complain("knots", f"points[{i}] tick", t, "a whole number >= 0 and <= 2**53")
         if isinstance(y, bool) or not isinstance(y, (int, float, np.floating, np.integer)) \
                 or not math.isfinite(y) or y < 0:
             raise complain("knots", f"points[{i}] rate", y, "a finite rate >= 0")

@@ -42,7 +42,7 @@ class TestWarmup:
     def test_peak_at_w(self):
         target = cosine(0.1, steps=1000)
         s = warmup(target, steps=50)
-        assert s == s and s.length == 1050
+        assert s.length == 1050
         assert s(0) == 0.0 and s(25) == pytest.approx(0.05, rel=1e-15) and s(50) == 0.1
         t = np.arange(1100)
         assert np.array_equal(s(t), stages(ramp(0.0, 0.1, 50), target)(t))

@@ -85,3 +85,34 @@ def test_spec_shows_at_most_three_problems():
     with pytest.raises(ScheduleError, match=r"\(\+1 more\)") as info:
         from_spec(spec)
     assert str(info.value).count(": ") >= 3
+
+
+@pytest.mark.parametrize("make,pattern", [
+    (lambda: cosine(0.1, steps=10**400), r"cosine: steps must be a whole number <= 2\*\*53"),
+    (lambda: cosine(0.1, steps=10)(10**20), r"cosine: t must be a tick <= 2\*\*53"),
+    (lambda: drops(0.1, at=(10**17,)), r"drops: at\[0\] must be a whole number >= 1 and <= 2\*\*53"),
+    (lambda: knots([(0, 0.1), (10**17, 0.2)]), r"knots: points\[1\] tick must be a whole number >= 0 and <= 2\*\*53"),
+    (lambda: restarts(cosine(1.0, steps=1000), cycles=40, growth=3.0), r"restarts: cycles must be few enough"),
+    (lambda: restarts(cosine(1.0, steps=100), growth=1 - 1e-9), r"restarts: growth must be 1.0, or at least 0.01"),
+    (lambda: restarts(cosine(1.0, steps=100), growth=0.3), r"restarts: growth must be a finite number in \[0.5, 10\]"),
+    (lambda: one_cycle(1.0, steps=100, tail=1e-17), r"one_cycle: tail must be at least 0.01"),
+    (lambda: warmup(cosine(0.1, steps=10), 3, curve="geometric"), r"warmup: start must be a rate > 0 with curve='geometric'"),
+])
+def test_limits(make, pattern):
+    # review findings: huge ticks, runaway cycle tables, a tail that vanishes in rounding, blame the right call
+    with pytest.raises(ScheduleError, match=pattern):
+        make()
+
+
+def test_deep_spec_is_refused_cleanly():
+    node = {"kind": "flat", "lr": 0.1, "steps": 3}
+    for _ in range(200):
+        node = {"kind": "scale", "target": node, "factor": 1.0}
+    with pytest.raises(ScheduleError, match=r"spec: nesting must be at most 48 schedules deep"):
+        from_spec({"version": 1, "schedule": node})
+
+
+def test_spec_steps_per_epoch_checked():
+    from schedwidget import to_spec
+    with pytest.raises(ScheduleError, match=r"to_spec: steps_per_epoch must be a whole number >= 1 or None, got 0"):
+        to_spec(flat(0.1), steps_per_epoch=0)

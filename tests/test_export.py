@@ -86,7 +86,7 @@ def schedule(draw, depth: int = 3) -> Schedule:
     first = draw(schedule(depth - 1))
     other = lambda: draw(schedule(draw(st.integers(0, max(0, depth - 2)))))  # noqa: E731
     if kind == "stages":
-        parts = [_finite(draw, first)] + [other() for _ in range(draw(st.integers(0, 2)))]
+        parts = [_finite(draw, first)] + [other() for _ in range(draw(st.integers(1, 2)))]
         parts = [_finite(draw, p) for p in parts[:-1]] + parts[-1:]
         return stages(*parts) if draw(st.booleans()) else Stages(parts=tuple(parts))
     if kind == "warmup":
@@ -162,7 +162,7 @@ EXAMPLES: dict[str, list[Schedule]] = {
               knots([(i * 3, 0.1 / (i + 1)) for i in range(14)], interp="log"),
               knots([(i * 2, (i % 3) * 0.05) for i in range(12)])],
     "stages": [stages(flat(0.1, steps=5), cosine(0.1, steps=20), flat(0.001)),
-               Stages(parts=(cosine(0.1, steps=9),))],
+               Stages(parts=(cosine(0.1, steps=9), ramp(0.0, 0.1, 4)))],
     "warmup": [warmup(cosine(0.1, steps=97), steps=13), warmup(exp_decay(0.1, 0.97), steps=5, start=0.01,
                                                                  curve="geometric")],
     "restarts": [restarts(cosine(0.1, steps=10), cycles=3), restarts(cosine(0.1, steps=10)),
@@ -336,3 +336,16 @@ class TestArguments:
         """steps_per_epoch is a whole number >= 1."""
         with pytest.raises(ScheduleError, match=r"to_python: steps_per_epoch must be a whole number >= 1"):
             to_python(DEMO, steps_per_epoch=0)
+
+
+class TestReviewedRestartRounding:
+    """Cycle lengths past the generated table round exactly like the core's (an ulp of pow decides ties)."""
+
+    @pytest.mark.parametrize("growth", [2.1601835092503117, 1.800141828788954, 1.6647605495960218])
+    def test_near_tie_growth(self, growth):
+        from schedwidget import cosine, restarts, to_python
+        s = restarts(cosine(1.0, steps=1), growth=growth)
+        ns: dict = {}
+        exec(to_python(s), ns)  # noqa: S102 - our own generated source
+        t = np.arange(0, 5000)
+        np.testing.assert_allclose([ns["lr_at"](int(k)) for k in t], s(t), rtol=1e-12, atol=1e-15)

@@ -48,7 +48,7 @@ class ExportPanel(W.VBox):
         self.d = designer
         g = designer.guarded
         self.language = W.ToggleButtons(options=["Python", "torch"], value="Python", description="code",
-                                        tooltip="a standalone Python function, or a torch LambdaLR snippet",
+                                        tooltip="a standalone Python function, or a ready torch snippet (torch.optim.lr_scheduler)",
                                         style={"button_width": "6em", "description_width": "3em"})
         self.code = W.Textarea(rows=18, layout=W.Layout(width="100%"),
                                tooltip="generated code: select all and copy")
