@@ -18,6 +18,7 @@ from typing import Callable
 
 import numpy as np
 
+from .combine import Stretch
 from .schedule import Schedule, ScheduleError, complain
 
 __all__ = ["check_name", "function_source", "UNITS"]
@@ -272,10 +273,13 @@ class _Writer:
             self.put(ind, f"{start}, {ln} = {k} * {_f(L)}, {_f(L)}")
         else:
             self._cycle_table(s, u, bound, ind, k, start, ln, last)
-        local = self.clock(f"(({u} - {start}) * {_f(L)}) / {ln}", ind)
+        # as the core: a stretched cycle is read on its inner clock in one step (one rounding, not two)
+        inner = s.target.target if isinstance(s.target, Stretch) else s.target
+        Li = float(inner.length)
+        local = self.clock(f"(({u} - {start}) * {_f(Li)}) / {ln}", ind)
         within = s.cycles is None or (bound is not None and s.length is not None and bound <= s.length)
-        v, pb = self.held(s.target, local, L if within else None, ind)
-        e = self.value(s.target, v, pb, ind)
+        v, pb = self.held(inner, local, Li if within else None, ind)
+        e = self.value(inner, v, pb, ind)
         self.put(ind, sink(e if s.peak_decay == 1.0 else f"{e} * {_f(s.peak_decay)} ** {k}"))
 
     def _cycle_table(self, s, u, bound, ind, k, start, ln, last):

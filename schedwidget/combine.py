@@ -265,11 +265,13 @@ class Restarts(Schedule):
 
     def _at(self, u):
         k, start, ln = self._locate(u)
-        L = float(self.target.length)
+        # A stretched cycle is read on its inner clock in one step, so the clock is rounded once, not twice:
+        # a drop whose scaled position is a whole tick then lands exactly on it.
+        inner = self.target.target if isinstance(self.target, Stretch) else self.target
         local = u - start
-        local *= L
+        local *= float(inner.length)
         local /= ln
-        out = self.target._held(local)
+        out = inner._held(local)
         if self.peak_decay != 1.0:
             out *= np.power(self.peak_decay, k)
         return out

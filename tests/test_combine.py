@@ -95,3 +95,17 @@ class TestOperators:
     def test_staircase_floors_scaled_argument(self):
         s = exp_decay(1.0, 0.5, every=2, steps=10).stretch(25)  # stairs at 5, 10, 15, 20
         assert [s(t) for t in (4, 5, 9, 10)] == [1.0, 0.5, 0.5, 0.25]
+
+
+class TestNestedClocks:
+    """Restarts of a stretched design read the inner clock in one rounding (review finding)."""
+
+    def test_drop_lands_on_its_exact_tick(self):
+        # exact position 1876 + 130 * 2814 / 210 = 3618 (whole): the drop takes effect there, not a tick later
+        s = restarts(drops(1.0, at=(130,), factor=0.5, steps=210).stretch(1876), cycles=3, growth=1.5)
+        assert [s(t) for t in (3617, 3618)] == [1.0, 0.5]
+        from fractions import Fraction
+        start, span = 1876, 2814  # second cycle: round(1876 * 1.5)
+        for t in range(start, start + span, 37):
+            inner = Fraction(t - start) * 210 / span
+            assert s(t) == (0.5 if inner >= 130 else 1.0)
