@@ -142,6 +142,9 @@ def _run(args: argparse.Namespace) -> int:
         text = to_python(s, name=args.name, unit=unit, steps_per_epoch=spe)
     else:
         base = args.base_lr if args.base_lr is not None else _peak(s)
+        if base <= 0:
+            raise ScheduleError("export: the design's peak is 0, so it cannot be the optimizer's base rate; "
+                                "pass --base-lr X (the lr every param group is built with)")
         text = to_torch(s, base, unit=unit, groups=args.groups, steps=args.steps, name=args.name,
                         steps_per_epoch=spe)
     _write(text, args.output)
@@ -155,7 +158,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return _run(args)
     except SystemExit as exc:  # --help and --version print and exit 0
         return exc.code if isinstance(exc.code, int) else 0
-    except (_Usage, ScheduleError, OSError) as exc:
+    except (_Usage, ScheduleError, OSError, RecursionError) as exc:
         text = " ".join(str(exc).split()) or type(exc).__name__
         if isinstance(exc, OSError) and exc.filename is not None:
             text = f"{exc.strerror or type(exc).__name__}: {exc.filename!r}"
