@@ -142,7 +142,7 @@ def _run(args: argparse.Namespace) -> int:
         text = to_python(s, name=args.name, unit=unit, steps_per_epoch=spe)
     else:
         base = args.base_lr if args.base_lr is not None else _peak(s)
-        if base <= 0:
+        if args.base_lr is None and base <= 0:
             raise ScheduleError("export: the design's peak is 0, so it cannot be the optimizer's base rate; "
                                 "pass --base-lr X (the lr every param group is built with)")
         text = to_torch(s, base, unit=unit, groups=args.groups, steps=args.steps, name=args.name,
