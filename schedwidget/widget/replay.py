@@ -24,6 +24,7 @@ with warnings.catch_warnings():
 from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
+from .guard import ERROR_RED, quietly
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -33,7 +34,6 @@ __all__ = ["ReplayPanel", "epoch_base", "step_line", "WHAT_IF_PATIENCE"]
 
 CURVE = "#0f766e"       # deep teal: the rate
 METRIC = "#9ca3af"      # grey: the metric, on its own axis
-ERROR_RED = "#b91c1c"
 AMBER = "#b45309"
 WHAT_IF_PATIENCE = tuple(range(1, 9))
 RULE_DEFAULTS = {name: getattr(PlateauRule(), name) for name in PlateauRule.params()}
@@ -162,16 +162,8 @@ class ReplayPanel(W.VBox):
 
     # ------------------------------------------------------------ plumbing
     def _guard(self, fn: Callable) -> Callable:
-        """``fn`` with every exception turned into the message line (the last good picture stays)."""
-        def run(*args: Any, **kwargs: Any) -> Any:
-            try:
-                return fn(*args, **kwargs)
-            except ScheduleError as exc:
-                self._say(str(exc), ERROR_RED)
-            except Exception as exc:  # a bug: say so rather than raise into the notebook
-                self._say(f"{type(exc).__name__}: {exc} (a bug in schedwidget; the last replay is kept)", ERROR_RED)
-            return None
-        return run
+        """``fn`` with every exception turned into the message line."""
+        return quietly(fn, self._say, "the last replay is kept")
 
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
         value = html.escape(text)

@@ -23,6 +23,7 @@ with warnings.catch_warnings():
 
 from ..sample import trace
 from ..schedule import Schedule, ScheduleError, complain
+from .guard import ERROR_RED, quietly
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -31,7 +32,6 @@ __all__ = ["RescalePanel", "Rescaled", "rescale"]
 
 CURVE = "#0f766e"   # deep teal: the new design
 OLD = "#9ca3af"     # muted grey: the design as it is
-ERROR_RED = "#b91c1c"
 AMBER = "#b45309"
 
 
@@ -155,15 +155,8 @@ class RescalePanel(W.VBox):
 
     # ------------------------------------------------------------ plumbing
     def _guard(self, fn: Callable) -> Callable:
-        def run(*args: Any, **kwargs: Any) -> Any:
-            try:
-                return fn(*args, **kwargs)
-            except ScheduleError as exc:
-                self._say(str(exc), ERROR_RED)
-            except Exception as exc:  # a bug: say so rather than raise into the notebook
-                self._say(f"{type(exc).__name__}: {exc} (a bug in schedwidget; the design is unchanged)", ERROR_RED)
-            return None
-        return run
+        """``fn`` with every exception turned into the message line."""
+        return quietly(fn, self._say, "the design is unchanged")
 
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
         if self.message.style.text_color != colour:
