@@ -22,7 +22,7 @@ with warnings.catch_warnings():
     from bqplot import Axis, Figure, LinearScale, Lines
 
 from ..sample import trace
-from ..schedule import Schedule, ScheduleError, complain
+from ..schedule import Schedule, complain
 from .guard import ERROR_RED, quietly
 
 if TYPE_CHECKING:  # pragma: no cover
