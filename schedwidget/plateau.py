@@ -300,7 +300,16 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
         raise ScheduleError(str(exc).replace("replay_plateau:", owner + ":", 1)) from None
     hold = lead_in(base) if isinstance(base, Schedule) else 0
     start = _check_start(owner, start_lr, rule, base, hold)
-    head = ['"""Reduce-on-plateau rule written by schedwidget (standard library only)."""', ""]
+    head = ['"""Reduce-on-plateau rule written by schedwidget (standard library only)."""', "",
+            "# In a torch training loop (no scheduler object needed; the rule reacts to your metric):",
+            f"#     rule = {name}()",
+            "#     for epoch in range(epochs):",
+            "#         for group in optimizer.param_groups:",
+            "#             group[\"lr\"] = rule.rate  # times the group's own multiplier, if it has one",
+            "#         train_one_epoch(model, optimizer)",
+            "#         rule.update(evaluate(model))  # once per evaluation: the rate for the next epoch",
+            f"#     checkpoint[\"plateau\"] = rule.state()  # resume: rule = {name}(); rule.load_state(...)",
+            ""]
     if base is not None:
         from .export import to_python  # lazy: the exporter is its own module
 
