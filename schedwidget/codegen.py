@@ -373,7 +373,8 @@ def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
     per = ("one tick is one optimizer update: call scheduler.step() after every optimizer.step()"
            if unit == "step" else "one tick is one epoch: call scheduler.step() once after each epoch")
     ep = f" ({n / spe:g} epochs of {spe:,} steps)" if spe and unit == "step" and n is not None else ""
-    lines = ["Learning rate at tick t (an int >= 0; t = 0 is the first update).", "",
+    first = "the first update" if unit == "step" else "the first epoch"
+    lines = [f"Learning rate at tick t (an int >= 0; t = 0 is {first}).", "",
              f"Unit: {unit} ({per}).",
              f"Budget: {n:,} {unit}s{ep}." if n is not None else "Budget: open-ended (no planned length).",
              f"Peak: {peak!r} at {unit} {peak_at:,}" + ("" if exact else " (read from a grid of ticks)")
@@ -400,7 +401,8 @@ def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch:
     w.put(2, "else:")
     w.put(3, "t = t.__index__()  # numpy and torch integers")
     w.put(1, "if t < 0:")
-    w.put(2, f"raise ValueError(f'{name}: t must be >= 0 (t = 0 is the first update), got {{t!r}}')")
+    first = "the first update" if unit == "step" else "the first epoch"
+    w.put(2, f"raise ValueError(f'{name}: t must be >= 0 (t = 0 is {first}), got {{t!r}}')")
     w.put(1, "u = float(t)" if n is None else f"u = float(t) if t < {int(n)} else {_f(n)}  # past the end the rate holds")
     w.emit(s, "u", None if n is None else float(n), 1, lambda e: f"return {e}")
     head = [f"def {name}(t):"]

@@ -26,6 +26,8 @@ EXACT_LIMIT = 2 ** 21
 CHUNK = 2 ** 18
 #: Batch size from which a run without warmup gets a caution (common practice, no source).
 LARGE_BATCH = 1024
+#: A peak this many times the linear scaling rule's rate gets a caution (common practice, no source).
+SCALING_MARGIN = 2.0
 
 
 @dataclass(frozen=True)
@@ -151,9 +153,10 @@ def _cautions(s: Schedule, f0: float, peak: float, n: int, batch: int | None, un
                    "(common practice, no source); check that it is a rate, not a percentage")
     if batch is not None:
         ref = 0.1 * batch / 256
-        if peak > 2.0 * ref:
-            out.append(f"peak {_g(peak)} is {peak / ref:.1f}x the linear scaling rule's {_g(ref)} "
-                       f"(0.1 x {batch}/256 for SGD, Goyal et al. 2017): risky unless tuned for this optimiser")
+        if peak > SCALING_MARGIN * ref:
+            out.append(f"peak {_g(peak)} is {peak / ref:.2f}x the linear scaling rule's {_g(ref)} "
+                       f"(0.1 x {batch}/256 for SGD, Goyal et al. 2017; caution above {SCALING_MARGIN:g}x): "
+                       "risky unless tuned for this optimiser")
         if batch >= LARGE_BATCH and peak > 0 and f0 >= 0.5 * peak:
             out.append(f"no warmup at batch {batch:,}: the run starts at {f0 / peak:.0%} of its peak; "
                        "Goyal et al. 2017 needed a gradual warmup at large batch (try warmup(..., steps=5 epochs))")

@@ -69,7 +69,7 @@ class TestCautions:
     def test_linear_scaling_reference(self):
         # linear scaling rule: 0.1 x batch / 256 for SGD (Goyal et al. 2017, sec. 2.1)
         c = facts(flat(0.4, steps=10), batch=256).cautions
-        assert any("4.0x the linear scaling rule's 0.1" in x for x in c)
+        assert any("4.00x the linear scaling rule's 0.1" in x and "caution above 2x" in x for x in c)
         assert not any("linear scaling" in x for x in facts(flat(0.4, steps=10), batch=1024).cautions)  # 0.4 is the rule at 1024
 
     def test_no_warmup_at_large_batch(self):
