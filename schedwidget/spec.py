@@ -159,9 +159,40 @@ def json_schema() -> dict[str, Any]:
 SCHEMA_FILE = "spec.schema.json"
 
 
-@functools.lru_cache(maxsize=1)
-def _validator() -> jsonschema.Draft202012Validator:
-    return jsonschema.Draft202012Validator(shipped_schema())
+def _shallow(schema: dict[str, Any], root: str | None) -> jsonschema.Draft202012Validator:
+    """A validator of the shipped schema in which a child schedule is checked only for its kind.
+
+    The loader then checks each node against its own kind's definition, instead
+    of trying every kind's if/then branch at every node (the same rules, ~10x faster).
+    """
+    defs = dict(schema["$defs"])
+    defs["node"] = {"type": "object", "required": ["kind"], "properties": {"kind": {"enum": list(KINDS)}}}
+    body = {**schema, "$defs": defs} if root is None else {"$ref": f"#/$defs/{root}", "$defs": defs}
+    return jsonschema.Draft202012Validator(body)
+
+
+@functools.lru_cache(maxsize=None)
+def _validator(kind: str | None = None) -> jsonschema.Draft202012Validator:
+    return _shallow(shipped_schema(), kind)
+
+
+def _problems(d: dict[str, Any]) -> list[tuple[list, str, str]]:
+    """(path, message, validator) for every schema problem, node by node, without recursion."""
+    found = [(list(e.absolute_path), e.message, e.validator) for e in _validator().iter_errors(d)]
+    todo = [(d.get("schedule"), ["schedule"])]
+    while todo:
+        node, path = todo.pop()
+        kind = node.get("kind") if isinstance(node, dict) else None
+        if not isinstance(kind, str) or kind not in KINDS:
+            continue  # reported by the parent's check of the child's kind
+        found += [(path + list(e.absolute_path), e.message, e.validator) for e in _validator(kind).iter_errors(node)]
+        for name, p in KINDS[kind].params().items():
+            child = node.get(name)
+            if p.kind == "schedule":
+                todo.append((child, path + [name]))
+            elif p.kind == "schedules" and isinstance(child, list):
+                todo.extend((c, path + [name, i]) for i, c in enumerate(child))
+    return found
 
 
 def shipped_schema() -> dict[str, Any]:
@@ -207,13 +238,16 @@ def _check_schema(d: Any) -> None:
     if isinstance(version, int) and not isinstance(version, bool) and version > FORMAT_VERSION:
         raise ScheduleError(f"spec: version must be <= {FORMAT_VERSION}, got {version} "
                             "(this file was written by a newer schedwidget; upgrade to read it)")
-    errors = sorted(_validator().iter_errors(d), key=lambda e: (-len(e.absolute_path), e.message))
-    useful = [e for e in errors if e.validator not in ("allOf", "if", "$ref")] or errors
-    seen: set[str] = set()
-    useful = [e for e in useful if not (f"{_where(e.absolute_path)}: {e.message}" in seen
-                                        or seen.add(f"{_where(e.absolute_path)}: {e.message}"))]
+    errors = sorted(_problems(d), key=lambda e: (-len(e[0]), e[1]))
+    useful = [e for e in errors if e[2] not in ("allOf", "if", "$ref")] or errors
+    lines_all: list[str] = []
+    for path, message, _ in useful:
+        line = f"{_where(path)}: {message}"
+        if line not in lines_all:
+            lines_all.append(line)
+    useful = lines_all
     if useful:
-        lines = [f"{_where(e.absolute_path)}: {e.message}" for e in useful[:3]]
+        lines = useful[:3]
         more = f" (+{len(useful) - 3} more)" if len(useful) > 3 else ""
         raise ScheduleError("spec: " + "; ".join(lines) + more +
                             " (fix these fields, or rebuild the file with schedwidget.save)")

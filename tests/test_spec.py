@@ -86,3 +86,29 @@ class TestSaveLoad:
 def test_public_names():
     for name in sw.__all__:
         assert hasattr(sw, name)
+
+
+def test_node_by_node_check_agrees_with_the_full_schema():
+    """The loader checks each node against its own kind; it must flag exactly what the shipped schema flags."""
+    import random
+
+    from schedwidget import exp_decay, stages
+
+    full = jsonschema.Draft202012Validator(shipped_schema())
+    base = stages(*[cosine(0.1, steps=10 + i) if i % 2 else warmup(exp_decay(0.1, 0.9, steps=20), 5)
+                    for i in range(8)]).to_spec()
+    rng = random.Random(7)
+    junk = [-1, "x", None, 1.5, [], {"kind": "nope"}, 10**20, True, ["a"], {"kind": "flat"}, {}]
+    for _ in range(400):
+        d = json.loads(json.dumps(base))
+        node = d["schedule"]
+        for _ in range(rng.randint(0, 3)):
+            node = rng.choice(node["parts"]) if "parts" in node else node.get("target", node)
+        node[rng.choice(list(node))] = rng.choice(junk)
+        invalid = any(True for _ in full.iter_errors(d))
+        try:
+            from_spec(d)
+            flagged = False
+        except ScheduleError as exc:
+            flagged = "fix these fields" in str(exc)
+        assert flagged == invalid, d
