@@ -11,11 +11,11 @@ import pytest
 from traitlets import HasTraits, Instance, Int, Unicode
 
 from schedwidget import Schedule, cosine, flat, warmup
-from schedwidget.budget import scale_for_batch
+from schedwidget.budget import Budget, scale_for_batch
 from schedwidget.metrics import demo_path, read_metric
 from schedwidget.plateau import replay_plateau
 from schedwidget.sample import trace
-from schedwidget.widget.replay import ReplayPanel, epoch_base, step_line
+from schedwidget.widget.replay import NUM, ReplayPanel, epoch_base, step_line
 from schedwidget.widget.rescale import RescalePanel
 
 
@@ -86,7 +86,7 @@ class TestReplayPanel:
         np.testing.assert_array_equal(p.drop_marks.y, [ref.rates[e] if e < 90 else ref.next_rate
                                                        for e in ref.drop_epochs])
         assert p.table.value.count("<tr>") == len(ref.drops) + 1
-        assert f"<td>{ref.drop_epochs[0]}</td>" in p.table.value
+        assert f"<td {NUM}>{ref.drop_epochs[0]}</td>" in p.table.value
 
     def test_what_if_strip(self):
         """The what-if strip lists the drop epochs of patience 1..8, each an independent replay."""
@@ -97,8 +97,9 @@ class TestReplayPanel:
         assert len(lines) == 8
         for k, line in enumerate(lines, start=1):
             epochs = replay_plateau(values, 0.1, patience=k, wait_after_drop=2).drop_epochs
-            assert line == f"patience {k}: " + (", ".join(map(str, epochs)) or "none")
-        assert "<td><b>3</b></td>" in p.whatif.value  # the current patience is the bold row
+            words = [str(e) if e < 90 else f"{e} (after the run)" for e in epochs]  # 90 evaluations
+            assert line == f"patience {k}: " + (", ".join(words) or "none")
+        assert f"<td {NUM}><b>3</b></td>" in p.whatif.value  # the current patience is the bold row
 
     def test_path_and_column(self, tmp_path):
         """A CSV path and a column name load that history."""
@@ -178,6 +179,63 @@ class TestReplayPanel:
         assert p.rate_line.get_state()["colors"] == ["#0f766e"]
 
 
+class TestReplayReading:
+    """The replay panel says what its numbers mean: echoes, counterfactual drops, tiny rates, the rate axis."""
+
+    def test_set_from_code_moves_the_slider(self):
+        """A value typed into the box is shown by the slider too."""
+        p = ReplayPanel(epoch_design())
+        p.controls["factor"].text.value = 0.5
+        assert p.controls["factor"].slider.value == 0.5 and p.rule["factor"] == 0.5
+
+    def test_slider_echo_keeps_the_rule(self):
+        """A slider snapped to a neighbour of the typed factor (less than a step away) leaves the rule."""
+        p = ReplayPanel(epoch_design())
+        p.controls["factor"].text.value = 0.1003
+        before = p.replay.drop_epochs
+        p.controls["factor"].slider.value = 0.1002   # the snapped value a browser sent back
+        assert p.rule["factor"] == 0.1003 and p.controls["factor"].text.value == 0.1003
+        assert p.replay.drop_epochs == before
+
+    def test_counterfactual_note_and_indicative_drops(self):
+        """The note says replays are counterfactual; drops after the first are marked indicative."""
+        p = ReplayPanel(epoch_design())
+        assert "counterfactual" in p.note.value and "indicative only" in p.note.value
+        assert len(p.replay.drops) >= 2
+        assert p.table.value.count("indicative") == len(p.replay.drops) - 1
+        assert "faithful if the logged run used this rate up to here" in p.table.value
+
+    def test_tiny_rate_caution_and_what_if_title(self):
+        """Floor 0 and many drops: an amber caution; the what-if strip names the history and the floor."""
+        p = ReplayPanel(epoch_design())
+        p.controls["patience"].text.value = 1
+        assert min(p.replay.rates) < 1e-6 * 0.1  # demo a at patience 1 drops often enough
+        assert "below 1e-06 x the start rate" in html.unescape(p.caution.value)
+        assert "history demo a" in p.whatif.value and "floor 0" in p.whatif.value
+        p.controls["floor"].text.value = 1e-5
+        assert p.caution.value == ""
+        assert "floor 1e-05" in p.whatif.value
+
+    def test_drop_after_the_run_is_not_counted(self):
+        """A drop from epoch >= the history's length is marked and not counted."""
+        f = [0.5, 0.6, 0.6, 0.6]  # invented: no improvement after epoch 1
+        p = ReplayPanel(epoch_design())
+        p.values, p.source_name = np.array(f), "invented"
+        p.controls["patience"].text.value = 1
+        assert p.replay.drop_epochs == (4,)
+        assert "patience 1: 4 (after the run)" in p.what_if_text()
+        assert "0 drops (+1 after the run)" in p.status.value
+
+    def test_rate_axis_toggle(self):
+        """The rate axis starts logarithmic and can be linear; the x axis starts at 0 with whole epochs."""
+        p = ReplayPanel(epoch_design())
+        assert p.rate_axis.value == "log" and p.rate_line.scales["y"] is p.ys_log
+        p.rate_axis.value = "linear"
+        assert p.rate_line.scales["y"] is p.ys_linear and p.y_axis.scale is p.ys_linear
+        assert p.xs.min == 0 and p.xs.max == 90
+        assert p.x_axis.tick_values.tolist() == list(range(0, 91, 10))
+
+
 class TestRescalePanel:
     """RescalePanel overlays the design and its rescaled version and applies it to the designer."""
 
@@ -197,10 +255,12 @@ class TestRescalePanel:
         # Goyal et al. 2017, section 2.1: linear scaling rule, 0.1 per 256 samples
         assert float(np.max(p.new_line.y)) == pytest.approx(peak, rel=1e-12)
         assert new(new.length - 1) == pytest.approx(peak, rel=1e-12)
-        assert f"<td>{peak:.4g}</td>" in p.summary.value
-        warm_samples = 5 * 5000 * 256  # Goyal et al. 2017, section 2.2: gradual warmup over 5 epochs
+        assert f">{peak:.4g}</td>" in p.summary.value
+        # Goyal et al. 2017, section 2.2: gradual warmup over 5 epochs; the new budget is whole epochs
+        spe = 5000 * 256 // (batch * processes)  # the incomplete last global batch is dropped
         join = trace(new, p.result.new_steps).joins[0]
-        assert abs(join * batch * processes - warm_samples) < batch * processes  # within one new update
+        assert join == 5 * spe and p.result.new_steps == 90 * spe and p.result.new_spe == spe
+        assert f"90 epochs x {spe:,} steps per epoch = {90 * spe:,} steps" in html.unescape(p.summary.value)
 
     def test_curves_and_x_axis(self):
         """Old and new curves are drawn in samples or in steps."""
@@ -231,9 +291,10 @@ class TestRescalePanel:
         p = RescalePanel(d)
         p.batch.value = 1024
         p.apply_button.click()
-        assert d.schedule == scale_for_batch(warmup(cosine(0.1, steps=85 * 1150), 5 * 1150), 128, 1024)
-        assert (d.batch, d.steps) == (1024, d.schedule.length)
-        assert d.steps_per_epoch == math.ceil(1150 * 128 / 1024)  # the partial last batch still makes an update
+        steps = Budget(samples=1150 * 128, batch=1024, epochs=90).steps
+        assert d.schedule == scale_for_batch(warmup(cosine(0.1, steps=85 * 1150), 5 * 1150), 128, 1024, steps=steps)
+        assert (d.batch, d.steps) == (1024, d.schedule.length) == (1024, 90 * 143)
+        assert d.steps_per_epoch == math.floor(1150 * 128 / 1024)  # the incomplete last batch is dropped
         assert p.from_batch.value == 1024
         assert "applied: global batch 1,024" in said(p)
 
@@ -263,6 +324,15 @@ class TestRescalePanel:
         p.keep.value = "steps"
         assert float(np.max(p.new_line.y)) == pytest.approx(0.1 * 8)
 
+    def test_unknown_batch_is_asked_for(self):
+        """With no batch on the designer nothing is assumed: the message asks for the current batch."""
+        d = step_design()
+        d.batch = None
+        p = RescalePanel(d)
+        assert p.from_batch.value == 0 and "type it in 'batch now'" in said(p)
+        p.from_batch.value = 128
+        assert p.result is not None and p.result.new_steps == 90 * 143
+
     def test_dom_hook(self):
         """The panel carries its class."""
         assert "sw-rescale" in classes(RescalePanel(step_design()))
@@ -290,3 +360,15 @@ class TestMountedInDesigner:
         rescale.apply_button.click()
         assert d.batch == 1024 and d.error == ""
         assert float(np.max(rescale.old_line.y)) == pytest.approx(0.8)
+
+    def test_only_the_shown_tab_holds_its_figure(self):
+        """A figure in a hidden tab is taken out (bqplot would lay it out at a negative size)."""
+        from schedwidget.widget.designer import ScheduleDesigner
+
+        d = ScheduleDesigner()
+        replay, rescale = mounted(d, "Replay"), mounted(d, "Rescale")
+        assert rescale.figure_box.children == (rescale.figure,) and replay.figure_box.children == ()
+        mounted(d, "Replay")
+        assert replay.figure_box.children == (replay.figure,) and rescale.figure_box.children == ()
+        d.tabs.selected_index = 0
+        assert replay.figure_box.children == () == rescale.figure_box.children

@@ -144,7 +144,7 @@ class TestReadoutPanel:
         html = d.readout.text.value
         assert "0.2 at step 5,750 (epoch 5.00)" in html
         assert f.sentence in html
-        assert "start of stage 2" in html and "held after the budget" in html
+        assert "join 1: first tick after" in html and "held after the budget" in html
         assert "sw-readout" in d.readout.text._dom_classes
 
     def test_cautions_in_amber(self):

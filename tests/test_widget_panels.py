@@ -112,7 +112,8 @@ class TestComparePanel:
         d.compare.name.value = "warmup + cosine"
         d.compare.pin_button.click()
         g = d.canvas.ghosts[0]
-        assert g.visible and g.labels == ["warmup + cosine"] and g.display_legend and d.canvas.curve.display_legend
+        assert g.visible and g.labels == ["warmup + cosine"]
+        assert [n.text for n in d.canvas.names[:2] if n.visible] == [["current"], ["warmup + cosine"]]  # names in the margin
         assert g.colors[0] in ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")
         step = drops(0.1, at=(30 * 1150, 60 * 1150, 80 * 1150), factor=0.1, steps=103_500)
         d.propose(step)
@@ -121,7 +122,7 @@ class TestComparePanel:
         t = np.arange(103_500)
         diff = np.abs(step(t) - demo_design()(t))
         # largest difference read on a grid plus every jump: it is the true maximum here (at the first jump)
-        assert f"{diff.max():.4g} at {int(np.argmax(diff)):,}" in table
+        assert f"{diff.max():.4g} at step {int(np.argmax(diff)):,}" in table
         area = facts(demo_design(), 103_500, exact_up_to=2**16).area / facts(step, 103_500, exact_up_to=2**16).area
         assert f"{area:.4g}" in table
         d.compare.choice.value = "warmup + cosine"
@@ -265,3 +266,25 @@ class TestOtherPanels:
         d.tabs.selected_index = 3
         (note,) = d.tabs.children[3].children
         assert note.value == "<i>The not_a_panel panel is not part of this installation.</i>"
+
+
+class TestStageWords:
+    """Stage headers use the index that designer.control takes; unknown budget facts are blank."""
+
+    def test_stage_numbers_match_control(self):
+        """The first stage after the warmup is labelled 'stage 0', as in designer.control(0, ...)."""
+        d = ScheduleDesigner()
+        titles = [box.children[0].children[0].value for box in d.stages.list.children]
+        assert titles[0].startswith("warmup") and titles[1].startswith("stage 0: cosine")
+        assert d.control(0, "floor").owner == "cosine"
+
+    def test_unknown_steps_per_epoch_and_batch_are_blank(self):
+        """An epoch design with no steps per epoch or batch shows blank boxes, and blank stays unknown."""
+        d = ScheduleDesigner(cosine(0.1, steps=90), unit="epoch")
+        assert d.stages.spe.value == "" and d.stages.batch.value == ""
+        d.stages.batch.value = "256"
+        assert d.batch == 256
+        d.stages.batch.value = ""
+        assert d.batch is None
+        d.stages.spe.value = "abc"
+        assert "designer: steps/epoch must be a whole number >= 1, or blank for unknown, got 'abc'" in d.error

@@ -19,7 +19,7 @@ import numpy as np
 with warnings.catch_warnings():
     # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
-    from bqplot import Axis, Figure, LinearScale, Lines, LogScale
+    from bqplot import Axis, Figure, Label, LinearScale, Lines, LogScale
     from bqplot.interacts import IndexSelector
 
 from ..sample import Trace, trace
@@ -81,13 +81,17 @@ class CurvePanel(W.VBox):
         self.joins = Lines(x=np.zeros((1, 2)), y=np.array([[0.0, 1.0]]),
                            scales={"x": self.xs, "y": self.unit_scale}, colors=[JOIN], line_style="dotted",
                            stroke_width=1, visible=False, labels=["stage joins"])
-        self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s")
+        # names at the right end of each line, in the figure's right margin (a legend would sit on the curves)
+        self.names = [Label(x=[0.0], y=[0.0], text=[""], scales={"x": self.xs, "y": self.parking}, colors=[c],
+                            apply_clip=False, x_offset=6, y_offset=0, align="start", default_size=11,
+                            visible=False) for c in (CURVE, *GHOSTS)]
+        self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s", num_ticks=6)
         self.y_axis = Axis(scale=self.ys_linear, side="left", label="rate", tick_format=".2~g")
         self.hover = IndexSelector(scale=self.xs, marks=[self.curve], color="#94a3b8", line_width=1)
-        self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve], axes=[self.x_axis, self.y_axis],
+        self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve, *self.names],
+                             axes=[self.x_axis, self.y_axis],
                              interaction=self.hover, animation_duration=0, padding_y=0.05,
-                             legend_location="top-right", legend_style={"stroke-width": 0},
-                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 96},
+                             fig_margin={"top": 16, "bottom": 48, "left": 72, "right": 112},
                              layout=W.Layout(width="100%", height="320px"))
         self.figure.add_class("sw-curve")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
@@ -130,6 +134,9 @@ class CurvePanel(W.VBox):
         a, b = math.floor(math.log10(max(lo, 1e-300))), math.ceil(math.log10(max(hi, 1e-300)))
         every = max(1, math.ceil((b - a + 1) / 8))
         ticks = 10.0 ** np.arange(a, b + 1, every)
+        # a little room below the lowest tick, so its label does not touch the x axis's first label
+        with self.ys_log.hold_sync():
+            self.ys_log.min, self.ys_log.max = float(10.0 ** (a - 0.3)), float(10.0 ** (b + 0.05))
         if self.y_axis.tick_values is None or not np.array_equal(self.y_axis.tick_values, ticks):
             self.y_axis.tick_values = ticks
 
@@ -156,6 +163,10 @@ class CurvePanel(W.VBox):
             self.joins.visible = bool(joins.size)
         if self.x_axis.label != clock.label:
             self.x_axis.label = clock.label
+        fmt = ",.4~g" if clock.label == "epoch" else "~s"  # no SI prefixes on an epoch axis
+        if self.x_axis.tick_format != fmt:
+            self.x_axis.tick_format = fmt
+        self._legend()
         return tr
 
     def ghost(self, i: int, label: str | None, s: Schedule | None = None, steps: int | None = None,
@@ -177,7 +188,7 @@ class CurvePanel(W.VBox):
             m.x = tr.x * f
             m.y = self._y(tr.y)
             m.labels = [label]
-            m.visible = m.display_legend = True
+            m.visible = True
             if m.scales.get("y") is not self.rate_scale:
                 m.scales = {"x": self.xs, "y": self.rate_scale}
         self._legend()
@@ -186,10 +197,45 @@ class CurvePanel(W.VBox):
         self._log_ticks()
 
     def _legend(self) -> None:
-        """The legend names the pins (and then the current curve); with no pins there is none."""
+        """Name each line at its right end, in the margin (only when there are pins); names that would
+        overlap are pushed apart vertically."""
+        lines = [self.curve, *self.ghosts]
         pinned = any(g.visible for g in self.ghosts)
-        if self.curve.display_legend != pinned:
-            self.curve.display_legend = pinned
+        ends = []
+        for i, (m, name) in enumerate(zip(lines, self.names)):
+            shown = pinned and (m is self.curve or m.visible) and np.asarray(m.y).size > 0
+            if not shown:
+                if name.visible:
+                    name.visible = False
+                continue
+            ends.append((self._height(float(np.asarray(m.y)[-1])), i))
+        placed: list[float] = []
+        for h, i in sorted(ends):
+            px = h * 250.0  # about the plot's height in pixels
+            while any(abs(px - q) < 13 for q in placed):
+                px += 13
+            placed.append(px)
+            m, name = lines[i], self.names[i]
+            x, y = np.asarray(m.x), np.asarray(m.y)
+            with name.hold_sync():
+                name.x, name.y = np.array([float(x[-1])]), np.array([float(y[-1])])
+                name.text = [m.labels[0] if m.labels else ""]
+                name.y_offset = -int(round(px - h * 250.0))
+                if name.scales.get("y") is not self.rate_scale:
+                    name.scales = {"x": self.xs, "y": self.rate_scale}
+                name.visible = True
+
+    def _height(self, y: float) -> float:
+        """Where ``y`` sits on the rate axis, 0 (bottom) .. 1 (top), from the lines shown."""
+        shown = [np.asarray(m.y) for m in (self.curve, *self.ghosts) if (m is self.curve or m.visible)
+                 and np.asarray(m.y).size]
+        lo = min(float(v.min()) for v in shown)
+        hi = max(float(v.max()) for v in shown)
+        if self.rate_axis.value == "log":
+            lo, hi, y = (math.log10(max(v, 1e-300)) for v in (lo, hi, y))
+        else:
+            lo = min(lo, 0.0)
+        return 0.0 if hi <= lo else (y - lo) / (hi - lo)
 
     def _fit_x(self) -> None:
         """The x axis spans tick 0 to the last tick of the longest curve shown (no padding, no negative ticks)."""
@@ -209,6 +255,9 @@ class CurvePanel(W.VBox):
         for m in (self.curve, *[g for g in self.ghosts if g.visible]):
             if m.scales.get("y") is not scale:
                 m.scales = {"x": self.xs, "y": scale}
+        for name in self.names:
+            if name.visible and name.scales.get("y") is not scale:
+                name.scales = {"x": self.xs, "y": scale}
         if self.y_axis.scale is not scale:
             with self.y_axis.hold_sync():
                 self.y_axis.scale = scale

@@ -59,6 +59,22 @@ def largest_difference(a: Schedule, b: Schedule, steps: int) -> tuple[float, int
     return float(d[i]), int(t[i])
 
 
+def number(x: float) -> str:
+    """The one number format of the Compare table: 4 significant digits, thousands separated.
+
+    >>> number(0.1), number(4975.04), number(1.0)
+    ('0.1', '4,975', '1')
+    """
+    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.4g}"
+
+
+def at(tick: int | None, unit: str) -> str:
+    """A tick in words: ``3,450 steps`` on the step clock, ``epoch 13`` on the epoch clock."""
+    if tick is None:
+        return "—"
+    return f"epoch {tick:,}" if unit == "epoch" else f"step {tick:,}"
+
+
 class ComparePanel(W.VBox):
     """Pin row (``pin_row``: name box ``sw-pin-name`` and button ``sw-pin``, laid out under the curve),
     and this panel: the side-by-side table, restore and remove."""
@@ -164,21 +180,22 @@ class ComparePanel(W.VBox):
         cols: list[tuple[str, list[str]]] = []
 
         def column(name: str, f: Facts, diff: str, ratio: str) -> tuple[str, list[str]]:
-            return name, [f"{f.peak:.4g}", f"{f.peak_at:,}", f"{f.final:.4g}", f"{f.area:,.5g}",
-                          "—" if f.under_10 is None else f"{f.under_10:,}", f"{f.steps:,} {f.unit}s", diff, ratio]
+            return name, [number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
+                          at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s", diff, ratio]
 
         if cur is not None:
-            cols.append(column("current", cur, "—", "1"))
+            cols.append(column("current", cur, "—", number(1.0)))
         for p in self.pins:
             f = self._facts_of(p)
             if p.unit != d.unit:
                 diff, ratio = f"n/a (pinned in {p.unit}s)", "n/a"
             else:
                 v, t = largest_difference(p.schedule, d.schedule, max(p.steps, d.steps))
-                diff = f"{v:.4g} at {t:,}"
-                ratio = f"{f.area / cur.area:.4g}" if cur is not None and cur.area > 0 else "—"
+                diff = f"{number(v)} at {at(t, d.unit)}"
+                ratio = number(f.area / cur.area) if cur is not None and cur.area > 0 else "—"
             cols.append(column(p.name, f, diff, ratio))
-        rows = ["peak", "peak at", "final", "area", "under 10 % from", "budget",
+        rows = ["peak rate", "peak at", "final rate", "area (sum of per-tick rates)", "under 10 % of the peak from",
+                "budget",
                 "largest |rate difference| vs current", "area / current area"]
         head = f"<tr><th {left}></th>" + "".join(f"<th {cell}>{e(n)}</th>" for n, _ in cols) + "</tr>"
         body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {cell}>{e(v[i])}</td>" for _, v in cols)

@@ -9,6 +9,14 @@ Sliders span the declared soft bounds (tick sliders: up to the budget) and
 clamp what they show; the text box takes any value, and the core's hard
 bounds decide whether it is valid.  Writing a value into a control from code
 never reports it back as an edit.
+
+A slider's grid may not hold the exact value (0.05 on a log slider, any value
+typed in the box); the browser then snaps the slider to the nearest grid point
+and sends that back.  Such an echo, less than half a slider step away from the
+value the kernel last showed, is ignored: the exact text box stays authoritative.  Linear
+sliders use round steps (1, 2 or 5 times a power of ten) so common values lie
+on the grid; log sliders hide their readout (the exact box is beside them, and
+a value of 0 would read as the slider's lowest end).
 """
 
 from __future__ import annotations
@@ -23,8 +31,8 @@ from ..schedule import Param, ScheduleError, as_whole, complain
 __all__ = ["ParamControl", "parse_ticklist", "parse_points", "format_points"]
 
 LABEL = {"description_width": "6.5em"}
-SLIDER_LAYOUT = {"width": "23em"}
-BOX_LAYOUT = {"width": "7.5em"}
+SLIDER_LAYOUT = {"width": "21em", "flex": "0 0 auto"}
+BOX_LAYOUT = {"width": "7em", "flex": "0 0 auto"}
 RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range starts at 0
 
 
@@ -77,6 +85,23 @@ def format_points(points) -> str:
     return ", ".join(f"{t}: {y!r}" for t, y in points)
 
 
+def round_step(lo: float, hi: float, positions: int = 200) -> float:
+    """A round slider step (1, 2 or 5 x 10^k) giving at least ``positions`` steps over ``lo..hi``.
+
+    >>> round_step(0.05, 0.9), round_step(0.0, 0.05)
+    (0.002, 0.0002)
+    """
+    raw = (hi - lo) / positions
+    if not raw > 0:
+        return 1.0
+    k = math.floor(math.log10(raw))
+    for m in (5, 2, 1):
+        step = m * 10.0 ** k
+        if step <= raw * (1 + 1e-9):
+            return float(f"{step:.12g}")
+    return float(f"{10.0 ** k:.12g}")  # pragma: no cover - m=1 always fits
+
+
 def _log_range(p: Param) -> tuple[float, float]:
     lo, hi = p.soft if p.soft else (1e-6, 1.0)
     lo = lo if lo > 0 else RATE_FLOOR
@@ -89,7 +114,8 @@ class ParamControl:
     ``on_commit(name, value)`` is called when the person changes the value;
     ``show(value, budget)`` writes a value from the design without calling it;
     ``guard`` wraps the change handler (the designer passes one that turns any
-    exception into its error message).
+    exception into its error message); ``label`` is the words shown (default:
+    the parameter's name) in a column ``label_width`` wide.
 
     Examples
     --------
@@ -101,9 +127,13 @@ class ParamControl:
 
     def __init__(self, owner: str, name: str, p: Param, value: Any, budget: int,
                  on_commit: Callable[[str, Any], None],
-                 guard: Callable[[Callable], Callable] = lambda fn: fn) -> None:
+                 guard: Callable[[Callable], Callable] = lambda fn: fn, label: str | None = None,
+                 label_width: str | None = None) -> None:
         self.owner, self.name, self.p, self.on_commit = owner, name, p, on_commit
+        words = label or name
+        style = {"description_width": label_width} if label_width else LABEL
         self._quiet = 0
+        self._shown: float | None = None  # the value the kernel last put into the slider
         self.slider: W.Widget | None = None
         self.text: W.Widget | None = None
         self.none: W.Checkbox | None = None
@@ -111,30 +141,30 @@ class ParamControl:
         k = p.kind
         if k == "rate" or (k == "ratio" and p.log):
             lo, hi = _log_range(p)
-            self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=name, tooltip=tip,
-                                           readout_format=".3g", style=LABEL, layout=SLIDER_LAYOUT)
+            self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
+                                           readout=False, style=style, layout=SLIDER_LAYOUT)
             if k == "rate":
                 self.slider.add_class("sw-rate")
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
         elif k == "ratio":
             lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
-            self.slider = W.FloatSlider(min=lo, max=hi, step=(hi - lo) / 1000, description=name, tooltip=tip,
-                                        readout_format=".4g", style=LABEL, layout=SLIDER_LAYOUT)
+            self.slider = W.FloatSlider(min=lo, max=hi, step=round_step(lo, hi), description=words, tooltip=tip,
+                                        readout_format=".4g", style=style, layout=SLIDER_LAYOUT)
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
         elif k in ("ticks", "count"):
-            self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=name,
-                                      tooltip=tip, style=LABEL, layout=SLIDER_LAYOUT)
+            self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=words,
+                                      tooltip=tip, style=style, layout=SLIDER_LAYOUT)
             self.text = W.IntText(tooltip=tip, layout=BOX_LAYOUT)
             if p.optional:
                 self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
-                                       layout={"width": "7.5em"})
-                self.slider.layout.width = "17em"
+                                       layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
+                self.slider.layout.width = "14.5em"
         elif k == "choice":
-            self.text = W.Dropdown(options=list(p.choices), description=name, tooltip=tip, style=LABEL)
+            self.text = W.Dropdown(options=list(p.choices), description=words, tooltip=tip, style=style)
         elif k == "flag":
-            self.text = W.Checkbox(description=name, tooltip=tip, indent=False)
+            self.text = W.Checkbox(description=words, tooltip=tip, indent=False)
         elif k in ("ticklist", "points"):
-            self.text = W.Text(description=name, tooltip=tip, continuous_update=False, style=LABEL,
+            self.text = W.Text(description=words, tooltip=tip, continuous_update=False, style=style,
                                layout={"width": "23em"})
         else:
             raise complain("designer", f"{owner}.{name}", k, "a parameter kind with a control")
@@ -190,20 +220,52 @@ class ParamControl:
                 put(self.text, value)
             if self.slider is not None:
                 lo, hi = self._slider_bounds()
-                put(self.slider, min(max(value, lo), hi))
+                shown = min(max(value, lo), hi)
+                put(self.slider, shown)
+                self._shown = shown
         finally:
             self._quiet -= 1
+
+    def is_echo(self, value: Any) -> bool:
+        """Whether a slider value is the browser snapping the shown value to its grid (under half a step away)."""
+        s, ref = self.slider, self._shown
+        if ref is None or not isinstance(s, (W.FloatSlider, W.FloatLogSlider)):
+            return False
+        if isinstance(s, W.FloatLogSlider):
+            if not (value > 0 and ref > 0):
+                return False
+            gap = abs(math.log(value, s.base) - math.log(ref, s.base))
+        else:
+            gap = abs(value - ref)
+        # the browser snaps to the nearest grid point, so an echo is at most half a step away; a drag or a
+        # key press from the slider's position moves a whole step, so it lands at least half a step away
+        return gap < 0.5 * s.step * (1 - 1e-9)
+
+    def _slider_value(self, value: float) -> float:
+        """A moved slider's value, rounded to what its grid can mean (no 0.10000000000000002)."""
+        s = self.slider
+        if isinstance(s, W.FloatLogSlider):
+            return float(f"{value:.3g}")
+        if isinstance(s, W.FloatSlider):
+            digits = max(0, -math.floor(math.log10(s.step))) + 1
+            return round(value, digits)
+        return value
 
     def _edited(self, change: dict) -> None:
         if self._quiet:
             return
         w = change["owner"]
+        if w is self.slider and self.is_echo(change["new"]):
+            self._shown = change["new"]  # later moves are whole steps from here
+            return
         if w is self.none:
             value = None if change["new"] else self.slider.value
         elif self.p.kind == "ticklist":
             value = parse_ticklist(self.owner, self.name, change["new"])
         elif self.p.kind == "points":
             value = parse_points(self.owner, self.name, change["new"])
+        elif w is self.slider:
+            value = self._slider_value(change["new"])
         else:
             value = change["new"]
         self.on_commit(self.name, value)

@@ -137,8 +137,9 @@ class ScheduleDesigner(W.VBox):
         stage_list = self.stages.list
         stage_list.layout = W.Layout(max_height="560px", overflow="auto")
         left = W.VBox([W.HTML("<b>Stages</b>"), self.stages, self.error_line],
-                      layout={"width": "44%", "padding": "0 8px 0 0"})
-        right = W.VBox([self.canvas, self.compare.pin_row, self.readout], layout={"width": "56%"})
+                      layout={"width": "430px", "flex": "0 0 auto", "padding": "0 8px 0 0"})
+        right = W.VBox([self.canvas, self.compare.pin_row, self.readout],
+                       layout={"flex": "1 1 auto", "min_width": "0", "width": "auto"})
         # Replay and Rescale start when their tab is first opened: a bqplot figure laid out in a hidden
         # tab gets a negative size and bqplot logs errors for it; it also keeps the designer quick to open.
         self.later = {2: ("replay", "ReplayPanel"), 3: ("rescale", "RescalePanel")}
@@ -349,6 +350,11 @@ class ScheduleDesigner(W.VBox):
         if i in self.later:
             module, name = self.later.pop(i)
             self.tabs.children[i].children = (self._mount(module, name),)
+        # a figure in a hidden tab would be laid out at a negative size: only the shown tab keeps its figure
+        for j, tab in enumerate(self.tabs.children):
+            for panel in tab.children:
+                if hasattr(panel, "show_figure"):
+                    panel.show_figure(j == i)
         if self.export.stale and self.export.visible():
             self.export.refresh()
 

@@ -5,6 +5,12 @@ read the rate per epoch over the metric (own axis), the drops (markers and a
 table) and a "what if" strip with the drop epochs for patience 1..8.  The
 figure and its marks are built once; every change assigns new arrays.
 Nothing raises into the notebook: problems go to the message line.
+
+A replay is counterfactual: the logged metrics were produced by the rates the
+run really used.  The first drop is faithful only if the logged run used the
+same rate up to it; every later drop reads metrics that the replayed rates
+never produced, so it is indicative only (the note under the figure and the
+drops table say so).
 """
 
 from __future__ import annotations
@@ -19,7 +25,7 @@ import numpy as np
 with warnings.catch_warnings():
     # bqplot 0.13 declares traits the pre-4.1 way; traitlets says so on import. Not ours.
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
-    from bqplot import Axis, Figure, LinearScale, Lines, Scatter
+    from bqplot import Axis, Figure, LinearScale, Lines, LogScale, Scatter
 
 from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
@@ -37,6 +43,29 @@ METRIC = "#9ca3af"      # grey: the metric, on its own axis
 AMBER = "#b45309"
 WHAT_IF_PATIENCE = tuple(range(1, 9))
 RULE_DEFAULTS = {name: getattr(PlateauRule(), name) for name in PlateauRule.params()}
+LABELS = {"goal": "goal", "relative": "relative tolerance", "factor": "factor", "patience": "patience",
+          "tolerance": "tolerance", "wait_after_drop": "wait after drop", "floor": "floor"}
+TINY = 1e-6  # a replayed rate below this times the start rate gets an amber caution
+COUNTERFACTUAL = ("A replay is counterfactual. The first drop is faithful only if the logged run used the same "
+                  "rate up to it; later drops read metrics that the replayed rates never produced: indicative only.")
+NUM = 'style="text-align:right;padding:1px 10px"'
+TXT = 'style="text-align:left;padding:1px 10px"'
+
+
+def nice_ticks(n: int, most: int = 10) -> list[int]:
+    """Whole-number ticks 0..n at a round spacing (1, 2 or 5 x 10^k), at most about ``most`` of them.
+
+    >>> nice_ticks(90)
+    [0, 10, 20, 30, 40, 50, 60, 70, 80, 90]
+    """
+    n = max(int(n), 1)
+    k = 0
+    while True:
+        for m in (1, 2, 5):
+            every = m * 10 ** k
+            if n // every + 1 <= most:
+                return list(range(0, n + 1, every))
+        k += 1
 
 
 def step_line(rates: np.ndarray, next_rate: float) -> tuple[np.ndarray, np.ndarray]:
@@ -110,7 +139,8 @@ class ReplayPanel(W.VBox):
         self.path.observe(g(lambda c: self._source("path")), names="value")
         self.column.observe(g(lambda c: self._source(self._active)), names="value")
         # ------------------------------------------------------------ rule
-        self.controls = {name: ParamControl("replay_plateau", name, p, RULE_DEFAULTS[name], 100, self._set, guard=g)
+        self.controls = {name: ParamControl("replay_plateau", name, p, RULE_DEFAULTS[name], 100, self._set, guard=g,
+                                            label=LABELS.get(name), label_width="9em")
                          for name, p in PlateauRule.params().items()}
         self.follow = W.Checkbox(value=False, indent=False, description="follow the design (its warmup, then "
                                  "the rule multiplies it)", tooltip="use the designer's schedule as the base",
@@ -122,9 +152,15 @@ class ReplayPanel(W.VBox):
         self.start.observe(g(lambda c: self.refresh()), names="value")
         designer.observe(g(self._design_changed), names=["schedule", "unit", "steps_per_epoch"])
         # ---------------------------------------------------------- figure
-        self.xs = LinearScale(min=0.0)
-        self.ys = LinearScale(min=0.0)
+        self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
+        self.ys_linear = LinearScale(min=0.0)
+        self.ys_log = LogScale()
+        self.ys = self.ys_log
         self.ms = LinearScale()
+        self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="log", description="rate axis",
+                                         tooltip="linear or logarithmic rate axis",
+                                         style={"button_width": "5em", "description_width": "5em"})
+        self.rate_axis.observe(g(self._rate_axis_changed), names="value")
         self.rate_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
                                stroke_width=2, labels=["rate"])
         self.metric_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ms},
@@ -132,15 +168,22 @@ class ReplayPanel(W.VBox):
                                  labels=["metric"])
         self.drop_marks = Scatter(x=np.zeros(0), y=np.zeros(0), scales={"x": self.xs, "y": self.ys},
                                   colors=[CURVE], marker="triangle-down", default_size=48, visible=False)
-        axes = [Axis(scale=self.xs, label="epoch (metric read at each epoch's end)", tick_format="d", num_ticks=8),
-                Axis(scale=self.ys, side="left", label="rate", tick_format=".2~g", color=CURVE),
-                Axis(scale=self.ms, side="right", label="metric", tick_format=".3~g",
+        self.x_axis = Axis(scale=self.xs, label="epoch (metric read at each epoch's end)", tick_format="d",
+                           tick_values=np.array(nice_ticks(90)))
+        self.y_axis = Axis(scale=self.ys, side="left", label="rate", tick_format=".1e", color=CURVE)
+        axes = [self.x_axis, self.y_axis,
+                Axis(scale=self.ms, side="right", label="metric", tick_format=".3~g", label_offset="4em",
                      color=METRIC, grid_lines="none")]
         self.figure = Figure(marks=[self.metric_line, self.rate_line, self.drop_marks], axes=axes,
                              animation_duration=0, padding_y=0.05,
-                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 64},
+                             fig_margin={"top": 16, "bottom": 44, "left": 72, "right": 84},
                              layout=W.Layout(width="100%", height="300px"))
         self.figure.add_class("sw-replay-figure")
+        self.figure_box = W.Box([self.figure], layout={"min_height": "300px", "width": "100%"})
+        self.note = W.HTML(f"<small><i>{html.escape(COUNTERFACTUAL)}</i></small>")
+        self.note.add_class("sw-replay-note")
+        self.caution = W.HTML("", style={"text_color": AMBER})
+        self.caution.add_class("sw-replay-caution")
         self.table = W.HTML("")
         self.table.add_class("sw-replay-drops")
         self.whatif = W.HTML("")
@@ -154,8 +197,9 @@ class ReplayPanel(W.VBox):
                      W.HBox([self.start, self.follow])]
         super().__init__([W.HBox([self.demo, self.upload]), W.HBox([self.path, self.column]), self.message,
                           self.status,
-                          W.HBox([W.VBox(rule_rows, layout={"width": "44%"}),
-                                  W.VBox([self.figure], layout={"width": "56%"})]),
+                          W.HBox([W.VBox(rule_rows, layout={"flex": "0 0 auto", "width": "36em"}),
+                                  W.VBox([self.figure_box, self.rate_axis, self.note, self.caution],
+                                         layout={"flex": "1 1 auto", "min_width": "20em"})]),
                           self.table, self.whatif])
         self.add_class("sw-replay")
         g(self._source)("demo")
@@ -182,7 +226,25 @@ class ReplayPanel(W.VBox):
 
     def _set(self, name: str, value: Any) -> None:
         self.rule[name] = value
+        self.controls[name].show(value)  # the box and the slider agree, however the value was set
         self.refresh()
+
+    def show_figure(self, on: bool) -> None:
+        """Attach the figure (``on``) or take it out while the panel's tab is hidden (no layout at size 0)."""
+        children = (self.figure,) if on else ()
+        if self.figure_box.children != children:
+            self.figure_box.children = children
+
+    def _rate_axis_changed(self, change: dict) -> None:
+        log = change["new"] == "log"
+        self.ys = self.ys_log if log else self.ys_linear
+        for m in (self.rate_line, self.drop_marks):
+            m.scales = {"x": self.xs, "y": self.ys}
+        with self.y_axis.hold_sync():
+            self.y_axis.scale = self.ys
+            self.y_axis.tick_format = ".1e" if log else ".2~g"
+        if self.replay is not None:
+            self._draw(self.replay)
 
     def _follow_changed(self, change: dict) -> None:
         self.start.disabled = bool(change["new"])
@@ -238,26 +300,55 @@ class ReplayPanel(W.VBox):
         if self.whatif.value != strip:
             self.whatif.value = strip
         n = len(self.values)
+        inside = sum(1 for d in r.drops if d.epoch < n)
+        after = " (+1 after the run)" if inside < len(r.drops) else ""
         words = html.escape(f"{self.source_name}: {n} evaluations, best {r.best:.6g} at epoch {r.best_at}, "
-                            f"{len(r.drops)} drops, final rate {r.next_rate:.3g}")
+                            f"{inside} drops{after}, final rate {r.next_rate:.3g}")
         if self.status.value != words:
             self.status.value = words
+        caution = self._caution(r, start)
+        if self.caution.value != caution:
+            self.caution.value = caution
         self._say("")
+
+    def _caution(self, r: PlateauReplay, start: float | None) -> str:
+        """Amber words when the replayed rate falls below TINY x the start rate (a floor of 0 lets it)."""
+        ref = start if start is not None else float(np.max(r.rates, initial=0.0))
+        low = float(np.min(np.append(r.rates, r.next_rate)))
+        if not ref > 0 or low >= TINY * ref:
+            return ""
+        return html.escape(f"Caution: the replayed rate falls to {low:.3g}, below {TINY:g} x the start rate "
+                           f"{ref:.3g} (floor {self.rule['floor']:g}); such a rate no longer trains. "
+                           "Set a floor, or fewer drops.")
 
     def rate_of(self, r: PlateauReplay, epoch: int) -> float:
         """The combined rate used in ``epoch`` (``next_rate`` just past the history)."""
         return float(r.rates[epoch]) if epoch < len(r.rates) else r.next_rate
 
+    def _drawn(self, y: np.ndarray) -> np.ndarray:
+        """Rates as drawn: on the log axis a rate of 0 sits a decade below the smallest positive one."""
+        if self.rate_axis.value != "log":
+            return y
+        positive = y[y > 0]
+        bottom = float(positive.min()) / 10 if positive.size else 1e-8
+        return np.where(y > 0, y, bottom)
+
     def _draw(self, r: PlateauReplay) -> None:
         x, y = step_line(r.rates, r.next_rate)
+        n = len(r.rates)
         with self.rate_line.hold_sync():
-            self.rate_line.x, self.rate_line.y = x, y
+            self.rate_line.x, self.rate_line.y = x, self._drawn(y)
+        if self.xs.max != n:
+            self.xs.max = float(n)
+        ticks = np.array(nice_ticks(n))
+        if not np.array_equal(self.x_axis.tick_values, ticks):
+            self.x_axis.tick_values = ticks
         values = np.asarray(self.values, dtype=float)
         with self.metric_line.hold_sync():
             self.metric_line.x = np.arange(1, len(values) + 1, dtype=float)
             self.metric_line.y = values
         dx = np.array([d.epoch for d in r.drops], dtype=float)
-        dy = np.array([self.rate_of(r, d.epoch) for d in r.drops], dtype=float)
+        dy = self._drawn(np.array([self.rate_of(r, d.epoch) for d in r.drops], dtype=float))
         with self.drop_marks.hold_sync():
             self.drop_marks.x, self.drop_marks.y = dx, dy
             self.drop_marks.visible = bool(dx.size)
@@ -265,26 +356,51 @@ class ReplayPanel(W.VBox):
     def _drops_html(self, r: PlateauReplay) -> str:
         if not r.drops:
             return "<p><b>No drops</b>: the rule never ran out of patience on this history.</p>"
-        head = ("<tr><th>from epoch</th><th>rate before</th><th>rate after</th><th>best so far</th>"
-                "<th>best at epoch</th><th>evaluations without improvement</th></tr>")
-        rows = "".join(
-            f"<tr><td>{d.epoch}</td><td>{self.rate_of(r, d.epoch - 1):.4g}</td><td>{self.rate_of(r, d.epoch):.4g}</td>"
-            f"<td>{d.best:.6g}</td><td>{d.best_at}</td><td>{d.stale}</td></tr>" for d in r.drops)
-        return f"<p><b>Drops</b></p><table>{head}{rows}</table>"
+        n = len(r.rates)
+        names = ("from epoch", "rate before", "rate after", "best so far", "best at epoch",
+                 "evaluations without improvement")
+        head = "<tr>" + "".join(f"<th {NUM}>{h}</th>" for h in names) + f"<th {TXT}>reading</th></tr>"
+        rows = []
+        for i, d in enumerate(r.drops):
+            reading = ("faithful if the logged run used this rate up to here" if i == 0 else "indicative")
+            if d.epoch >= n:
+                reading += " (after the run)"
+            cells = (d.epoch, f"{self.rate_of(r, d.epoch - 1):.4g}", f"{self.rate_of(r, d.epoch):.4g}",
+                     f"{d.best:.6g}", d.best_at, d.stale)
+            rows.append("<tr>" + "".join(f"<td {NUM}>{c}</td>" for c in cells) + f"<td {TXT}>{reading}</td></tr>")
+        return f"<p><b>Drops</b></p><table>{head}{''.join(rows)}</table>"
+
+    def _epochs_words(self, epochs: list[int], most: int = 12) -> tuple[str, int]:
+        """The drop epochs as text (one from epoch >= the history's length marked "(after the run)") and
+        how many apply inside the run."""
+        n = len(self.values) if self.values is not None else 0
+        inside = [e for e in epochs if e < n]
+        words = [str(e) for e in inside[:most]]
+        if len(inside) > most:
+            words.append(f"... (+{len(inside) - most})")
+        words += [f"{e} (after the run)" for e in epochs if e >= n]
+        return ", ".join(words), len(inside)
+
+    def what_if_title(self) -> str:
+        """Which history and floor the what-if strip used."""
+        return (f"history {self.source_name}, factor {self.rule['factor']:g}, floor {self.rule['floor']:g}, "
+                f"wait after drop {self.rule['wait_after_drop']}")
 
     def _what_if_html(self, what_if: dict[int, PlateauReplay]) -> str:
         rows = []
         for p, r in what_if.items():
-            epochs = list(r.drop_epochs)
-            shown = ", ".join(str(e) for e in epochs[:12]) + (f", ... (+{len(epochs) - 12})" if len(epochs) > 12 else "")
+            shown, count = self._epochs_words(list(r.drop_epochs))
             bold = p == self.rule["patience"]  # the row of the current rule
-            cells = "".join(f"<td><b>{c}</b></td>" if bold else f"<td>{c}</td>"
-                            for c in (p, shown or "none", len(epochs), f"{r.next_rate:.3g}"))
-            rows.append(f"<tr>{cells}</tr>")
-        head = "<tr><th>patience</th><th>drop epochs</th><th>drops</th><th>final rate</th></tr>"
-        return f"<p><b>What if</b>: the same history and rule at patience 1..8</p><table>{head}{''.join(rows)}</table>"
+            cells = [(p, NUM), (shown or "none", TXT), (count, NUM), (f"{r.next_rate:.3g}", NUM)]
+            rows.append("<tr>" + "".join(f"<td {a}><b>{c}</b></td>" if bold else f"<td {a}>{c}</td>"
+                                         for c, a in cells) + "</tr>")
+        head = (f"<tr><th {NUM}>patience</th><th {TXT}>drop epochs</th><th {NUM}>drops in the run</th>"
+                f"<th {NUM}>final rate</th></tr>")
+        title = html.escape(self.what_if_title())
+        return (f"<p><b>What if</b>: the same history and rule at patience 1..8 ({title}; drops after the first "
+                f"are indicative)</p><table>{head}{''.join(rows)}</table>")
 
     def what_if_text(self) -> str:
         """The what-if strip as plain lines: ``patience 3: 24, 42, 46``."""
-        return "\n".join(f"patience {p}: " + (", ".join(str(e) for e in r.drop_epochs) or "none")
-                         for p, r in self.what_if.items())
+        return "\n".join(f"patience {p}: " + (self._epochs_words(list(r.drop_epochs), 10 ** 6)[0] or "none")
+                          for p, r in self.what_if.items())

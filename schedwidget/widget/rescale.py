@@ -2,7 +2,11 @@
 
 Rates follow a scaling rule (linear, or square root); with ``keep="samples"``
 a design in steps gets a rescaled clock so that its warmup and joins stay at
-the same number of samples seen (``schedwidget.budget.scale_for_batch``).  A
+the same number of samples seen (``schedwidget.budget.scale_for_batch``).
+When steps per epoch are known and the budget is a whole number of epochs, the
+new budget is a whole number of epochs too: ``Budget(samples, new batch,
+epochs, processes, drop_last=True).steps`` with samples per epoch = old steps
+per epoch x old batch (the incomplete last global batch of an epoch is dropped).  A
 design in epochs already counts samples, so only its rates change.  Nothing
 raises into the notebook: problems go to the message line.
 """
@@ -39,8 +43,10 @@ class Rescaled:
     """One rescaling: the new design, its budget and clock, and how each design's ticks map to samples/steps."""
 
     def __init__(self, old: Schedule, new: Schedule, old_steps: int, new_steps: int, unit: str,
-                 old_batch: int, new_batch: int, old_spe: int | None, new_spe: int | None) -> None:
+                 old_batch: int, new_batch: int, old_spe: int | None, new_spe: int | None,
+                 budget: Any = None) -> None:
         self.old, self.new = old, new
+        self.budget = budget  # the new Budget when the clock was rescaled in whole epochs, else None
         self.old_steps, self.new_steps = old_steps, new_steps
         self.unit, self.old_batch, self.new_batch = unit, old_batch, new_batch
         self.old_spe, self.new_spe = old_spe, new_spe
@@ -63,8 +69,8 @@ def rescale(s: Schedule, steps: int, unit: str, steps_per_epoch: int | None, fro
 
     >>> from schedwidget import cosine, warmup
     >>> r = rescale(warmup(cosine(0.1, steps=97_750), 5_750), 103_500, "step", 1150, 128, 1024, 1, "linear", "samples")
-    >>> r.new_steps, r.new_spe, round(r.new(719), 6)
-    (12938, 144, 0.8)
+    >>> r.new_steps, r.new_spe, round(r.new(715), 6)
+    (12870, 143, 0.8)
     """
     from ..budget import Budget, scale_for_batch  # lazy: the budget arithmetic is its own module
 
@@ -77,22 +83,27 @@ def rescale(s: Schedule, steps: int, unit: str, steps_per_epoch: int | None, fro
         new_spe = None
         if steps_per_epoch:
             new_spe = Budget(samples=steps_per_epoch * from_batch, batch=batch, processes=processes, epochs=1,
-                             drop_last=False).steps_per_epoch
+                             drop_last=True).steps_per_epoch
         return Rescaled(s, new, steps, steps, unit, from_batch, to_batch, steps_per_epoch, new_spe)
     if keep == "samples" and s.length is None:
         raise complain("rescale", "design length", None, "a length to rescale the clock in samples",
                        "an open-ended design keeps its ticks; choose keep 'steps'")
-    new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
     if keep == "steps":
-        new_steps, new_spe = steps, steps_per_epoch
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
+        return Rescaled(s, new, steps, steps, unit, from_batch, to_batch, steps_per_epoch, steps_per_epoch)
+    budget = None
+    if steps_per_epoch and steps % steps_per_epoch == 0:
+        # whole epochs stay whole epochs: the incomplete last global batch of an epoch is dropped
+        budget = Budget(samples=steps_per_epoch * from_batch, batch=batch, epochs=steps // steps_per_epoch,
+                        processes=processes, drop_last=True)
+        new_steps, new_spe = budget.steps, budget.steps_per_epoch
+        n = new_steps if s.length == steps else max(1, round(s.length * new_steps / steps))
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep, steps=n)
     else:
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
         new_steps = new.length if s.length == steps else max(1, round(steps * from_batch / to_batch))
         new_spe = None
-        if steps_per_epoch:
-            # the last, partial global batch of an epoch still makes one update (a data loader's default)
-            new_spe = Budget(samples=steps_per_epoch * from_batch, batch=batch, processes=processes, epochs=1,
-                             drop_last=False).steps_per_epoch
-    return Rescaled(s, new, steps, new_steps, unit, from_batch, to_batch, steps_per_epoch, new_spe)
+    return Rescaled(s, new, steps, new_steps, unit, from_batch, to_batch, steps_per_epoch, new_spe, budget)
 
 
 class RescalePanel(W.VBox):
@@ -105,24 +116,26 @@ class RescalePanel(W.VBox):
         self.d = designer
         self.result: Rescaled | None = None
         g = self._guard
-        now = designer.batch or 128
+        now = designer.batch or 0  # unknown: the person types it (no batch is assumed)
         label = {"description_width": "7em"}
         self.from_batch = W.IntText(value=now, description="batch now", style=label, layout={"width": "14em"},
                                     tooltip="the global batch the design was made for (the designer's batch)")
-        self.batch = W.IntText(value=now * 8, description="new batch", style=label, layout={"width": "14em"},
+        self.batch = W.IntText(value=now * 8 if now else 1024, description="new batch", style=label,
+                               layout={"width": "14em"},
                                tooltip="samples per batch on each process")
         self.processes = W.IntText(value=1, description="processes", style=label, layout={"width": "14em"},
                                    tooltip="data-parallel processes: the global batch is batch x processes")
         self.rule = W.ToggleButtons(options=["linear", "sqrt"], value="linear", description="rate rule",
                                     tooltips=["rates x new/old batch (Goyal et al. 2017)",
                                               "rates x sqrt(new/old batch) (Krizhevsky 2014; from memory)"],
-                                    style={"button_width": "5em", "description_width": "5em"})
+                                    style={"button_width": "7em", "description_width": "5em"})
         self.keep = W.ToggleButtons(options=["samples", "steps"], value="samples", description="keep",
                                     tooltips=["warmup and joins stay at the same samples seen",
                                               "warmup and joins stay at the same optimizer step"],
-                                    style={"button_width": "5em", "description_width": "5em"})
+                                    style={"button_width": "7em", "description_width": "5em"})
         self.x_axis = W.ToggleButtons(options=["samples", "steps"], value="samples", description="x axis",
-                                      style={"button_width": "5em", "description_width": "5em"})
+                                      tooltips=["x axis: samples seen", "x axis: optimizer steps"],
+                                      style={"button_width": "7em", "description_width": "5em"})
         self.apply_button = W.Button(description="Apply", icon="check",
                                      tooltip="make the rescaled design the designer's design (and its batch)")
         self.apply_button.add_class("sw-rescale-apply")
@@ -130,8 +143,8 @@ class RescalePanel(W.VBox):
         self.summary.add_class("sw-rescale-summary")
         self.message = W.HTML("", style={"text_color": ERROR_RED})
         self.message.add_class("sw-rescale-error")
-        self.xs = LinearScale(min=0.0)
-        self.ys = LinearScale(min=0.0)
+        self.xs = LinearScale(min=0.0, allow_padding=False)
+        self.ys = LinearScale(min=0.0, allow_padding=False)
         self.old_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[OLD],
                               stroke_width=1.5, labels=["now"], display_legend=True)
         self.new_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
@@ -143,13 +156,14 @@ class RescalePanel(W.VBox):
                              fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 24},
                              layout=W.Layout(width="100%", height="280px"))
         self.figure.add_class("sw-rescale-figure")
+        self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%"})
         for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
             w.observe(g(lambda c: self.refresh()), names="value")
         self.apply_button.on_click(g(lambda b: self.apply()))
         designer.observe(g(self._design_changed), names=["schedule", "unit", "steps", "steps_per_epoch", "batch"])
         super().__init__([W.HBox([W.VBox([self.from_batch, self.batch, self.processes]),
                                   W.VBox([self.rule, self.keep, self.x_axis])]),
-                          self.figure, self.summary, W.HBox([self.apply_button]), self.message])
+                          self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
         self.add_class("sw-rescale")
         g(self.refresh)()
 
@@ -165,6 +179,12 @@ class RescalePanel(W.VBox):
         if self.message.value != value:
             self.message.value = value
 
+    def show_figure(self, on: bool) -> None:
+        """Attach the figure (``on``) or take it out while the panel's tab is hidden (no layout at size 0)."""
+        children = (self.figure,) if on else ()
+        if self.figure_box.children != children:
+            self.figure_box.children = children
+
     def _design_changed(self, change: dict) -> None:
         if change["name"] == "batch" and change["new"] and self.from_batch.value != change["new"]:
             self.from_batch.value = change["new"]  # its observer refreshes
@@ -175,6 +195,9 @@ class RescalePanel(W.VBox):
     def refresh(self) -> None:
         """Rescale the designer's design with the current inputs and redraw both curves."""
         d = self.d
+        if not self.from_batch.value:
+            raise complain("rescale", "current batch", self.from_batch.value, "a whole number >= 1",
+                           "the designer does not know the batch the design was made for: type it in 'batch now'")
         r = rescale(d.schedule, d.steps, d.unit, d.steps_per_epoch, self.from_batch.value, self.batch.value,
                     self.processes.value, self.rule.value, self.keep.value)
         self.result = r
@@ -185,6 +208,8 @@ class RescalePanel(W.VBox):
             fo = fn = 1.0
             note = "x axis in epochs: the designer has no steps per epoch"
         label = {"samples": "samples seen", "steps": "optimizer step"}[axis] if not note else "epoch"
+        if self.x_axis.disabled != bool(note):
+            self.x_axis.disabled = bool(note)  # drawn in epochs: the samples/steps toggle does not apply
         to, tn = trace(r.old, r.old_steps), trace(r.new, r.new_steps)
         with self.old_line.hold_sync():
             self.old_line.x, self.old_line.y = to.x * fo, to.y
@@ -197,6 +222,9 @@ class RescalePanel(W.VBox):
             self.summary.value = text
         if r.unit == "epoch":
             note = (note + "; " if note else "") + "an epoch clock already counts samples: epochs stay, rates scale"
+        elif r.budget is None and self.keep.value == "samples":
+            note = ("the budget is not a whole number of epochs (or steps per epoch are unknown): "
+                    "new steps = round(steps x old batch / new batch)")
         self._say(note, AMBER)
 
     def _summary(self, r: Rescaled, to, tn) -> str:
@@ -210,8 +238,21 @@ class RescalePanel(W.VBox):
         if to.joins.size and unit == "step":
             j_old, j_new = float(to.joins[0]), float(tn.joins[0]) if tn.joins.size else float("nan")
             rows.append(("first join, samples", f"{j_old * r.old_batch:,.0f}", f"{j_new * r.new_batch:,.0f}"))
-        body = "".join(f"<tr><td>{html.escape(a)}</td><td>{b}</td><td>{c}</td></tr>" for a, b, c in rows)
-        return f"<table><tr><th></th><th>now</th><th>rescaled</th></tr>{body}</table>"
+        num = 'style="text-align:right;padding:1px 10px"'
+        body = "".join(f"<tr><td>{html.escape(a)}</td><td {num}>{b}</td><td {num}>{c}</td></tr>" for a, b, c in rows)
+        table = f"<table><tr><th></th><th {num}>now</th><th {num}>rescaled</th></tr>{body}</table>"
+        return table + self._budget_words(r)
+
+    @staticmethod
+    def _budget_words(r: Rescaled) -> str:
+        """The new budget in words, with the rounding rule."""
+        b = r.budget
+        if b is None:
+            return ""
+        lines = [f"{b.epochs:,} epochs x {b.steps_per_epoch:,} steps per epoch = {b.steps:,} steps",
+                 f"steps per epoch = floor({b.samples:,} samples / global batch {b.global_batch:,}) = "
+                 f"{b.steps_per_epoch:,}: the incomplete last batch of each epoch is dropped (drop_last=True)"]
+        return "".join(f"<p>{html.escape(x)}</p>" for x in lines)
 
     def apply(self) -> None:
         """Make the rescaled design the designer's design, with its batch, budget and steps per epoch."""

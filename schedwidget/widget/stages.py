@@ -8,13 +8,14 @@ of the design of its own, it re-reads ``designer.schedule`` in ``sync()``.
 from __future__ import annotations
 
 import dataclasses
+import html
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
 import numpy as np
 
 from ..combine import Restarts
-from ..schedule import ScheduleError, complain
+from ..schedule import ScheduleError, as_whole, complain
 from .controls import LABEL, ParamControl, put
 from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form
 
@@ -23,7 +24,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = ["StagesPanel"]
 
-BUTTON = {"width": "2.6em"}
+BUTTON = {"width": "2.6em", "min_width": "2.6em", "flex": "0 0 auto"}
+BOX = {"width": "14em", "flex": "0 0 auto"}
 NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot be edited here; "
                 "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
 
@@ -37,19 +39,20 @@ class StagesPanel(W.VBox):
         self.unit = W.Dropdown(options=[("steps", "step"), ("epochs", "epoch")], description="clock",
                                tooltip="the unit of the design's clock: optimizer steps or epochs; changing it "
                                        "converts the design with steps per epoch when known", style=LABEL,
-                               layout={"width": "15em"})
-        self.spe = W.IntText(description="steps/epoch", tooltip="optimizer steps per epoch (0: unknown)",
-                             style=LABEL, layout={"width": "15em"})
+                               layout=BOX)
+        self.spe = W.Text(description="steps/epoch", placeholder="unknown", continuous_update=False,
+                          tooltip="optimizer steps per epoch (blank: unknown)", style=LABEL, layout=BOX)
         self.total = W.IntText(description="total", tooltip="the budget in ticks of the clock; changing it "
                                                           "scales every stage's ticks in proportion",
-                               style=LABEL, layout={"width": "15em"})
+                               style=LABEL, layout=BOX)
         self.total.add_class("sw-total")
-        self.batch = W.IntText(description="batch", tooltip="batch size per update (0: unknown); used for cautions",
-                               style=LABEL, layout={"width": "15em"})
+        self.batch = W.Text(description="batch", placeholder="unknown", continuous_update=False,
+                            tooltip="batch size per update (blank: unknown); used for cautions and Rescale",
+                            style=LABEL, layout=BOX)
         self.total_words = W.Label("")
         self.shape = W.Dropdown(options=list(LEAVES) + ["warmup"], value="cosine", description="shape",
                                 tooltip="the shape of the stage to add at the end ('warmup' goes first)",
-                                style=LABEL, layout={"width": "15em"})
+                                style=LABEL, layout=BOX)
         self.shape.add_class("sw-add-shape")
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
@@ -78,9 +81,9 @@ class StagesPanel(W.VBox):
         try:
             d = self.d
             put(self.unit, d.unit)
-            put(self.spe, d.steps_per_epoch or 0)
+            put(self.spe, f"{d.steps_per_epoch}" if d.steps_per_epoch else "")
             put(self.total, d.steps)
-            put(self.batch, d.batch or 0)
+            put(self.batch, f"{d.batch}" if d.batch else "")
             words = f"{d.steps:,} {d.unit}s"
             if d.steps_per_epoch and d.unit == "step":
                 words += f" = {d.steps / d.steps_per_epoch:,.4g} epochs of {d.steps_per_epoch:,} steps"
@@ -115,7 +118,7 @@ class StagesPanel(W.VBox):
         budget = self.d.steps
         for (where, obj), (box, rows) in zip(self._items(form), zip(self.list.children, self.controls)):
             header = box.children[0].children[0]
-            put(header, self._title(form, where))
+            put(header, html.escape(self._title(form, where)))
             for c in rows:
                 c.show(getattr(_owner(obj, c), c.name), budget)
 
@@ -130,7 +133,7 @@ class StagesPanel(W.VBox):
         kind = leaf_of(s).kind + (" (repeated)" if isinstance(s, Restarts) else "")
         a = w + int(starts[i])
         span = f"from {self.d.unit} {a:,}" if s.length is None else f"{self.d.unit}s {a:,}–{a + s.length:,}"
-        return f"{i + 1}. {kind} · {span}"
+        return f"stage {i}: {kind} · {span}"  # the number designer.control(i, ...) takes
 
     def _rebuild(self, form: Form) -> None:
         boxes, self.controls = [], []
@@ -138,7 +141,7 @@ class StagesPanel(W.VBox):
         first = 1 if form.warm is not None else 0
         for pos, (where, obj) in enumerate(items):
             rows: list[ParamControl] = []
-            title = W.Label(self._title(form, where), layout={"width": "22em"})
+            title = W.HTML(html.escape(self._title(form, where)), layout={"flex": "1 1 12em", "min_width": "10em"})
             remove = W.Button(description="✕", tooltip="remove this stage", layout=BUTTON)
             up = W.Button(description="↑", tooltip="move this stage up", layout=BUTTON,
                           disabled=where == "warm" or pos == first)
@@ -152,7 +155,8 @@ class StagesPanel(W.VBox):
             head = [title, up, down, remove]
             if where != "warm":
                 rep = W.Checkbox(value=isinstance(obj, Restarts), description="repeat", indent=False,
-                                 tooltip="repeat this stage as warm restarts", layout={"width": "6em"})
+                                 tooltip="repeat this stage as warm restarts",
+                                 layout={"width": "5.5em", "min_width": "5.5em", "flex": "0 0 auto"})
                 rep.observe(self.d.guarded(lambda ch, w=where: self._repeat(w, ch["new"])), names="value")
                 head.insert(1, rep)
             parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if isinstance(obj, Restarts) else ["leaf"])
@@ -163,7 +167,8 @@ class StagesPanel(W.VBox):
                     if p.kind in ("schedule", "schedules"):
                         continue
                     rows.append(self._control(where, part, target, name, p))
-            box = W.VBox([W.HBox(head)] + [c.box for c in rows],
+            head_row = W.HBox(head, layout={"flex_flow": "row wrap", "align_items": "center"})
+            box = W.VBox([head_row] + [c.box for c in rows],
                          layout={"border": "1px solid #e5e7eb", "padding": "2px 4px", "margin": "2px 0"})
             box.add_class("sw-stage")
             boxes.append(box)
@@ -278,7 +283,7 @@ class StagesPanel(W.VBox):
 
     def _spe_edited(self, change: dict) -> None:
         if not self._quiet:
-            self.d.steps_per_epoch = change["new"] or None
+            self.d.steps_per_epoch = _known("steps/epoch", change["new"])
 
     def _total_edited(self, change: dict) -> None:
         if not self._quiet:
@@ -286,7 +291,21 @@ class StagesPanel(W.VBox):
 
     def _batch_edited(self, change: dict) -> None:
         if not self._quiet:
-            self.d.batch = change["new"] or None
+            self.d.batch = _known("batch", change["new"])
+
+
+def _known(name: str, text: str) -> int | None:
+    """A typed whole number >= 1, or None for a blank box (unknown)."""
+    t = str(text).strip().replace(",", "").replace("_", "")
+    if not t or t == "0":
+        return None
+    try:
+        n = as_whole(float(t))
+    except ValueError:
+        n = None
+    if n is None or n < 1:
+        raise complain("designer", name, text, "a whole number >= 1, or blank for unknown")
+    return n
 
 
 def _owner(obj: Any, c: ParamControl) -> Any:
