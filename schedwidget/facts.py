@@ -210,8 +210,9 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     joins = tuple(int(j) for j in joins)
     rows: list[tuple[str, int, float]] = [("first tick", 0, first)]
     for i, j in enumerate(joins, start=1):
-        rows.append((f"end of stage {i}", j - 1, s(j - 1)))
-        rows.append((f"start of stage {i + 1}", j, s(j)))
+        # numbered by join, not by stage: the designer numbers its stages its own way (warmup apart, from 0)
+        rows.append((f"join {i}: last tick before", j - 1, s(j - 1)))
+        rows.append((f"join {i}: first tick after", j, s(j)))
     rows.append(("last tick", n - 1, final))
     rows.append(("held after the budget", n, after))
     under_10 = _first_under(s, grid, peak_at, 0.1 * peak) if peak > 0 else None

@@ -54,7 +54,7 @@ class TestShow:
         out = capsys.readouterr().out
         assert "peaks at 0.1 at step 5,750 (epoch 5.0)" in out
         assert "peak               0.1 at step 5,750" in out
-        assert "where" in out and "start of stage 2         5,750   5.000         0.1" in out
+        assert "where" in out and "join 1: first tick after    5,750   5.000         0.1" in out
 
     def test_show_epochs(self, capsys):
         """A design in epochs is read in epochs."""

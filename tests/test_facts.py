@@ -36,9 +36,9 @@ class TestFacts:
     def test_boundary_table(self):
         s = warmup(cosine(0.1, steps=100), steps=10)
         f = facts(s)
-        assert f.boundary == (("first tick", 0, 0.0), ("end of stage 1", 9, s(9)), ("start of stage 2", 10, 0.1),
+        assert f.boundary == (("first tick", 0, 0.0), ("join 1: last tick before", 9, s(9)), ("join 1: first tick after", 10, 0.1),
                               ("last tick", 109, s(109)), ("held after the budget", 110, 0.0))
-        assert "start of stage 2" in f.table() and "0.1" in f.table()
+        assert "join 1: first tick after" in f.table() and "0.1" in f.table()
 
     def test_breaks(self):
         f = facts(drops(0.1, at=(32_000, 48_000), steps=64_000))
