@@ -24,7 +24,7 @@ with warnings.catch_warnings():
 
 from ..sample import Trace, trace
 from ..schedule import Schedule
-from ..svg import CURVE, GHOSTS, JOIN  # one palette for the live curve and the static picture
+from ..svg import CURVE, GHOSTS, JOIN, nice_ticks  # one palette and one tick rule for the live and static curves
 
 __all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR"]
 
@@ -243,6 +243,11 @@ class CurvePanel(W.VBox):
         if self.xs.max != top or self.xs.min != 0.0:
             with self.xs.hold_sync():
                 self.xs.min, self.xs.max = 0.0, top
+        # round tick values (the front end's own choice for a domain like 0..113,849 was 22.7698k, 45.5396k, ...)
+        ticks = nice_ticks(0.0, top, 5)
+        ticks = ticks[(ticks >= 0.0) & (ticks <= top)]
+        if self.x_axis.tick_values is None or not np.array_equal(self.x_axis.tick_values, ticks):
+            self.x_axis.tick_values = ticks
 
     @property
     def rate_scale(self):
