@@ -26,6 +26,7 @@ with warnings.catch_warnings():
     from bqplot import Axis, Figure, LinearScale, Lines
 
 from ..sample import trace
+from ..svg import nice_ticks
 from ..schedule import Schedule, complain
 from .guard import ERROR_RED, quietly
 
@@ -217,6 +218,11 @@ class RescalePanel(W.VBox):
             self.new_line.x, self.new_line.y = tn.x * fn, tn.y
         if self.x_label.label != label:
             self.x_label.label = label
+        top = float(max(to.x[-1] * fo, tn.x[-1] * fn)) if to.x.size and tn.x.size else 1.0
+        ticks = nice_ticks(0.0, top, 5)  # round values (the front end's own were 2.65M, 5.3M, ...)
+        ticks = ticks[(ticks >= 0.0) & (ticks <= top)]
+        if self.x_label.tick_values is None or not np.array_equal(self.x_label.tick_values, ticks):
+            self.x_label.tick_values = ticks
         text = self._summary(r, to, tn)
         if self.summary.value != text:
             self.summary.value = text
