@@ -44,6 +44,9 @@ class Stages(Schedule):
 
     kind: ClassVar[str] = "stages"
     parts: tuple[Schedule, ...] = param(kind="schedules", doc="the stages, in order")
+    # derived once, like Warmup's stages and Restarts' length: read on every evaluation and clamp
+    _length: int | None = field(init=False, repr=False, compare=False)
+    _starts: np.ndarray = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         parts = tuple(self.parts) if isinstance(self.parts, (list, tuple)) else self.parts
@@ -60,17 +63,19 @@ class Stages(Schedule):
         if total > MAX_TICKS:
             raise complain("stages", "parts", f"{len(parts)} stages of {total:.3g} ticks", "a total length <= 2**53")
         object.__setattr__(self, "parts", parts)
+        object.__setattr__(self, "_length", None if parts[-1].length is None else total)
+        lengths = [p.length for p in parts[:-1]]
+        starts = np.concatenate([[0.0], np.cumsum(np.asarray(lengths, dtype=float))])
+        starts.setflags(write=False)  # shared by every call: read-only
+        object.__setattr__(self, "_starts", starts)
 
     @property
     def length(self) -> int | None:
-        if self.parts[-1].length is None:
-            return None
-        return sum(p.length for p in self.parts)  # type: ignore[misc]
+        return self._length
 
     def starts(self) -> np.ndarray:
         """The tick where each stage begins (the first is 0)."""
-        lengths = [p.length for p in self.parts[:-1]]
-        return np.concatenate([[0.0], np.cumsum(np.asarray(lengths, dtype=float))])
+        return self._starts
 
     def children(self):
         return self.parts

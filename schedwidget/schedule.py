@@ -222,13 +222,15 @@ class Schedule:
                 raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
         else:
             raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)")
-        if u.size and u.max() > MAX_TICKS:
+        top = float(u.max()) if u.size else 0.0  # read once: the range checks and the clamp share it
+        if top > MAX_TICKS:
             raise complain(self.kind, "t", t if arr.ndim == 0 else "an array with ticks above 2**53", "a tick <= 2**53",
                            "above that, ticks are not exact on a float64 clock")
         if u.size and u.min() < 0:
             raise complain(self.kind, "t", t if arr.ndim == 0 else "an array with negative ticks",
                            "a tick >= 0", "t = 0 is the rate of the very first update")
-        out = self._at(self._clamp(u))
+        n = self.length
+        out = self._at(u if n is None or top <= n else np.minimum(u, float(n)))
         if arr.ndim == 0:
             return float(out)
         return np.asarray(out, dtype=np.float64).reshape(arr.shape)
