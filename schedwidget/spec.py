@@ -20,13 +20,14 @@ import tempfile
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
-from typing import Any
-
-import jsonschema
+from typing import TYPE_CHECKING, Any
 
 from .combine import Clip, Product, Restarts, Scaled, Stages, Stretch, Sum, Warmup
 from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain
 from .shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle
+
+if TYPE_CHECKING:  # jsonschema costs ~0.8 s to import (its format checkers); it is loaded only to validate
+    import jsonschema
 
 __all__ = ["FORMAT_VERSION", "Design", "to_spec", "from_spec", "read_design", "save", "load", "load_design",
            "json_schema", "KINDS"]
@@ -165,6 +166,8 @@ def _shallow(schema: dict[str, Any], root: str | None) -> jsonschema.Draft202012
     The loader then checks each node against its own kind's definition, instead
     of trying every kind's if/then branch at every node (the same rules, ~10x faster).
     """
+    import jsonschema  # here, not at the top: `import schedwidget` must stay light (tests/test_import.py)
+
     defs = dict(schema["$defs"])
     defs["node"] = {"type": "object", "required": ["kind"], "properties": {"kind": {"enum": list(KINDS)}}}
     body = {**schema, "$defs": defs} if root is None else {"$ref": f"#/$defs/{root}", "$defs": defs}
