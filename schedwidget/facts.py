@@ -6,6 +6,11 @@ mean, area (sum of rates), jumps, stage joins with the rate on both sides
 first falls under 10 % and 1 % of its peak, and cautions for risky settings.
 Up to ``EXACT_LIMIT`` ticks every tick is evaluated (in chunks); above it the
 readout is computed from an even grid plus every jump and says so.
+
+Work is bounded whatever the design: memory by ``CHUNK`` ticks at a time (and
+``MAX_EXACT`` for an exact reading), the number of evaluations by the grid and
+a fixed refinement budget, and every per-join value is read in one vectorised
+call (a design with thousands of stages costs time linear in its stages).
 """
 
 from __future__ import annotations
@@ -16,14 +21,22 @@ from dataclasses import dataclass
 import numpy as np
 
 from .combine import Restarts, Stretch
-from .sample import breaks, budget_of
-from .schedule import Schedule, ScheduleError
+from .sample import at_ticks, breaks, budget_of
+from .schedule import Schedule, ScheduleError, as_whole, complain
 from .shapes import ExpDecay
 
-__all__ = ["Facts", "facts", "EXACT_LIMIT", "LARGE_BATCH"]
+__all__ = ["Facts", "facts", "EXACT_LIMIT", "LARGE_BATCH", "LEVEL_TOLERANCE"]
 
 EXACT_LIMIT = 2 ** 21
+#: Largest ``exact_up_to`` accepted: an exact reading evaluates every tick, so its time grows with it.
+MAX_EXACT = 2 ** 26
 CHUNK = 2 ** 18
+#: A rate counts as down to a share of the peak when ``rate <= share * peak * (1 + LEVEL_TOLERANCE)``:
+#: products such as 0.05 * 0.1 = 0.005000000000000001 sit a few ulps (~1e-16 relative) above the
+#: hand value, and 1e-12 relative is thousands of ulps yet far below any difference a reader can see.
+LEVEL_TOLERANCE = 1e-12
+#: Refinement of a grid reading: gaps looked into per round, pieces per split, ticks read tick by tick.
+REFINE_TRIES, REFINE_SPLIT, REFINE_DENSE = 4, 64, 4096
 #: Batch size from which a run without warmup gets a caution (common practice, no source).
 LARGE_BATCH = 1024
 #: A peak this many times the linear scaling rule's rate gets a caution (common practice, no source).
@@ -51,6 +64,8 @@ class Facts:
     joins: tuple[int, ...]
     boundary: tuple[tuple[str, int, float], ...]
     half_life: float | None
+    #: first tick at or after the peak where the rate is down to 10 % (1 %) of the peak or below,
+    #: within ``LEVEL_TOLERANCE`` relative (so an exact x0.1 drop counts at its own tick); None if never.
     under_10: int | None
     under_1: int | None
     cautions: tuple[str, ...]
@@ -72,18 +87,28 @@ def _sorted_unique(x: np.ndarray) -> np.ndarray:
     return x[np.concatenate([[True], x[1:] != x[:-1]])] if x.size else x
 
 
-def _ticks(n: int, limit: int) -> tuple[np.ndarray, bool]:
+def _grid(n: int, limit: int, extra: np.ndarray) -> tuple[np.ndarray | None, bool]:
+    """The ticks to read: None for every tick of ``[0, n)`` (read in chunks), else an even grid plus ``extra``."""
     if n <= limit:
-        return np.arange(n, dtype=np.int64), True
-    return _sorted_unique(np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)), False
+        return None, True
+    even = np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)
+    return _sorted_unique(np.concatenate([even, extra])), False
 
 
-def _scan(s: Schedule, ticks: np.ndarray, extra: np.ndarray):
-    """Peak/min/area over ``ticks`` (chunked), with the jump ticks and their neighbours added."""
-    grid = _sorted_unique(np.concatenate([ticks, extra]))
+def _chunks(grid: np.ndarray | None, n: int, start: int = 0):
+    """Sorted tick arrays of at most CHUNK ticks covering the grid (every tick of ``[0, n)`` when None) from ``start``."""
+    if grid is None:
+        for i in range(start, n, CHUNK):
+            yield np.arange(i, min(i + CHUNK, n), dtype=np.int64)
+        return
+    for i in range(int(np.searchsorted(grid, start)), grid.size, CHUNK):
+        yield grid[i:i + CHUNK]
+
+
+def _scan(s: Schedule, grid: np.ndarray | None, n: int):
+    """Peak/min/area over the grid (chunked)."""
     peak, peak_at, low, low_at, total = -math.inf, 0, math.inf, 0, 0.0
-    for i in range(0, grid.size, CHUNK):
-        t = grid[i:i + CHUNK]
+    for t in _chunks(grid, n):
         y = s(t)
         j, k = int(np.argmax(y)), int(np.argmin(y))
         if y[j] > peak:
@@ -91,48 +116,71 @@ def _scan(s: Schedule, ticks: np.ndarray, extra: np.ndarray):
         if y[k] < low:
             low, low_at = float(y[k]), int(t[k])
         total += float(np.sum(y))
-    return grid, peak, peak_at, low, low_at, total
+    return peak, peak_at, low, low_at, total
 
 
-def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int, tries: int = 4) -> tuple[float, int]:
-    """On a grid, look inside the earliest gaps whose bounds reach the peak for a higher or earlier one."""
-    a, b = grid[:-1], grid[1:]
-    _, hi = s._span(a.astype(float), b.astype(float))
-    for i in np.flatnonzero((hi >= peak) & (b - a > 1))[:tries]:
-        if a[i] >= peak_at:
+def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tuple[float, int]:
+    """On a grid, look inside the earliest gaps before the peak whose bounds reach it for a higher or earlier one.
+
+    Bounded work: at most ``REFINE_TRIES`` gaps per round are split into ``REFINE_SPLIT`` pieces (or read
+    tick by tick once ``REFINE_DENSE`` ticks or shorter); each round shrinks them 64-fold, so 2**53 ticks
+    take at most 9 rounds.
+    """
+    before = int(np.searchsorted(grid[:-1], peak_at))
+    a, b = grid[:before], grid[1:before + 1]
+    while a.size:
+        wide = b - a > 1
+        a, b = a[wide], b[wide]
+        picked: list[int] = []
+        for i in range(0, a.size, CHUNK):  # earliest first: stop as soon as enough gaps qualify
+            _, hi = s._span(a[i:i + CHUNK].astype(float), b[i:i + CHUNK].astype(float))
+            picked += (np.flatnonzero(hi >= peak)[:REFINE_TRIES - len(picked)] + i).tolist()
+            if len(picked) >= REFINE_TRIES:
+                break
+        a, b = a[picked], b[picked]
+        dense = b - a <= REFINE_DENSE
+        ticks = [np.arange(x, y + 1) for x, y in zip(a[dense], b[dense])]
+        pieces = [np.unique(np.linspace(x, y, REFINE_SPLIT + 1).astype(np.int64)) for x, y in zip(a[~dense], b[~dense])]
+        for t in ticks + pieces:
+            y = s(t)
+            j = int(np.argmax(y))
+            if y[j] > peak or (y[j] == peak and t[j] < peak_at):
+                peak, peak_at = float(y[j]), int(t[j])
+        if not pieces:
             break
-        t = np.arange(a[i], b[i] + 1)
-        y = s(t)
-        j = int(np.argmax(y))
-        if y[j] > peak or (y[j] == peak and t[j] < peak_at):
-            peak, peak_at = float(y[j]), int(t[j])
+        a = np.concatenate([c[:-1] for c in pieces])
+        b = np.concatenate([c[1:] for c in pieces])
+        keep = a < peak_at
+        a, b = a[keep], b[keep]
     return peak, peak_at
 
 
-def _first_under(s: Schedule, grid: np.ndarray, start: int, level: float) -> int | None:
-    for i in range(int(np.searchsorted(grid, start)), grid.size, CHUNK):
-        t = grid[i:i + CHUNK]
-        hit = np.flatnonzero(s(t) < level)
+def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int, level: float) -> int | None:
+    """The first tick from ``start`` where the rate is at or under ``level`` (within LEVEL_TOLERANCE relative)."""
+    bound = level * (1.0 + LEVEL_TOLERANCE)
+    for t in _chunks(grid, n, start):
+        hit = np.flatnonzero(s(t) <= bound)
         if hit.size:
             return int(t[hit[0]])
     return None
 
 
 def _half_life(s: Schedule) -> tuple[float, ExpDecay] | None:
-    """Half-life in ticks of the first exponential decay in the design (stretches applied)."""
-    def walk(node: Schedule, scale: float):
+    """Half-life in ticks of the first exponential decay in the design (stretches applied).
+
+    Depth first with an explicit stack, so a deeply nested design cannot exhaust Python's recursion limit.
+    """
+    stack: list[tuple[Schedule, float]] = [(s, 1.0)]
+    while stack:
+        node, scale = stack.pop()
         if isinstance(node, ExpDecay) and node.factor < 1.0:
             return node.half_life() * scale, node
         if isinstance(node, Restarts):
-            return None
+            continue
         if isinstance(node, Stretch):
             scale *= node.steps / node.target.length
-        for c in node.children():
-            got = walk(c, scale)
-            if got:
-                return got
-        return None
-    return walk(s, 1.0)
+        stack.extend((c, scale) for c in reversed(node.children()))
+    return None
 
 
 def _g(x: float) -> str:
@@ -190,40 +238,58 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     >>> print(facts(exp_decay(0.1, 0.95), steps=200, unit="epoch").sentence)
     x0.95 per epoch: half-life 13.5 epochs; after 200 epochs the rate is 3.51e-05 of the peak (3.51e-06).
     """
-    if unit not in ("step", "epoch"):
+    owner = "facts"
+    if not isinstance(s, Schedule):
+        raise complain(owner, "s", s, "a Schedule (e.g. cosine(0.1, steps=1000))",
+                       "a bare rate is flat(rate, steps=...)" if isinstance(s, (int, float, np.number)) else None)
+    if not isinstance(unit, str) or unit not in ("step", "epoch"):
         raise ScheduleError(f"facts: unit must be one of 'step', 'epoch', got {unit!r}")
-    if steps_per_epoch is not None and (not isinstance(steps_per_epoch, (int, np.integer)) or steps_per_epoch < 1):
-        raise ScheduleError(f"facts: steps_per_epoch must be a whole number >= 1 or None, got {steps_per_epoch!r}")
-    if batch is not None and (not isinstance(batch, (int, np.integer)) or batch < 1):
-        raise ScheduleError(f"facts: batch must be a whole number >= 1 or None, got {batch!r}")
-    n = budget_of(s, steps, "facts")
-    ticks, exact = _ticks(n, exact_up_to)
+    if steps_per_epoch is not None:
+        steps_per_epoch = _whole_or_none(owner, "steps_per_epoch", steps_per_epoch)
+    if batch is not None:
+        batch = _whole_or_none(owner, "batch", batch)
+    limit = as_whole(exact_up_to)
+    if limit is None or not 2 <= limit <= MAX_EXACT:
+        raise complain(owner, "exact_up_to", exact_up_to, f"a whole number >= 2 and <= 2**{MAX_EXACT.bit_length() - 1}",
+                       "longer budgets are read from a grid")
+    n = budget_of(s, steps, owner)
     brk = breaks(s, n)
     joins = np.ceil(s._joins())
     joins = joins[(joins >= 1) & (joins <= n - 1)].astype(np.int64)
     extra = np.concatenate([brk, brk - 1, joins, joins - 1, [n - 1]]).astype(np.int64)
-    grid, peak, peak_at, low, low_at, total = _scan(s, ticks, extra)
+    grid, exact = _grid(n, limit, extra)
+    peak, peak_at, low, low_at, total = _scan(s, grid, n)
     if not exact:
         peak, peak_at = _refine_peak(s, grid, peak, peak_at)
-    area = total if exact else total * n / grid.size
-    first, final, after = s(0), s(n - 1), s(n)
-    joins = tuple(int(j) for j in joins)
+    size = n if grid is None else grid.size
+    area = total if exact else total * n / size
+    # every value the table and the sentence need, in one call: a scalar call per join costs a pass over the design
+    ends = at_ticks(s, np.concatenate([[0, n - 1, n], joins - 1, joins]).astype(np.int64))
+    first, final, after = float(ends[0]), float(ends[1]), float(ends[2])
+    before_join, after_join = ends[3:3 + joins.size], ends[3 + joins.size:]
     rows: list[tuple[str, int, float]] = [("first tick", 0, first)]
-    for i, j in enumerate(joins, start=1):
+    for i, j in enumerate(joins.tolist()):
         # numbered by join, not by stage: the designer numbers its stages its own way (warmup apart, from 0)
-        rows.append((f"join {i}: last tick before", j - 1, s(j - 1)))
-        rows.append((f"join {i}: first tick after", j, s(j)))
+        rows.append((f"join {i + 1}: last tick before", j - 1, float(before_join[i])))
+        rows.append((f"join {i + 1}: first tick after", j, float(after_join[i])))
     rows.append(("last tick", n - 1, final))
     rows.append(("held after the budget", n, after))
-    under_10 = _first_under(s, grid, peak_at, 0.1 * peak) if peak > 0 else None
-    under_1 = _first_under(s, grid, peak_at, 0.01 * peak) if peak > 0 else None
+    under_10 = _first_under(s, grid, n, peak_at, 0.1 * peak) if peak > 0 else None
+    under_1 = _first_under(s, grid, n, peak_at, 0.01 * peak) if peak > 0 else None
     hl = _half_life(s)
     sentence = _sentence(s, n, unit, steps_per_epoch, first, peak, peak_at, final, after,
                          hl, under_10, len(brk), exact)
     return Facts(unit, n, steps_per_epoch, exact, first, peak, peak_at, low, low_at, final, after,
-                 total / grid.size, area, tuple(int(b) for b in brk), joins, tuple(rows),
+                 total / size, area, tuple(brk.tolist()), tuple(joins.tolist()), tuple(rows),
                  hl[0] if hl else None, under_10, under_1,
                  tuple(_cautions(s, first, peak, n, batch, unit)), sentence)
+
+
+def _whole_or_none(owner: str, name: str, value) -> int:
+    n = as_whole(value)
+    if n is None or n < 1 or n > 2 ** 53:
+        raise ScheduleError(f"{owner}: {name} must be a whole number >= 1 or None, got {value!r}")
+    return n
 
 
 def _sentence(s, n, unit, spe, first, peak, peak_at, final, after, hl, under_10, nbreaks, exact) -> str:

@@ -15,32 +15,56 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .schedule import EDGE_CAP, Schedule, ScheduleError
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, ScheduleError, as_whole, complain
 
-__all__ = ["Trace", "trace", "breaks", "budget_of"]
+__all__ = ["Trace", "trace", "breaks", "budget_of", "at_ticks"]
 
 #: Segments a long budget is cut into (about one per pixel column of a wide plot).
 SEGMENTS = 1000
+#: Most points ``trace`` accepts to draw (a budget up to this long is drawn tick by tick).
+MAX_POINTS = 2 ** 20
 
 
 def budget_of(s: Schedule, steps: int | None, owner: str) -> int:
-    """The budget to read ``s`` over: ``steps`` if given, else its length."""
+    """The budget to read ``s`` over: ``steps`` if given, else its length.
+
+    ``steps`` is a whole number (int, numpy integer or integral float, not a bool) in ``[1, 2**53]``.
+    """
+    if not isinstance(s, Schedule):
+        raise complain(owner, "s", s, "a Schedule (e.g. cosine(0.1, steps=1000))",
+                       "a bare rate is flat(rate, steps=...)" if isinstance(s, (int, float, np.number)) else None)
     n = s.length if steps is None else steps
     if n is None:
         raise ScheduleError(f"{owner}: steps must be given for an open-ended schedule, got None "
                             "(pass steps=the number of ticks to read)")
-    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
+    w = as_whole(n)
+    if w is None or w < 1:
         raise ScheduleError(f"{owner}: steps must be a whole number >= 1, got {n!r}")
-    return int(n)
+    if w > MAX_TICKS:
+        raise complain(owner, "steps", n, "a whole number <= 2**53",
+                       "above that, ticks are no longer exact on a float64 clock")
+    return w
+
+
+def at_ticks(s: Schedule, t: np.ndarray) -> np.ndarray:
+    """``s`` at integer ticks in any order, evaluated once on their sorted unique values.
+
+    Nodes evaluate a sorted clock fastest (``stages`` cuts it into one slice per stage), so
+    scattered ticks (both sides of every join, say) cost one pass over the design, not one per tick.
+    """
+    t = np.asarray(t, dtype=np.int64)
+    u, back = np.unique(t.reshape(-1), return_inverse=True)
+    return s(u)[back].reshape(t.shape)
 
 
 def breaks(s: Schedule, n: int) -> np.ndarray:
     """Ticks in ``[1, n)`` where the rate jumps: a candidate edge whose step stands out from its neighbours."""
+    n = budget_of(s, n, "breaks")
     cand = np.unique(np.ceil(s._edges(float(n - 1))))
     cand = cand[(cand >= 1) & (cand <= n - 1)].astype(np.int64)
     if cand.size == 0:
         return cand
-    y = s(np.stack([np.maximum(cand - 2, 0), cand - 1, cand, np.minimum(cand + 1, n - 1)]))
+    y = at_ticks(s, np.stack([np.maximum(cand - 2, 0), cand - 1, cand, np.minimum(cand + 1, n - 1)]))
     step = np.abs(y[2] - y[1])
     before = np.where(cand >= 2, np.abs(y[1] - y[0]), 0.0)
     after = np.where(cand + 1 <= n - 1, np.abs(y[3] - y[2]), 0.0)
@@ -76,8 +100,17 @@ def _with_edges(x: np.ndarray, y: np.ndarray, brk: np.ndarray, before: np.ndarra
 
 
 def trace(s: Schedule, steps: int | None = None, points: int = 2 * SEGMENTS) -> Trace:
-    """The polyline and bands to draw ``s`` over ``steps`` ticks (default: its length)."""
+    """The polyline and bands to draw ``s`` over ``steps`` ticks (default: its length).
+
+    ``points`` (a whole number in ``[4, 2**20]``) bounds the drawing: budgets up to it are drawn tick
+    by tick, longer ones from about ``points`` segment ends plus every jump.
+    """
     n = budget_of(s, steps, "trace")
+    p = as_whole(points)
+    if p is None or not 4 <= p <= MAX_POINTS:
+        raise complain("trace", "points", points, "a whole number >= 4 and <= 2**20",
+                       "about one point per pixel column is enough")
+    points = p
     joins = np.ceil(s._joins())
     joins = joins[(joins >= 1) & (joins <= n - 1)]
     brk = breaks(s, n)
@@ -107,5 +140,5 @@ def trace(s: Schedule, steps: int | None = None, points: int = 2 * SEGMENTS) -> 
     keep[:, 3] = b > a
     x, y = xs[keep], ys[keep]
     if not dense and brk.size:
-        x, y = _with_edges(x, y, brk, s(brk - 1))
+        x, y = _with_edges(x, y, brk, at_ticks(s, brk - 1))
     return Trace(n, x, y, brk, joins, a[band], b[band], lo[band], hi[band], False)
