@@ -277,8 +277,8 @@ class _Writer:
         inner = s.target.target if isinstance(s.target, Stretch) else s.target
         Li = float(inner.length)
         local = self.clock(f"(({u} - {start}) * {_f(Li)}) / {ln}", ind)
-        within = s.cycles is None or (bound is not None and s.length is not None and bound <= s.length)
-        v, pb = self.held(inner, local, Li if within else None, ind)
+        # held as in the core: ((u - start) * Li) / span rounds twice and can pass Li by an ulp even inside the cycle
+        v, pb = self.held(inner, local, None, ind)
         e = self.value(inner, v, pb, ind)
         self.put(ind, sink(e if s.peak_decay == 1.0 else f"{e} * {_f(s.peak_decay)} ** {k}"))
 
@@ -343,7 +343,9 @@ class _Writer:
     def _stretch(self, s, u, bound, ind, sink):
         a, b = float(s.target.length), float(s.steps)
         v = self.clock(f"({u} * {_f(a)}) / {_f(b)}", ind)
-        self.emit(s.target, v, None if bound is None else (bound * a) / b, ind, sink)
+        # as the core: the target is read held, since (u * a) / b can pass its length by an ulp
+        v, pb = self.held(s.target, v, None if bound is None else (bound * a) / b, ind)
+        self.emit(s.target, v, pb, ind, sink)
 
 
 #: Budgets up to this many ticks are read tick by tick for the docstring's peak; longer ones through ``facts``.

@@ -14,7 +14,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from .schedule import EDGE_CAP, MAX_TICKS, Schedule, complain, literal, param
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, check_top, complain, literal, param
 
 #: growth must be 1 or at least this far from 1 (else a cycle table grows without bound).
 MIN_GROWTH_STEP = 0.01
@@ -33,6 +33,27 @@ def _schedule(owner: str, name: str, value: Any) -> Schedule:
     return value
 
 
+def _sparse(values: np.ndarray, op) -> list[np.ndarray]:
+    """Sparse table: level k holds ``op`` over every run of ``2**k`` consecutive values."""
+    levels = [values]
+    while 2 ** len(levels) <= len(values):
+        step = 2 ** (len(levels) - 1)
+        prev = levels[-1]
+        levels.append(op(prev[:-step], prev[step:]))
+    return levels
+
+
+def _table_reduce(levels: list[np.ndarray], lo: np.ndarray, hi: np.ndarray, op) -> np.ndarray:
+    """``op`` over ``values[lo..hi]`` (inclusive) for every pair, from a sparse table: two reads each."""
+    k = np.floor(np.log2((hi - lo + 1).astype(float))).astype(int)
+    out = np.empty(lo.size)
+    for level in np.unique(k):
+        m = k == level
+        row = levels[level]
+        out[m] = op(row[lo[m]], row[hi[m] - 2 ** level + 1])
+    return out
+
+
 def _merged_length(*parts: Schedule) -> int | None:
     lengths = [p.length for p in parts if p.length is not None]
     return max(lengths) if lengths else None
@@ -47,8 +68,11 @@ class Stages(Schedule):
     # derived once, like Warmup's stages and Restarts' length: read on every evaluation and clamp
     _length: int | None = field(init=False, repr=False, compare=False)
     _starts: np.ndarray = field(init=False, repr=False, compare=False)
+    _ceil: float = field(init=False, repr=False, compare=False)
+    _full: Any = field(init=False, repr=False, compare=False)  # stages' full ranges, on first use
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "_full", None)
         parts = tuple(self.parts) if isinstance(self.parts, (list, tuple)) else self.parts
         if not isinstance(parts, tuple) or not parts:
             raise complain("stages", "parts", self.parts, "a non-empty sequence of schedules")
@@ -68,6 +92,10 @@ class Stages(Schedule):
         starts = np.concatenate([[0.0], np.cumsum(np.asarray(lengths, dtype=float))])
         starts.setflags(write=False)  # shared by every call: read-only
         object.__setattr__(self, "_starts", starts)
+        object.__setattr__(self, "_ceil", max(p._top() for p in parts))
+
+    def _top(self) -> float:
+        return self._ceil
 
     @property
     def length(self) -> int | None:
@@ -93,11 +121,13 @@ class Stages(Schedule):
                 if cut[i + 1] > cut[i]:
                     flat_out[cut[i]:cut[i + 1]] = part._held(flat_u[cut[i]:cut[i + 1]] - starts[i])
             return out
+        # any order: group the ticks by stage once (a sort, not one mask per stage), then one call per stage
         idx = np.searchsorted(starts, flat_u, side="right") - 1
-        for i, part in enumerate(self.parts):
-            mask = idx == i
-            if mask.any():
-                flat_out[mask] = part._held(flat_u[mask] - starts[i])
+        order = np.argsort(idx, kind="stable")
+        cut = np.searchsorted(idx[order], np.arange(len(self.parts) + 1), side="left")
+        for i in np.flatnonzero(cut[1:] > cut[:-1]):
+            pick = order[cut[i]:cut[i + 1]]
+            flat_out[pick] = self.parts[i]._held(flat_u[pick] - starts[i])
         return out
 
     def _edges(self, hi):
@@ -116,22 +146,46 @@ class Stages(Schedule):
         return np.unique(np.concatenate([starts[1:], *inner]))
 
     def _range(self, a, b):
+        # Each interval meets a first stage (from a), a last stage (to b) and whole stages between.  The partial
+        # pieces are grouped by stage (one call per stage met), the whole stages come from a table of each stage's
+        # full range: the cost is linear in the stages and the intervals, not their product.
         starts = self.starts()
-        lo = np.full(np.shape(a), np.inf)
-        hi = np.full(np.shape(a), -np.inf)
-        for i, part in enumerate(self.parts):
-            s0 = starts[i]
-            last = i == len(self.parts) - 1
-            s1 = math.inf if last else starts[i + 1]
-            hit = (b >= s0) & ((a < s1) | last)
-            if not hit.any():
-                continue
-            pa = np.maximum(a[hit], s0) - s0
-            pb = np.minimum(b[hit], s1) - s0
-            plo, phi = part._span(pa, pb)
-            lo[hit] = np.minimum(lo[hit], plo)
-            hi[hit] = np.maximum(hi[hit], phi)
-        return lo, hi
+        shape = np.shape(a)
+        a, b = np.asarray(a, float).reshape(-1), np.asarray(b, float).reshape(-1)
+        n, count = a.size, len(self.parts)
+        ends = np.append(starts[1:], math.inf)
+        ia = np.searchsorted(starts, a, side="right") - 1
+        ib = np.maximum(np.searchsorted(starts, b, side="right") - 1, ia)
+        two = ib > ia
+        part = np.concatenate([ia, ib[two]])
+        pa = np.concatenate([a - starts[ia], np.zeros(int(np.count_nonzero(two)))])
+        pb = np.concatenate([np.minimum(b, ends[ia]) - starts[ia], b[two] - starts[ib[two]]])
+        elo, ehi = np.empty(part.size), np.empty(part.size)
+        order = np.argsort(part, kind="stable")
+        cut = np.searchsorted(part[order], np.arange(count + 1), side="left")
+        for i in np.flatnonzero(cut[1:] > cut[:-1]):
+            pick = order[cut[i]:cut[i + 1]]
+            elo[pick], ehi[pick] = self.parts[i]._span(pa[pick], pb[pick])
+        lo, hi = elo[:n].copy(), ehi[:n].copy()
+        lo[two] = np.minimum(lo[two], elo[n:])
+        hi[two] = np.maximum(hi[two], ehi[n:])
+        inner = ib - ia >= 2
+        if inner.any():
+            flo, fhi = self._full_ranges()
+            lo[inner] = np.minimum(lo[inner], _table_reduce(flo, ia[inner] + 1, ib[inner] - 1, np.minimum))
+            hi[inner] = np.maximum(hi[inner], _table_reduce(fhi, ia[inner] + 1, ib[inner] - 1, np.maximum))
+        return lo.reshape(shape), hi.reshape(shape)
+
+    def _full_ranges(self) -> tuple[list[np.ndarray], list[np.ndarray]]:
+        """Sparse tables of every stage's full range but the last (computed on first use, then kept)."""
+        if self._full is None:
+            lengths = np.diff(self.starts())
+            lo, hi = np.empty(lengths.size), np.empty(lengths.size)
+            for i, (part, n) in enumerate(zip(self.parts[:-1], lengths)):
+                plo, phi = part._span(np.zeros(1), np.full(1, n))
+                lo[i], hi[i] = plo[0], phi[0]
+            object.__setattr__(self, "_full", (_sparse(lo, np.minimum), _sparse(hi, np.maximum)))
+        return self._full
 
     def __repr__(self) -> str:
         return "stages(" + ", ".join(repr(p) for p in self.parts) + ")"
@@ -162,6 +216,9 @@ class Warmup(Schedule):
         # building the ramp validates start/curve against the target's first rate
         ramp = Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
         object.__setattr__(self, "_stages", Stages(parts=(ramp, self.target)))
+
+    def _top(self) -> float:
+        return self._stages._top()
 
     def ramp(self) -> Schedule:
         """The warmup ramp itself."""
@@ -215,10 +272,10 @@ class Restarts(Schedule):
         if self.growth != 1.0 and abs(self.growth - 1.0) < MIN_GROWTH_STEP:
             raise complain("restarts", "growth", self.growth, f"1.0, or at least {MIN_GROWTH_STEP} away from 1",
                            "cycles that change length by less than 1 % would need thousands of cycles; use 1.0")
-        total = None if self.cycles is None else int(self._lengths(self.cycles).sum())
+        total = None if self.cycles is None else self._total(self.cycles)
         if total is not None and total > MAX_TICKS:
             raise complain("restarts", "cycles", self.cycles, f"few enough that the length stays <= 2**53",
-                           f"these cycles add up to {total:.3g} ticks")
+                           f"these cycles add up to at least {total:.3g} ticks")
         object.__setattr__(self, "_length", total)
 
     @property
@@ -227,6 +284,21 @@ class Restarts(Schedule):
 
     def children(self):
         return (self.target,)
+
+    def _top(self) -> float:
+        return self.target._top()  # peak_decay <= 1: no cycle rises above the first
+
+    def _total(self, n: int) -> int:
+        """The length of the first ``n`` cycles, in time bounded whatever ``n`` (<= 2**53) is."""
+        L, g = self.target.length, self.growth
+        if g == 1.0:
+            return n * L
+        if g > 1.0:  # a single cycle passes 2**53 ticks after m cycles: more than m cannot fit, so stop there
+            m = min(n, int(math.log(MAX_TICKS / L) / math.log(g)) + 2)
+            return int(self._lengths(m).sum())
+        # shrinking cycles round to one tick from cycle m on (L * g**m < 0.5): those add one tick each
+        m = min(n, int(math.log(0.5 / L) / math.log(g)) + 2 if L > 1 else 1)
+        return int(self._lengths(m).sum()) + (n - m)
 
     def _lengths(self, n: int) -> np.ndarray:
         # One Python pow per cycle (a loop over cycles, not ticks): numpy's vectorised power can differ from it by
@@ -269,6 +341,8 @@ class Restarts(Schedule):
         return k, start, ln
 
     def _at(self, u):
+        if self.cycles == 1:  # one cycle is the target itself: nested single restarts cost what the target costs
+            return self.target._held(u)
         k, start, ln = self._locate(u)
         # A stretched cycle is read on its inner clock in one step, so the clock is rounded once, not twice:
         # a drop whose scaled position is a whole tick then lands exactly on it.
@@ -306,25 +380,34 @@ class Restarts(Schedule):
         return _cap(found[(found > 0) & (found <= hi)])
 
     def _range(self, a, b):
+        if self.cycles == 1:
+            return self.target._span(a, b)
         L = float(self.target.length)
-        ka, sa, la = self._locate(a)
-        kb, sb, lb = self._locate(b)
+        shape = np.shape(a)
+        a, b = np.asarray(a, float).reshape(-1), np.asarray(b, float).reshape(-1)
+        n = a.size
+        k, s0, ln = self._locate(np.concatenate([a, b]))  # one table for both ends
+        ka, sa, la, kb, sb, lb = k[:n], s0[:n], ln[:n], k[n:], s0[n:], ln[n:]
         da, db = np.power(self.peak_decay, ka), np.power(self.peak_decay, kb)
         same = ka == kb
-        # first (possibly partial) cycle: from a to its end, or to b within the same cycle
+        # one call to the target for three kinds of interval (so nesting costs one call per level, not three):
+        # the first (possibly partial) cycle, from a to its end or to b within the same cycle; the last partial
+        # cycle where it differs from the first; and one whole cycle
         end_a = np.where(same, ((b - sa) * L) / la, L)
-        lo1, hi1 = self.target._span(((a - sa) * L) / la, end_a)
-        lo, hi = lo1 * da, hi1 * da
-        # last (partial) cycle when it differs from the first
-        lo2, hi2 = self.target._span(np.zeros(np.shape(b)), ((b - sb) * L) / lb)
+        m = int(np.count_nonzero(~same))
+        los, his = self.target._span(np.concatenate([((a - sa) * L) / la, np.zeros(m), [0.0]]),
+                                     np.concatenate([end_a, ((b[~same] - sb[~same]) * L) / lb[~same], [L]]))
+        lo, hi = los[:n] * da, his[:n] * da
+        lo2, hi2 = np.empty(n), np.empty(n)
+        lo2[~same], hi2[~same] = los[n:n + m], his[n:n + m]
         lo = np.where(same, lo, np.minimum(lo, lo2 * db))
         hi = np.where(same, hi, np.maximum(hi, hi2 * db))
         # whole cycles strictly between: their full range, largest at ka+1, smallest at kb-1
-        full_lo, full_hi = self.target._span(np.zeros(1), np.full(1, L))
+        full_lo, full_hi = los[-1:], his[-1:]
         between = kb - ka >= 2
         lo = np.where(between, np.minimum(lo, full_lo[0] * np.power(self.peak_decay, kb - 1)), lo)
         hi = np.where(between, np.maximum(hi, full_hi[0] * np.power(self.peak_decay, ka + 1)), hi)
-        return lo, hi
+        return lo.reshape(shape), hi.reshape(shape)
 
 
 @node
@@ -339,10 +422,24 @@ class Product(Schedule):
     kind: ClassVar[str] = "product"
     left: Schedule = param(kind="schedule", doc="first factor")
     right: Schedule = param(kind="schedule", doc="second factor")
+    _ceil: float = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         _schedule(self.kind, "left", self.left)
         _schedule(self.kind, "right", self.right)
+        top = self._joint(self.left._top(), self.right._top())
+        check_top(self.kind, "right", self.right, top,
+                  f"a schedule whose rates, {self._word} left's (up to {self.left._top():.3g}), stay")
+        object.__setattr__(self, "_ceil", top)
+
+    _word: ClassVar[str] = "times"
+
+    @staticmethod
+    def _joint(a: float, b: float) -> float:
+        return a * b
+
+    def _top(self) -> float:
+        return self._ceil
 
     @property
     def length(self) -> int | None:
@@ -374,6 +471,11 @@ class Sum(Product):
     """Tick-by-tick sum of two schedules."""
 
     kind: ClassVar[str] = "sum"
+    _word: ClassVar[str] = "added to"
+
+    @staticmethod
+    def _joint(a: float, b: float) -> float:
+        return a + b
 
     def _at(self, u):
         return self.left._held(u) + self.right._held(u)
@@ -394,10 +496,18 @@ class Scaled(Schedule):
     kind: ClassVar[str] = "scale"
     target: Schedule = param(kind="schedule", doc="the schedule to scale")
     factor: float = param(kind="ratio", lo=0.0, soft=(0.01, 10.0), log=True, doc="constant multiplier")
+    _ceil: float = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         _schedule(self.kind, "target", self.target)
         self._validate()
+        top = self.target._top() * self.factor
+        check_top(self.kind, "factor", self.factor, top,
+                  f"a number whose product with the target's highest rate ({self.target._top():.3g}) is")
+        object.__setattr__(self, "_ceil", top)
+
+    def _top(self) -> float:
+        return self._ceil
 
     @property
     def length(self) -> int | None:
@@ -441,6 +551,14 @@ class Clip(Schedule):
             raise complain("clip", "low", None, "a rate when high is None", "clip needs low, high or both")
         if self.low is not None and self.high is not None and self.low > self.high:
             raise complain("clip", "low", self.low, f"<= high = {self.high!r}")
+        for name in ("low", "high"):
+            if getattr(self, name) is not None:
+                check_top("clip", name, getattr(self, name), getattr(self, name), "a rate")
+
+    def _top(self) -> float:
+        if self.high is not None:
+            return self.high
+        return max(self.target._top(), self.low)
 
     @property
     def length(self) -> int | None:
@@ -489,6 +607,9 @@ class Stretch(Schedule):
             raise complain("stretch", "target", self.target, "a schedule with a length (steps=...)",
                            "an open-ended schedule has no budget to stretch")
 
+    def _top(self) -> float:
+        return self.target._top()
+
     @property
     def length(self) -> int:
         return self.steps
@@ -503,7 +624,9 @@ class Stretch(Schedule):
         return (v * float(self.steps)) / float(self.target.length)
 
     def _at(self, u):
-        return self.target._at(self._inner(u))
+        # (u * a) / b can land an ulp past the target's length at u = steps: read the target held, so a leaf
+        # never sees a clock past its end (a poly would give NaN there, a ramp to 0 a tiny negative rate)
+        return self.target._held(self._inner(u))
 
     def _edges(self, hi):
         return _cap(self._outer(self.target._edges(self._inner(hi))))
@@ -512,7 +635,7 @@ class Stretch(Schedule):
         return self._outer(self.target._joins())
 
     def _range(self, a, b):
-        return self.target._range(self._inner(a), self._inner(b))
+        return self.target._span(self._inner(a), self._inner(b))
 
     def __repr__(self) -> str:
         return f"{self.target!r}.stretch({self.steps})"

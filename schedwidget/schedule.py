@@ -21,15 +21,29 @@ __all__ = ["Schedule", "ScheduleError", "Param", "param"]
 EDGE_CAP = 4096
 #: Largest tick or length: every whole number up to 2**53 is exact as a float64 clock.
 MAX_TICKS = 2 ** 53
+#: Highest rate a design may reach anywhere (checked at construction on a bound of every node): far above any
+#: learning rate, and low enough that no formula, sum, product or area over 2**53 ticks can overflow a float.
+MAX_RATE = 1e100
 
 
 class ScheduleError(ValueError):
     """Every bad input: names the parameter, the value given and what is allowed."""
 
 
+def _shown(value: Any) -> str:
+    """``repr(value)`` for a message: huge integers by their size, very long texts cut."""
+    if isinstance(value, Integral) and not isinstance(value, bool) and abs(int(value)) >= 10 ** 60:
+        return f"an integer of about {int(abs(int(value)).bit_length() * 0.30103) + 1} digits"
+    try:
+        text = repr(value)
+    except Exception:  # noqa: BLE001 - a message must never fail on an odd value
+        return f"a {type(value).__name__}"
+    return text if len(text) <= 300 else text[:297] + "..."
+
+
 def complain(owner: str, name: str, value: Any, allowed: str, hint: str | None = None) -> ScheduleError:
     """Build the one message format used for every bad parameter."""
-    msg = f"{owner}: {name} must be {allowed}, got {value!r}"
+    msg = f"{owner}: {name} must be {allowed}, got {_shown(value)}"
     if hint:
         msg += f" ({hint})"
     return ScheduleError(msg)
@@ -99,9 +113,14 @@ class Param:
         if self.kind == "ticklist":
             return check_ticklist(owner, name, value, int(self.lo or 0))
         if self.kind in ("rate", "ratio"):
-            if isinstance(value, bool) or not isinstance(value, Real) or not math.isfinite(value):
+            if isinstance(value, bool) or not isinstance(value, Real):
                 raise complain(owner, name, value, self.allowed(), self.hint)
-            v = float(value)
+            try:
+                v = float(value)
+            except OverflowError:  # an int too large for a float
+                v = math.inf
+            if not math.isfinite(v):
+                raise complain(owner, name, value, self.allowed(), self.hint)
             if self.lo is not None and (v < self.lo or (self.lo_open and v == self.lo)):
                 raise complain(owner, name, value, self.allowed(), self.hint)
             if self.hi is not None and (v > self.hi or (self.hi_open and v == self.hi)):
@@ -207,6 +226,10 @@ class Schedule:
     def children(self) -> tuple[Schedule, ...]:
         """The schedules this node is built from (empty for leaf shapes)."""
         return ()
+
+    def _top(self) -> float:
+        """An upper bound of every rate this node gives (from its parameters and its children's bounds)."""
+        raise NotImplementedError
 
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
@@ -329,6 +352,15 @@ class Schedule:
         for name, p in self.params().items():
             value = getattr(self, name)
             object.__setattr__(self, name, p.check(self.kind, name, value))
+
+
+def check_top(owner: str, name: str, value: Any, top: float, what: str) -> float:
+    """``top`` (an upper bound of a node's rates) if it is at most MAX_RATE, else a ScheduleError naming ``name``."""
+    if not top <= MAX_RATE:  # also catches nan
+        raise complain(owner, name, value, f"{what} <= 1e100 (the highest rate a design may reach)",
+                       f"this design could reach {top:.3g}; no learning rate comes near 1e100, and above it "
+                       "sums, products and areas over a run overflow a float")
+    return top
 
 
 def monotone_range(f, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

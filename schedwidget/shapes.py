@@ -13,7 +13,7 @@ from typing import ClassVar, Sequence
 
 import numpy as np
 
-from .schedule import EDGE_CAP, MAX_TICKS, Schedule, as_whole, complain, monotone_range, param
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, as_whole, check_top, complain, monotone_range, param
 
 __all__ = ["flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots"]
 
@@ -44,6 +44,17 @@ class _Leaf(Schedule):
 
     def _range(self, a, b):
         return monotone_range(self._at, a, b)
+
+    def _top(self) -> float:
+        # every leaf formula stays within its rate parameters (a geometric ramp within an ulp)
+        return max((v for n, p in self.params().items() if p.kind == "rate" and (v := getattr(self, n)) is not None),
+                   default=0.0)
+
+    def _validate(self) -> None:
+        super()._validate()
+        for n, p in self.params().items():
+            if p.kind == "rate" and getattr(self, n) is not None:
+                check_top(self.kind, n, getattr(self, n), getattr(self, n), "a rate")
 
 
 def _floor_not_above_peak(s) -> None:
@@ -346,6 +357,9 @@ class Knots(_Leaf):
     def length(self) -> int:
         return self.points[-1][0]
 
+    def _top(self) -> float:
+        return max(y for _, y in self.points)
+
     def _xy(self) -> tuple[np.ndarray, np.ndarray]:
         pts = np.asarray(self.points, dtype=float)
         return pts[:, 0], pts[:, 1]
@@ -367,6 +381,14 @@ class Knots(_Leaf):
         return _piecewise_range(self._at, xs, ys, a, b)
 
 
+def _real(y) -> float:
+    """``y`` as a float, inf when it is an integer too large for one (instead of OverflowError)."""
+    try:
+        return float(y)
+    except OverflowError:
+        return math.inf
+
+
 def _check_points(points) -> tuple[tuple[int, float], ...]:
     allowed = "a sequence of (tick, rate) pairs"
     if isinstance(points, (str, bytes)) or not hasattr(points, "__iter__"):
@@ -381,8 +403,9 @@ def _check_points(points) -> tuple[tuple[int, float], ...]:
         if tick is None or tick < 0 or tick > MAX_TICKS:
             raise complain("knots", f"points[{i}] tick", t, "a whole number >= 0 and <= 2**53")
         if isinstance(y, bool) or not isinstance(y, (int, float, np.floating, np.integer)) \
-                or not math.isfinite(y) or y < 0:
+                or not math.isfinite(_real(y)) or y < 0:
             raise complain("knots", f"points[{i}] rate", y, "a finite rate >= 0")
+        check_top("knots", f"points[{i}] rate", y, float(y), "a rate")
         if i == 0 and tick != 0:
             raise complain("knots", "points[0] tick", t, "0", "the first knot gives the rate at t = 0")
         if out and tick <= out[-1][0]:

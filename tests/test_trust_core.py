@@ -1,0 +1,148 @@
+"""Trust in the core: finite, non-negative rates for every valid design, bounded work, clear errors (issue 10)."""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+import pytest
+
+import schedwidget as sw
+from schedwidget import ScheduleError
+from schedwidget.export import to_python
+from schedwidget.shapes import Cosine
+
+
+def generated(s, name: str = "lr_at"):
+    """The function ``to_python`` writes for ``s``, compiled."""
+    namespace: dict = {}
+    exec(to_python(s, name=name), namespace)  # noqa: S102 - our own generated source
+    return namespace[name]
+
+
+def rate_ok(y) -> bool:
+    """A real, finite, non-negative float (not complex, not NaN)."""
+    return isinstance(y, float) and math.isfinite(y) and y >= 0
+
+
+class TestClockNeverPassesALeafsEnd:
+    """A stretch reads its target at (u * a) / b, which can pass the target's length by an ulp: the leaf is held."""
+
+    CASES = [
+        # issue 10: NaN in the core and a complex number in the generated function
+        sw.poly(0.1, steps=10**12, power=0.5).stretch(100000006),
+        # issue 10: -2.8e-17 through a ramp down to 0
+        sw.ramp(0.1, 0.0, steps=10**12).stretch(100000006),
+        # issue 10: scale_for_batch of a poly ends at NaN (its stretch is 133333335 ticks)
+        sw.poly(0.1, steps=100_000_001, power=0.9).stretch(133333335) * 0.75,
+    ]
+
+    @pytest.mark.parametrize("s", CASES, ids=["poly", "ramp", "batch_poly"])
+    def test_last_tick_and_beyond(self, s):
+        n = s.length
+        y = s(np.array([n - 1, n, n + 1, 2**53]))
+        assert np.all(np.isfinite(y)) and np.all(y >= 0)
+        assert s(n) == 0.0
+        fn = generated(s)
+        for t in (n - 1, n, n + 1, 2**53):
+            # numpy's power and Python's ** may differ by an ulp; nothing more
+            assert rate_ok(fn(t)) and fn(t) == pytest.approx(s(t), rel=4e-15, abs=0)
+
+    def test_scale_for_batch_ends_at_the_floor(self):
+        s = sw.scale_for_batch(sw.poly(0.1, steps=100_000_001, power=0.9), 128, 96)
+        assert s(s.length) == 0.0 and s(s.length + 5) == 0.0
+
+    def test_restarted_stretch_is_held_too(self):
+        s = sw.restarts(sw.poly(0.1, steps=10**12, power=0.5).stretch(100000006), cycles=2)
+        n = s.length
+        fn = generated(s)
+        for t in (n // 2 - 1, n // 2, n - 1, n, n + 3):
+            assert rate_ok(s(t)) and rate_ok(fn(t)) and fn(t) == pytest.approx(s(t), rel=4e-15, abs=0)
+
+
+class TestFloatLimits:
+    """No design can reach a rate a float cannot hold: checked at construction, with the limit in the message."""
+
+    @pytest.mark.parametrize("make, where", [  # issue 10: the first, fourth and fifth gave inf
+        (lambda: sw.flat(1e308) + sw.flat(1e308), r"flat: lr must be a rate <= 1e100"),
+        (lambda: sw.flat(6e99) + sw.flat(6e99), r"sum: right must be a schedule whose rates, added to left's"),
+        (lambda: sw.flat(1e60) * sw.flat(1e60), r"product: right must be a schedule whose rates, times left's"),
+        (lambda: sw.ramp(1.7e308, 0.0, 10, curve="cosine"), r"ramp: start must be a rate <= 1e100"),
+        (lambda: sw.one_cycle(1.7e308, steps=100, curve="cosine"), r"one_cycle: peak must be a rate <= 1e100"),
+        (lambda: sw.flat(1e-3) * 1e104, r"scale: factor must be a number whose product"),
+        (lambda: sw.knots([(0, 1e101), (5, 0.0)]), r"knots: points\[0\] rate must be a rate <= 1e100"),
+        (lambda: sw.flat(0.1).clip(low=2e100), r"clip: low must be a rate <= 1e100"),
+    ])
+    def test_refused_with_the_limit(self, make, where):
+        with pytest.raises(ScheduleError, match=where + r".*1e100"):
+            make()
+
+    def test_the_limit_itself_is_finite_everywhere(self):
+        for s in (sw.ramp(1e100, 0.0, 10, curve="cosine"), sw.one_cycle(1e100, steps=100, curve="cosine"),
+                  sw.cosine(1e100, steps=7), sw.flat(5e99) + sw.flat(5e99), sw.triangle(0.0, 1e100, 3)):
+            y = s(np.arange(s.length + 2 if s.length else 20))
+            assert np.all(np.isfinite(y)) and np.all(y >= 0)
+            fn = generated(s)
+            assert all(rate_ok(fn(int(t))) for t in range(0, 12))
+
+    @pytest.mark.parametrize("value", [10**400, -10**400, 10**5000], ids=["e400", "-e400", "e5000"])
+    def test_huge_integers_are_refused_not_overflowed(self, value):
+        with pytest.raises(ScheduleError, match=r"flat: lr must be a finite rate >= 0, got an integer of about"):
+            sw.flat(value)
+        with pytest.raises(ScheduleError, match=r"knots: points\[1\] rate must be a finite rate >= 0"):
+            sw.knots([(0, 0.1), (5, value)])
+
+
+class TestBoundedWork:
+    """Every design is built and evaluated in bounded time; nesting costs one child call per level."""
+
+    def test_restarts_with_2_53_cycles(self):
+        t0 = time.perf_counter()
+        a = sw.restarts(sw.cosine(0.1, steps=1), cycles=2**53)
+        b = sw.restarts(sw.cosine(0.1, steps=100), cycles=2**52, growth=0.5)
+        with pytest.raises(ScheduleError, match=r"restarts: cycles must be few enough that the length stays <= 2\*\*53"):
+            sw.restarts(sw.cosine(0.1, steps=100), cycles=2**53, growth=2.0)
+        assert a.length == 2**53
+        assert b(b.length) == 0.0 and b(10**15) == 0.1  # one-tick cycles read cosine at its start
+        assert time.perf_counter() - t0 < 1.0  # was over 30 s: a Python loop over every cycle
+
+    def test_shrinking_cycles_length_matches_the_loop(self):
+        # the closed form (one tick per cycle once they bottom out) against a plain sum over every cycle
+        for L, g, n in [(100, 0.5, 40), (7, 0.7, 100), (1, 0.9, 10), (1000, 0.99, 2000)]:
+            s = sw.restarts(sw.cosine(0.1, steps=L), cycles=n, growth=g)
+            assert s.length == sum(max(1, math.floor(L * g**k + 0.5)) for k in range(n))
+
+    def test_growing_cycles_length_matches_the_loop(self):
+        for L, g, n in [(100, 2.0, 40), (7, 1.5, 60), (3, 1.01, 300)]:
+            s = sw.restarts(sw.cosine(0.1, steps=L), cycles=n, growth=g)
+            assert s.length == sum(max(1, math.floor(L * g**k + 0.5)) for k in range(n))
+
+    @staticmethod
+    def leaf_calls(monkeypatch, s, a, b) -> int:
+        calls = []
+        original = Cosine._range
+
+        def counted(self, x, y):
+            calls.append(np.size(x))
+            return original(self, x, y)
+
+        monkeypatch.setattr(Cosine, "_range", counted)
+        s._span(np.asarray(a, float), np.asarray(b, float))
+        return len(calls)
+
+    @pytest.mark.parametrize("cycles", [1, 2])
+    def test_nested_restarts_call_the_leaf_once(self, monkeypatch, cycles):
+        # was three calls per level (cost x3 per level: 10 levels took 7-21 s to draw)
+        s = sw.cosine(0.1, steps=10)
+        for _ in range(12):
+            s = sw.restarts(sw.warmup(s, steps=3), cycles=cycles, peak_decay=0.9)
+        assert self.leaf_calls(monkeypatch, s, [0.0, 5.0], [float(s.length), 40.0]) <= 1
+
+    def test_wide_stages_call_each_stage_at_most_twice(self, monkeypatch):
+        parts = [sw.cosine(0.1, steps=5 + i % 7) for i in range(500)]
+        s = sw.stages(*parts)
+        a = np.arange(0.0, s.length, 3.0)
+        # each stage is met by many intervals but called once for its pieces (and once for its full range)
+        assert self.leaf_calls(monkeypatch, s, a, a + 3.0) <= 500
+        assert self.leaf_calls(monkeypatch, s, [0.0], [float(s.length)]) <= 2 + 499
