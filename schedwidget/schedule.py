@@ -236,7 +236,13 @@ class Schedule:
         """The rate at integer tick(s) ``t``: a float for a scalar, a float64 array for an array."""
         if isinstance(t, int) and not isinstance(t, bool) and t > MAX_TICKS:
             raise complain(self.kind, "t", t, "a tick <= 2**53", "above that, ticks are not exact on a float64 clock")
-        arr = np.asarray(t)
+        if isinstance(t, np.ma.MaskedArray) and np.ma.is_masked(t):  # a masked tick has no rate: never read its fill
+            raise complain(self.kind, "t", t, "ticks with no masked entries")
+        try:
+            arr = np.asarray(t)
+        except (ValueError, TypeError, OverflowError, MemoryError):  # ragged lists, objects numpy cannot hold
+            raise complain(self.kind, "t", t, "a whole number of ticks (int or integer array)",
+                           "a list of ticks must be flat or rectangular") from None
         if arr.dtype.kind in "iu":
             u = arr.astype(np.float64)
         elif arr.dtype.kind == "f":

@@ -146,3 +146,32 @@ class TestBoundedWork:
         # each stage is met by many intervals but called once for its pieces (and once for its full range)
         assert self.leaf_calls(monkeypatch, s, a, a + 3.0) <= 500
         assert self.leaf_calls(monkeypatch, s, [0.0], [float(s.length)]) <= 2 + 499
+
+
+class TestCallInputs:
+    """``s(t)`` gives a value or a ScheduleError for anything passed as ``t``, never another exception."""
+
+    s = sw.stages(sw.cosine(0.1, steps=10), sw.flat(0.01))
+
+    @pytest.mark.parametrize("t, expected", [
+        (np.array(3), 0.1 * (1 + math.cos(math.pi * 0.3)) / 2),  # Loshchilov & Hutter 2017, eq. 5
+        (np.array(12.0), 0.01),
+        (np.int8(10), 0.01),
+        (np.float16(0.0), 0.1),
+        (2**53, 0.01),
+    ], ids=["0d-int", "0d-float", "int8", "float16", "2**53"])
+    def test_scalars_of_any_integer_kind(self, t, expected):
+        y = self.s(t)
+        assert isinstance(y, float) and y == pytest.approx(expected, rel=1e-15)
+
+    @pytest.mark.parametrize("t", [
+        [[1, 2], [3]], np.array([1, 2], dtype=object), 10**30, -10**30, [10**30, 1], [2**64], np.uint64(2**63),
+        True, np.array([True]), 1 + 2j, float("nan"), "3", {1: 2}, np.ma.array([1, 2], mask=[0, 1]), 2**53 + 1,
+        np.array([1e300]), [[0, -1]],
+    ], ids=lambda t: type(t).__name__)
+    def test_everything_else_is_a_schedule_error(self, t):
+        with pytest.raises(ScheduleError, match=r"stages: t must be"):
+            self.s(t)
+
+    def test_an_unmasked_masked_array_reads_its_data(self):
+        assert np.array_equal(self.s(np.ma.array([1, 12])), self.s(np.array([1, 12])))
