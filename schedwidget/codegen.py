@@ -24,8 +24,12 @@ from .schedule import Schedule, ScheduleError, complain
 __all__ = ["check_name", "function_source", "UNITS"]
 
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
-#: Names the generated code itself uses at module level; a function of that name would shadow them.
-TAKEN = frozenset({"math", "bisect"}) | frozenset(dir(builtins))
+#: Stems of the generated code's own local names (``r1``, ``u2``, ``starts1``...); each is followed by a number.
+HELPER_STEMS = ("r", "u", "c", "x", "k", "i", "start", "span", "at", "level", "xs", "ys", "slope", "starts", "spans")
+_HELPER = re.compile("(?:" + "|".join(HELPER_STEMS) + r")[0-9]+")
+#: Names the generated code itself uses: its modules, the builtins it calls, its argument ``t`` and clock ``u``.
+#: A function of one of these names would shadow them (helpers of the form ``<stem><number>`` are refused too).
+TAKEN = frozenset({"math", "bisect", "t", "u"}) | frozenset(dir(builtins))
 #: Above this many pieces a lookup table and ``bisect`` replace an if/elif chain.
 CHAIN_MAX = 8
 #: Most restart cycles written out as a table for an unbounded clock (later cycles are found by a loop).
@@ -41,13 +45,15 @@ def check_name(owner: str, name: object, taken: frozenset[str] = TAKEN) -> str:
     """
     plain = (isinstance(name, str) and name.isascii() and _IDENT.fullmatch(name) is not None
              and not keyword.iskeyword(name) and not keyword.issoftkeyword(name)
-             and not (name.startswith("__") and name.endswith("__")))
+             and not name.startswith("__"))  # dunders, and __x, which a class body would mangle
     if not plain:
         raise complain(owner, "name", name, "a plain Python identifier (ASCII letters, digits and _, "
-                       "not starting with a digit, not a keyword, not a dunder)", "for example 'lr_at'")
-    if name in taken:
+                       "not starting with a digit or with __, not a keyword)", "for example 'lr_at'")
+    if name in taken or _HELPER.fullmatch(name):
         raise complain(owner, "name", name, "a name the generated code does not use itself",
-                       "math, bisect, Python's builtins and the snippet's own names are taken; try 'lr_at'")
+                       "math, bisect, t, u, Python's builtins, the generated helpers (r1, u1, starts1, ...: "
+                       f"{', '.join(HELPER_STEMS)} followed by a number) and the snippet's own names are taken; "
+                       "try 'lr_at'")
     return name  # type: ignore[return-value]
 
 
@@ -83,6 +89,7 @@ class _Writer:
         self.modules = {"math"}
 
     def fresh(self, stem: str) -> str:
+        assert stem in HELPER_STEMS, f"{stem!r}: add it to HELPER_STEMS so that check_name refuses it"
         self.count[stem] = self.count.get(stem, 0) + 1
         return f"{stem}{self.count[stem]}"
 

@@ -318,6 +318,35 @@ class TestNames:
         fn, _ = compile_fresh(to_python(DEMO, name="flake_rate"), name="flake_rate")
         assert fn.__name__ == "flake_rate"
 
+    @pytest.mark.parametrize("name", ["t", "u", "r1", "u2", "k1", "starts1", "spans3", "xs1", "level12", "slope1",
+                                      "__x", "__lr_at"])
+    def test_the_generated_codes_own_names_are_refused(self, name):
+        """The argument, the clock, the helpers and tables it writes, and mangled names are taken (issue 10)."""
+        with pytest.raises(ScheduleError, match=r"to_python: name must be (a name the generated code does not use "
+                                                r"itself|a plain Python identifier.*not starting with a digit or "
+                                                r"with __)"):
+            to_python(DEMO, name=name)
+
+    @pytest.mark.parametrize("name", ["rate", "r", "start", "u_at", "lr1", "_private", "x_1"])
+    def test_near_misses_are_allowed(self, name):
+        """A stem without a number, or another name with one, is a plain name."""
+        fn, _ = compile_fresh(to_python(DEMO, name=name), name=name)
+        assert fn(5750) == DEMO(5750)
+
+    def test_every_helper_the_writer_uses_is_refused(self):
+        """Each name a large generated function assigns is refused as a function name."""
+        import ast
+        from schedwidget import drops, knots, restarts, triangle
+        big = (restarts(drops(0.1, at=tuple(range(1, 40)), steps=50), cycles=3, growth=1.5)
+               >> knots([(i, 0.01 + i * 1e-4) for i in range(0, 30)], interp="log")
+               >> triangle(0.0, 0.1, 5, shrink=0.5, steps=40) >> DEMO.stretch(100))
+        tree = ast.parse(to_python(big))
+        names = {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store)}
+        assert {"u", "t", "k1", "starts1", "spans1", "at1", "level1", "xs1", "ys1", "slope1"} <= names
+        for name in names:
+            with pytest.raises(ScheduleError, match=r"to_python: name must be a name the generated code does not"):
+                to_python(DEMO, name=name)
+
 
 class TestArguments:
     """Bad arguments to to_python raise ScheduleError naming them."""
