@@ -193,7 +193,7 @@ class TestReplayReading:
         p = ReplayPanel(epoch_design())
         p.controls["factor"].text.value = 0.1003
         before = p.replay.drop_epochs
-        p.controls["factor"].slider.value = 0.1002   # the snapped value a browser sent back
+        p.controls["factor"].slider.set_state({"value": 0.1002})  # the snapped value a browser sent back
         assert p.rule["factor"] == 0.1003 and p.controls["factor"].text.value == 0.1003
         assert p.replay.drop_epochs == before
 
@@ -361,14 +361,16 @@ class TestMountedInDesigner:
         assert d.batch == 1024 and d.error == ""
         assert float(np.max(rescale.old_line.y)) == pytest.approx(0.8)
 
-    def test_only_the_shown_tab_holds_its_figure(self):
-        """A figure in a hidden tab is taken out (bqplot would lay it out at a negative size)."""
+    def test_figures_stay_and_hidden_panes_keep_their_width(self):
+        """Figures are never taken out; a hidden pane is zero-high and invisible, never display: none
+        (bqplot lays a figure out from its element's size, which is 0 in a display: none tab)."""
         from schedwidget.widget.designer import ScheduleDesigner
 
         d = ScheduleDesigner()
         replay, rescale = mounted(d, "Replay"), mounted(d, "Rescale")
-        assert rescale.figure_box.children == (rescale.figure,) and replay.figure_box.children == ()
-        mounted(d, "Replay")
-        assert replay.figure_box.children == (replay.figure,) and rescale.figure_box.children == ()
         d.tabs.selected_index = 0
-        assert replay.figure_box.children == () == rescale.figure_box.children
+        assert replay.figure_box.children == (replay.figure,) and rescale.figure_box.children == (rescale.figure,)
+        for i in (2, 3):
+            layout = d.tabs.children[i].layout
+            assert layout.display is None and layout.width is None
+            assert (layout.height, layout.visibility) == ("0px", "hidden")

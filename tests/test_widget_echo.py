@@ -35,13 +35,13 @@ class TestParamControlEcho:
     def test_snapped_neighbour_is_ignored(self):
         """The box's exact 0.1003 stays when the slider comes back snapped to 0.1 + 0.4 steps away."""
         c, seen = self.control(0.1003)
-        c.slider.value = 0.1003 - 0.4 * c.slider.step   # what a browser snapping to its grid sends back
+        c.slider.set_state({"value": 0.1003 - 0.4 * c.slider.step})  # what a browser snapping to its grid sends
         assert seen == [] and c.text.value == 0.1003
 
     def test_a_whole_step_is_an_edit(self):
         """Moving the slider by one step is a real edit (rounded to the grid's digits)."""
         c, seen = self.control(0.1)
-        c.slider.value = 0.1 + c.slider.step
+        c.slider.set_state({"value": 0.1 + c.slider.step})
         assert seen == [0.102]
 
     def test_log_slider_echo(self):
@@ -49,9 +49,9 @@ class TestParamControlEcho:
         d = ScheduleDesigner(warmup(cosine(0.05, steps=900), 100))
         c = d.control(0, "peak")
         before = d.schedule
-        c.slider.value = 10 ** -1.30            # 0.0501..., the grid point next to log10(0.05) = -1.30103
+        c.slider.set_state({"value": 10 ** -1.30})  # 0.0501..., the grid point next to log10(0.05) = -1.30103
         assert d.schedule == before and c.text.value == 0.05 and d.error == ""
-        c.slider.value = 10 ** -1.31
+        c.slider.set_state({"value": 10 ** -1.31})
         assert d.schedule.target.peak == pytest.approx(float(f"{10 ** -1.31:.3g}"))
 
     def test_log_slider_hides_its_readout(self):

@@ -12,8 +12,11 @@ never reports it back as an edit.
 
 A slider's grid may not hold the exact value (0.05 on a log slider, any value
 typed in the box); the browser then snaps the slider to the nearest grid point
-and sends that back.  Such an echo, less than half a slider step away from the
-value the kernel last showed, is ignored: the exact text box stays authoritative.  Linear
+and sends that back.  Such an echo (a value *from the browser* less than half a
+slider step away from the value the kernel last showed) is ignored: the exact
+text box stays authoritative.  A value set from code is never an echo, however
+small the change: it always becomes the design, so the box, the slider and the
+design agree after any sequence of changes.  Linear
 sliders use round steps (1, 2 or 5 times a power of ten) so common values lie
 on the grid; log sliders hide their readout (the exact box is beside them, and
 a value of 0 would read as the slider's lowest end).
@@ -227,9 +230,12 @@ class ParamControl:
             self._quiet -= 1
 
     def is_echo(self, value: Any) -> bool:
-        """Whether a slider value is the browser snapping the shown value to its grid (under half a step away)."""
+        """Whether a slider value is the browser snapping the shown value to its grid (under half a step away).
+
+        Only a value that came from the browser can be an echo; one set from code is always an edit.
+        """
         s, ref = self.slider, self._shown
-        if ref is None or not isinstance(s, (W.FloatSlider, W.FloatLogSlider)):
+        if ref is None or not isinstance(s, (W.FloatSlider, W.FloatLogSlider)) or not from_browser(s, "value"):
             return False
         if isinstance(s, W.FloatLogSlider):
             if not (value > 0 and ref > 0):
@@ -269,10 +275,24 @@ class ParamControl:
         else:
             value = change["new"]
         self.on_commit(self.name, value)
+        if w is self.slider and self.text is not None and self.none is None:
+            # a moved slider shows what the design now holds, also when its value rounded to the design's
+            # own (no redraw then, so nothing else would put it back)
+            self.show(self.text.value)
 
     def widgets(self) -> list[W.Widget]:
         """Every widget of this row."""
         return [w for w in (self.slider, self.text, self.none) if w is not None]
+
+
+def from_browser(widget: W.Widget, trait: str) -> bool:
+    """Whether the change of ``trait`` being observed now came from the front end.
+
+    ipywidgets applies a front-end update under a lock on the traits it sets and fires the observers
+    before releasing it (``Widget.set_state``: "Properties must be locked when ... notifications are
+    fired"); a value assigned from Python is never under that lock.
+    """
+    return trait in getattr(widget, "_property_lock", {})
 
 
 def put(widget: W.Widget, value: Any, trait: str = "value") -> None:
