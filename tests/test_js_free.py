@@ -58,4 +58,4 @@ class TestScheduleDesignerModules:
                if not allowed(w._model_module) or not allowed(getattr(w, "_view_module", None))}
         assert bad == set()
         names = {type(w).__name__ for w in widgets}
-        assert {"Figure", "Lines", "LinearScale", "FloatLogSlider", "Tab", "Textarea"} <= names
+        assert {"Figure", "Lines", "LinearScale", "FloatLogSlider", "ToggleButtons", "Textarea"} <= names

@@ -259,13 +259,20 @@ class TestOtherPanels:
         assert d.tabs.children[2].children == (panel,)
         assert d.error == ""
 
-    def test_a_missing_panel_is_a_note(self, monkeypatch):
-        """A panel module that is not installed leaves a one-line note, not an exception."""
+    def test_a_hidden_pane_keeps_its_size(self):
+        """A hidden pane is kept in the layout at zero height and hidden, never emptied or display: none,
+        so a figure in it always has its width (bqplot drew -156 px wide plots in display: none tabs)."""
         d = ScheduleDesigner()
-        d.later[3] = ("not_a_panel", "Nothing")
-        d.tabs.selected_index = 3
-        (note,) = d.tabs.children[3].children
-        assert note.value == "<i>The not_a_panel panel is not part of this installation.</i>"
+        d.tabs.bar.value = 2            # what a click on the "Replay" button sends
+        (panel,) = d.tabs.children[2].children
+        assert d.tabs.selected_index == 2 and d.tabs.children[2].layout.height is None
+        d.tabs.bar.value = 3
+        hidden = d.tabs.children[2].layout
+        assert (hidden.height, hidden.overflow, hidden.visibility) == ("0px", "hidden", "hidden")
+        assert hidden.display is None and d.tabs.children[2].children == (panel,)
+        assert panel.figure in panel.figure_box.children
+        for i, pane in enumerate(d.tabs.children):
+            assert (pane.layout.visibility is None) == (i == 3)
 
 
 class TestStageWords:

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import functools
 import html
-import importlib
 import os
 from contextlib import contextmanager
 from numbers import Integral
@@ -33,6 +32,8 @@ from .compare import ComparePanel, Pin
 from .controls import ParamControl, check_error
 from .form import rescale
 from .readout import ReadoutPanel
+from .replay import ReplayPanel
+from .rescale import RescalePanel
 from .stages import StagesPanel
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
@@ -60,6 +61,41 @@ def _whole(owner: str, name: str, value: Any, optional: bool) -> int | None:
     if isinstance(value, bool) or not isinstance(value, Integral) or value < 1:
         raise complain(owner, name, value, "a whole number >= 1" + (" or None" if optional else ""))
     return int(value)
+
+
+class Tabs(W.VBox):
+    """Panes under a tab bar (``bar``, toggle buttons, class ``sw-tabs``); ``children[i]`` is pane ``i``.
+
+    A hidden pane is not taken out of the layout (``display: none``) as a tab widget's pane would be:
+    it keeps its width, gets ``height: 0`` and ``visibility: hidden``.  A bqplot figure lays itself out
+    from its element's size when it first renders, and in a ``display: none`` pane that size is 0, so
+    the plot area came out negative (width 0 - 156 px of margins); the browser's bar has no hidden
+    state of its own either, so a pane filled by the kernel after the person moved on is never 0-sized.
+    """
+
+    selected_index = Int(0, help="the pane shown")
+
+    def __init__(self, panes: list[W.Widget | None], titles: tuple[str, ...]) -> None:
+        self.titles = tuple(titles)
+        self.bar = W.ToggleButtons(options=[(t, i) for i, t in enumerate(self.titles)], value=0,
+                                   style={"button_width": "7em"})
+        self.bar.add_class("sw-tabs")
+        super().__init__([W.Box([] if p is None else [p]) for p in panes],
+                         layout={"border_top": "1px solid #e5e7eb", "padding": "4px 0 0 0"})
+        self.bar.observe(lambda ch: setattr(self, "selected_index", ch["new"]), names="value")
+        self._show({"new": 0})
+
+    @observe("selected_index")
+    def _show(self, change: dict) -> None:
+        i = change["new"]
+        if self.bar.value != i:
+            self.bar.value = i
+        for j, pane in enumerate(self.children):
+            shown = j == i
+            with pane.layout.hold_sync():
+                pane.layout.height = None if shown else "0px"
+                pane.layout.overflow = None if shown else "hidden"
+                pane.layout.visibility = None if shown else "hidden"
 
 
 class ScheduleDesigner(W.VBox):
@@ -140,14 +176,12 @@ class ScheduleDesigner(W.VBox):
                       layout={"width": "430px", "flex": "0 0 auto", "padding": "0 8px 0 0"})
         right = W.VBox([self.canvas, self.compare.pin_row, self.readout],
                        layout={"flex": "1 1 auto", "min_width": "0", "width": "auto"})
-        # Replay and Rescale start when their tab is first opened: a bqplot figure laid out in a hidden
-        # tab gets a negative size and bqplot logs errors for it; it also keeps the designer quick to open.
-        self.later = {2: ("replay", "ReplayPanel"), 3: ("rescale", "RescalePanel")}
-        self.tabs = W.Tab([self.compare, self.export, W.VBox([]), W.VBox([])],
-                          titles=("Compare", "Export", "Replay", "Rescale"))
+        # Replay and Rescale start when their tab is first opened (keeps the designer quick to open)
+        self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}
+        self.tabs = Tabs([self.compare, self.export, None, None], ("Compare", "Export", "Replay", "Rescale"))
         self.export.visible = lambda: self.tabs.selected_index == 1
         self.tabs.observe(self.guarded(self._tab_changed), names="selected_index")
-        self.children = [W.HBox([left, right]), self.tabs]
+        self.children = [W.HBox([left, right]), self.tabs.bar, self.tabs]
         self.add_class("sw-designer")
         self._hold = 0
         self._refresh()
@@ -348,13 +382,7 @@ class ScheduleDesigner(W.VBox):
     def _tab_changed(self, change: dict) -> None:
         i = change["new"]
         if i in self.later:
-            module, name = self.later.pop(i)
-            self.tabs.children[i].children = (self._mount(module, name),)
-        # a figure in a hidden tab would be laid out at a negative size: only the shown tab keeps its figure
-        for j, tab in enumerate(self.tabs.children):
-            for panel in tab.children:
-                if hasattr(panel, "show_figure"):
-                    panel.show_figure(j == i)
+            self.tabs.children[i].children = (self.later.pop(i)(self),)
         if self.export.stale and self.export.visible():
             self.export.refresh()
 
@@ -367,19 +395,6 @@ class ScheduleDesigner(W.VBox):
     def _show_error(self, change: dict) -> None:
         if hasattr(self, "error_line"):
             self.error_line.value = html.escape(change["new"])
-
-    # ------------------------------------------------------------ panels by others
-    def _mount(self, module: str, name: str) -> W.Widget:
-        """Another helper's panel, or a one-line note if it is not installed or fails to start."""
-        try:
-            mod = importlib.import_module(f"{__package__}.{module}")
-            return getattr(mod, name)(self)
-        except ModuleNotFoundError as exc:
-            if exc.name == f"{__package__}.{module}":
-                return W.HTML(f"<i>The {module} panel is not part of this installation.</i>")
-            return W.HTML(f"<i>The {module} panel could not start: {html.escape(str(exc))}</i>")
-        except Exception as exc:
-            return W.HTML(f"<i>The {module} panel could not start: {html.escape(check_error(exc))}</i>")
 
     # ------------------------------------------------------------ display
     def summary(self) -> str:

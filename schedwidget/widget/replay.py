@@ -229,12 +229,6 @@ class ReplayPanel(W.VBox):
         self.controls[name].show(value)  # the box and the slider agree, however the value was set
         self.refresh()
 
-    def show_figure(self, on: bool) -> None:
-        """Attach the figure (``on``) or take it out while the panel's tab is hidden (no layout at size 0)."""
-        children = (self.figure,) if on else ()
-        if self.figure_box.children != children:
-            self.figure_box.children = children
-
     def _rate_axis_changed(self, change: dict) -> None:
         log = change["new"] == "log"
         self.ys = self.ys_log if log else self.ys_linear

@@ -180,12 +180,6 @@ class RescalePanel(W.VBox):
         if self.message.value != value:
             self.message.value = value
 
-    def show_figure(self, on: bool) -> None:
-        """Attach the figure (``on``) or take it out while the panel's tab is hidden (no layout at size 0)."""
-        children = (self.figure,) if on else ()
-        if self.figure_box.children != children:
-            self.figure_box.children = children
-
     def _design_changed(self, change: dict) -> None:
         if change["name"] == "batch" and change["new"] and self.from_batch.value != change["new"]:
             self.from_batch.value = change["new"]  # its observer refreshes

@@ -1,8 +1,9 @@
 """The teaching and the replay-and-rescale notebooks in JupyterLab: run all, open every tab, no widget errors.
 
 The tour's module drives the designer in detail; this one guards the other shipped
-notebooks against errors that only a browser shows (a figure laid out in a hidden
-tab once logged bqplot "negative width" errors).
+notebooks against errors that only a browser shows (a figure first laid out in a
+display: none tab logged bqplot "negative width/height (-156/-60)" errors; hidden
+panes now keep their width, see ``Tabs`` in the designer).
 """
 
 from __future__ import annotations
@@ -33,7 +34,7 @@ def test_runs_and_every_tab_opens_cleanly(browser, other_server, name):
         open_and_run(page, other_server.url(name))
         if page.locator(".sw-designer").count():
             wait_for_curve(page, ".sw-designer")
-            tabs = page.locator(".sw-designer").first.locator(".lm-TabBar-tab")
+            tabs = page.locator(".sw-designer").first.locator(".sw-tabs button")
             for i in range(tabs.count()):
                 tabs.nth(i).click()
                 page.wait_for_timeout(400)
