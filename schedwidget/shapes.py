@@ -343,10 +343,17 @@ class Knots(_Leaf):
     points: tuple[tuple[int, float], ...] = param(kind="points", doc="(tick, rate) pairs; the first at tick 0")
     interp: str = param("linear", kind="choice", choices=("linear", "log", "hold"),
                         doc="between knots: straight line, straight line in log(rate), or hold the left value")
+    steps: int | None = param(None, kind="ticks", lo=1, soft=TICK_SOFT, optional=True,
+                              doc="length in ticks, >= the last knot's tick (the last rate is held up to it); "
+                                  "None: the last knot's tick")
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "points", _check_points(self.points))
         self._validate()
+        last = self.points[-1][0]
+        if self.steps is not None and self.steps < last:
+            raise complain("knots", "steps", self.steps, f"a whole number >= {last} (the last knot's tick) or None",
+                           "the design cannot end before its last knot")
         if self.interp == "log":
             for i, (_, y) in enumerate(self.points):
                 if y <= 0:
@@ -355,10 +362,14 @@ class Knots(_Leaf):
 
     @property
     def length(self) -> int:
-        return self.points[-1][0]
+        return self.points[-1][0] if self.steps is None else self.steps
 
     def _top(self) -> float:
         return max(y for _, y in self.points)
+
+    def __repr__(self) -> str:
+        text = Schedule.__repr__(self)  # steps=None (the default) is left out, so older reprs read the same
+        return text.replace(", steps=None)", ")") if self.steps is None else text
 
     def _xy(self) -> tuple[np.ndarray, np.ndarray]:
         pts = np.asarray(self.points, dtype=float)
@@ -515,10 +526,18 @@ def one_cycle(peak: float, steps: int, low: float | None = None, final: float | 
     return OneCycle(peak=peak, steps=steps, low=lo, final=fin, tail=tail, curve=curve)
 
 
-def knots(points: Sequence[tuple[int, float]], interp: str = "linear") -> Schedule:
-    """Through ``(tick, rate)`` pairs; the length is the last knot's tick.
+def knots(points: Sequence[tuple[int, float]], interp: str = "linear", steps: int | None = None) -> Schedule:
+    """Through ``(tick, rate)`` pairs; the length is ``steps``, or the last knot's tick when None.
+
+    After the last knot its rate is held.  A logged trace of n rates, one per tick,
+    is the design ``knots(list(enumerate(rates)), interp="hold", steps=n)``: its
+    length is the trace's length, and tick n - 1 has the last logged rate.
 
     >>> knots([(0, 1.0), (10, 0.0)])(5)
     0.5
+    >>> trace = [0.1, 0.1, 0.05]
+    >>> s = knots(list(enumerate(trace)), interp="hold", steps=len(trace))
+    >>> s.length, s(2)
+    (3, 0.05)
     """
-    return Knots(points=points, interp=interp)  # type: ignore[arg-type]
+    return Knots(points=points, interp=interp, steps=steps)  # type: ignore[arg-type]

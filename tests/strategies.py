@@ -49,7 +49,8 @@ def leaves(draw, finite: bool = True):
     ticks = sorted(draw(st.sets(st.integers(1, 400), min_size=1, max_size=5)))
     interp = draw(st.sampled_from(["linear", "log", "hold"]))
     pts = [(0, draw(rates))] + [(t, draw(rates)) for t in ticks]
-    return sw.knots(pts, interp=interp)
+    extra = draw(st.one_of(st.none(), st.integers(0, 50)))  # steps past the last knot hold its rate
+    return sw.knots(pts, interp=interp, steps=None if extra is None else ticks[-1] + extra)
 
 
 def combine(children):

@@ -7,7 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from schedwidget import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, restarts, triangle
+from schedwidget import ScheduleError, cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, restarts
+from schedwidget import triangle
 
 
 def stepped(torch, make, n, lr=0.1):
@@ -205,6 +206,31 @@ class TestKnotsAndFlat:
 
     def test_flat(self):
         assert flat(0.3)(10**12) == 0.3 and flat(0.3).length is None
+
+    def test_a_trace_of_n_rates_is_a_design_of_length_n(self):
+        """issue 10: a design rebuilt from a logged trace was one tick short of the trace (length = last tick)."""
+        trace = [0.0, 0.05, 0.1, 0.1, 0.01, 0.01]
+        s = knots(list(enumerate(trace)), interp="hold", steps=len(trace))
+        assert s.length == len(trace)
+        assert s(np.arange(len(trace))).tolist() == trace
+        assert s(len(trace)) == s(10**9) == 0.01  # past the end: held
+        assert knots(list(enumerate(trace)), interp="hold").length == len(trace) - 1  # the default is unchanged
+
+    @pytest.mark.parametrize("interp", ["linear", "log", "hold"])
+    def test_the_last_rate_is_held_up_to_steps(self, interp):
+        s = knots([(0, 0.1), (10, 0.02)], interp=interp, steps=30)
+        assert s.length == 30 and s(10) == s(20) == s(30) == s(31) == pytest.approx(0.02, rel=1e-15)
+        assert s(5) == knots([(0, 0.1), (10, 0.02)], interp=interp)(5)
+
+    def test_steps_before_the_last_knot_is_refused(self):
+        with pytest.raises(ScheduleError, match=r"knots: steps must be a whole number >= 10 \(the last knot's tick\) "
+                                                r"or None, got 9"):
+            knots([(0, 0.1), (10, 0.0)], steps=9)
+
+    def test_repr_rebuilds_and_leaves_out_the_default(self):
+        a, b = knots([(0, 0.1), (10, 0.0)]), knots([(0, 0.1), (10, 0.0)], steps=12)
+        assert repr(a) == "knots(points=((0, 0.1), (10, 0.0)), interp='linear')"
+        assert eval(repr(b), {"knots": knots}) == b != a  # noqa: S307 - repr is valid Python by design
 
 
 class TestEvaluationProtocol:
