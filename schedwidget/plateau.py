@@ -17,11 +17,18 @@ from .codegen import check_name
 from .metrics import values_of
 from .schedule import Param, Schedule, ScheduleError, complain, param
 
-__all__ = ["replay_plateau", "plateau_source", "PlateauReplay", "PlateauRule", "Drop", "lead_in"]
+__all__ = ["replay_plateau", "plateau_source", "PlateauReplay", "PlateauRule", "Drop", "lead_in", "TORCH_MIN_DROP"]
 
 #: A rate within this fraction above the floor counts as at the floor, and a drop leaves it unchanged
 #: (0.1 * 0.1**4 is 1.0000000000000004e-05, a hair above a floor of 1e-05). Every other drop is applied.
 NEGLIGIBLE = 1e-9
+#: ``min_drop`` that reproduces torch's ReduceLROnPlateau with its default ``eps=1e-8`` (torch applies a new
+#: rate only when ``old_lr - new_lr > eps``; torch/optim/lr_scheduler.py, ReduceLROnPlateau._reduce_lr).
+TORCH_MIN_DROP = 1e-8
+#: Attributes and methods of the generated class: a class of the same name would read confusingly.
+MEMBERS = frozenset({"SETTINGS", "rate", "update", "state", "load_state", "epoch", "level", "best", "best_at",
+                     "count", "wait", "start_lr", "lead_in", "goal", "factor", "patience", "tolerance", "relative",
+                     "wait_after_drop", "floor", "min_drop"})
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -137,6 +144,19 @@ def lead_in(base: Schedule | None) -> int:
     return 0
 
 
+def _check_min_drop(owner: str, min_drop: Any) -> float:
+    try:
+        ok = not isinstance(min_drop, bool) and isinstance(min_drop, (int, float, np.number)) \
+            and math.isfinite(min_drop) and min_drop >= 0
+    except OverflowError:  # an int too large for a float: math.isfinite(10**400) overflows
+        ok = False
+    if not ok:
+        raise complain(owner, "min_drop", min_drop, "a finite rate >= 0",
+                       f"0 applies every drop that lowers the rate; {TORCH_MIN_DROP!r} skips drops of "
+                       "1e-8 or less, as torch's ReduceLROnPlateau does by default")
+    return float(min_drop)
+
+
 def _check_start(owner: str, start_lr: Any, rule: PlateauRule, base: Schedule | None, hold: int) -> float:
     if base is not None and not isinstance(base, Schedule):
         raise complain(owner, "base", base, "None or a Schedule on the epoch clock (e.g. warmup(flat(0.1), 5))")
@@ -145,8 +165,12 @@ def _check_start(owner: str, start_lr: Any, rule: PlateauRule, base: Schedule | 
         if start_lr <= 0.0:
             raise complain(owner, "start_lr", None, "a rate > 0",
                            f"base is 0 at epoch {hold}, the end of its warmup; pass start_lr explicitly")
-    if isinstance(start_lr, bool) or not isinstance(start_lr, (int, float, np.number)) \
-            or not math.isfinite(start_lr) or start_lr <= 0:
+    try:
+        finite = not isinstance(start_lr, bool) and isinstance(start_lr, (int, float, np.number)) \
+            and math.isfinite(start_lr)
+    except OverflowError:  # an int too large for a float: math.isfinite(10**400) overflows
+        finite = False
+    if not finite or start_lr <= 0:
         raise complain(owner, "start_lr", start_lr, "a finite rate > 0" + (" or None" if base is not None else ""),
                        "the rate the rule starts from" + (
                            "; None takes base's rate at the end of its warmup" if base is not None else ""))
@@ -159,7 +183,8 @@ def _check_start(owner: str, start_lr: Any, rule: PlateauRule, base: Schedule | 
 
 def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", factor: float = 0.1,
                    patience: int = 3, tolerance: float = 1e-4, relative: bool = True,
-                   wait_after_drop: int = 0, floor: float = 0.0, base: Schedule | None = None) -> PlateauReplay:
+                   wait_after_drop: int = 0, floor: float = 0.0, base: Schedule | None = None,
+                   min_drop: float = 0.0) -> PlateauReplay:
     """Replay a reduce-on-plateau rule over a metric history (one value per evaluation, usually per epoch).
 
     The rule, evaluation by evaluation (``a`` is the metric, ``best`` the best so
@@ -178,6 +203,11 @@ def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", facto
       lower the rate by more than one part in 10**9 (the rate is at ``floor``, up to
       rounding) leaves it unchanged and is not listed in ``drops``, but still
       resets the count and starts the wait.
+    * **Smallest drop (``min_drop``, off by default).** With ``min_drop > 0`` a drop
+      is applied only when ``rate - max(rate * factor, floor) > min_drop`` and is
+      otherwise skipped (not listed, but the count resets and the wait starts);
+      this condition replaces the floor rule above.  ``min_drop=TORCH_MIN_DROP``
+      (1e-8) is torch's own rule with its default ``eps``.
     * **Base.** With ``base`` (a schedule on the epoch clock, e.g.
       ``warmup(flat(0.1), 5)``) the rule multiplies the design:
       ``rates[i] = r[i] * (base(i) / start_lr)``, where ``r`` is the rule's own rate
@@ -189,9 +219,13 @@ def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", facto
       ``start_lr=None`` takes ``base(W)``), ``rates[i] == r[i]`` from ``W`` on.
       The floor bounds ``r``.
 
-    Without ``base`` this is the rule of torch's reduce-on-plateau scheduler
-    (the tests compare the two on generated histories), which in addition skips
-    any change smaller than 1e-8; that scheduler has no base schedule.
+    Without ``base`` and with ``min_drop=1e-8`` this is torch's ReduceLROnPlateau
+    (default ``eps=1e-8``) bit for bit, at every rate.  With the default
+    ``min_drop=0`` the two give the same rates exactly as long as every drop this
+    rule applies lowers the rate by more than 1e-8 (with no floor in reach: while
+    the rate before each drop is above ``1e-8 / (1 - factor)``, 1.11e-8 for factor
+    0.1) and the floor is at most 10; from the first drop of 1e-8 or less torch
+    leaves the rate where this rule still lowers it.  torch has no base schedule.
 
     Parameters
     ----------
@@ -200,6 +234,9 @@ def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", facto
         (see ``schedwidget.metrics.read_metric`` for CSV files).
     start_lr
         The rule's starting rate (> 0).
+    min_drop
+        Skip a drop that lowers the rate by ``min_drop`` or less (absolute); 0 (the
+        default) applies every drop that lowers it.  1e-8 matches torch's default.
 
     Returns
     -------
@@ -216,9 +253,10 @@ def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", facto
     rule = PlateauRule(goal=goal, factor=factor, patience=patience, tolerance=tolerance, relative=relative,
                        wait_after_drop=wait_after_drop, floor=floor)
     values = _finite_history(owner, metric)
+    skip = _check_min_drop(owner, min_drop)
     hold = lead_in(base) if isinstance(base, Schedule) else 0
     start = _check_start(owner, start_lr, rule, base, hold)
-    level, drops, best, best_at = _run(values, start, rule, hold)
+    level, drops, best, best_at = _run(values, start, rule, hold, skip)
     rates = np.asarray(level, dtype=np.float64)
     if base is not None:
         b = base(np.arange(len(values) + 1))
@@ -243,7 +281,14 @@ def _finite_history(owner: str, metric: Any) -> list[float]:
     return values.tolist()
 
 
-def _run(values: list[float], start: float, rule: PlateauRule, hold: int):
+def _applies(rate: float, new: float, floor: float, min_drop: float) -> bool:
+    """Whether a drop from ``rate`` to ``new`` is applied (the generated class writes the same test)."""
+    if min_drop > 0.0:
+        return rate - new > min_drop  # torch's condition, with its eps
+    return new < rate and rate > floor * (1.0 + NEGLIGIBLE)
+
+
+def _run(values: list[float], start: float, rule: PlateauRule, hold: int, min_drop: float = 0.0):
     """The rule's own rate before each evaluation and after the last one (``len(values) + 1`` entries)."""
     rate = start
     best = -math.inf if rule.goal == "max" else math.inf
@@ -261,7 +306,7 @@ def _run(values: list[float], start: float, rule: PlateauRule, hold: int):
             count = 0
         if count > rule.patience:
             new = max(rate * rule.factor, rule.floor)
-            if new < rate and rate > rule.floor * (1.0 + NEGLIGIBLE):
+            if _applies(rate, new, rule.floor, min_drop):
                 drops.append(Drop(epoch=i + 1, rate_before=rate, rate_after=new, best=best,
                                   best_at=best_at, stale=count))
                 rate = new
@@ -273,15 +318,18 @@ def _run(values: list[float], start: float, rule: PlateauRule, hold: int):
 # ----------------------------------------------------------- generated code
 def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.1, patience: int = 3,
                    tolerance: float = 1e-4, relative: bool = True, wait_after_drop: int = 0, floor: float = 0.0,
-                   base: Schedule | None = None, name: str = "PlateauRate") -> str:
+                   base: Schedule | None = None, name: str = "PlateauRate", min_drop: float = 0.0) -> str:
     """Source of a standalone class (standard library only) that runs the same rule during training.
 
     The class has ``rate`` (the rate for the epoch about to be trained),
     ``update(metric) -> rate`` (call once after each evaluation; returns the rate
     for the next epoch), and ``state() -> dict`` / ``load_state(d)`` with plain
     JSON-safe dicts for checkpoints.  The rule and the ``base`` semantics are
-    those of ``replay_plateau``; the base is written by
-    ``schedwidget.export.to_python``.
+    those of ``replay_plateau`` (``min_drop`` too); the base is written by
+    ``schedwidget.export.to_python``.  ``name`` is a plain identifier that does
+    not start with ``_`` (a private name would be mangled inside the class), is
+    not taken by the generated module (``math``, builtins) and is not one of the
+    class's own members (``MEMBERS``).
 
     Examples
     --------
@@ -293,6 +341,14 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
     """
     owner = "plateau_source"
     check_name(owner, name)
+    if name.startswith("_"):
+        raise complain(owner, "name", name, "a name that does not start with '_'",
+                       "a private name is mangled inside the generated class and the base function "
+                       "cannot be found at run time; try 'PlateauRate'")
+    if name in MEMBERS:
+        raise complain(owner, "name", name, "a name the generated class does not use for its own members",
+                       f"{', '.join(sorted(MEMBERS))} are taken; try 'PlateauRate'")
+    skip = _check_min_drop(owner, min_drop)
     try:
         rule = PlateauRule(goal=goal, factor=factor, patience=patience, tolerance=tolerance, relative=relative,
                            wait_after_drop=wait_after_drop, floor=floor)
@@ -326,6 +382,13 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
                ("min", True): "a < self.best * (1.0 - self.tolerance)",
                ("min", False): "a < self.best - self.tolerance"}[rule.goal, rule.relative]
     settings = {"start_lr": start, "lead_in": hold, **rule.settings()}
+    if skip > 0.0:  # only when on: states saved by a class written without it still load
+        settings["min_drop"] = skip
+        applies = "self.level - new > self.min_drop:  # else: a change too small to apply"
+        skip_words = f"\n    A drop that lowers the rate by {skip!r} or less is skipped."
+    else:
+        applies = f"new < self.level and self.level > self.floor * (1.0 + {NEGLIGIBLE!r}):  # else: at the floor"
+        skip_words = ""
     body = f'''class {name}:
     """Call ``update(metric)`` once after each evaluation; train the next epoch at ``rate``.
 
@@ -333,7 +396,7 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
     evaluations without improvement resets on improvement; when it exceeds
     patience the rate becomes max(rate * factor, floor), the count resets and the
     next wait_after_drop evaluations (and the first lead_in, the warmup) hold it
-    at 0.  ``state()`` / ``load_state(d)`` are plain dicts for checkpoints.
+    at 0.{skip_words}  ``state()`` / ``load_state(d)`` are plain dicts for checkpoints.
     """
 
     SETTINGS = {settings!r}
@@ -366,7 +429,7 @@ def plateau_source(start_lr: float | None, goal: str = "max", factor: float = 0.
             self.count = 0
         if self.count > self.patience:
             new = max(self.level * self.factor, self.floor)
-            if new < self.level and self.level > self.floor * (1.0 + {NEGLIGIBLE!r}):  # else: at the floor
+            if {applies}
                 self.level = new
             self.count, self.wait = 0, self.wait_after_drop
         self.epoch += 1
