@@ -9,10 +9,11 @@ epoch is not the number of batches a process's data loader yields.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, fields, replace
+from numbers import Real
 from typing import Any
 
-from .schedule import Schedule, ScheduleError, as_whole, complain, param
+from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain, param
 
 __all__ = ["Budget", "check_length", "scale_for_batch"]
 
@@ -61,6 +62,10 @@ class Budget:
         if self.steps_per_epoch < 1:
             raise complain("Budget", "samples", self.samples, f">= the global batch {self.global_batch:,} "
                            "when drop_last=True", "otherwise every batch is dropped and no update runs")
+        if self.steps > MAX_TICKS:
+            raise complain("Budget", "epochs", self.epochs, f"at most {MAX_TICKS // self.steps_per_epoch:,} "
+                           f"at {self.steps_per_epoch:,} updates per epoch",
+                           "a run of more than 2**53 updates cannot be counted exactly on a float64 clock")
 
     @property
     def global_batch(self) -> int:
@@ -90,10 +95,14 @@ class Budget:
         >>> Budget(samples=147_200, batch=128, epochs=90).epochs_to_steps(5)
         5750
         """
-        if isinstance(epochs, bool) or not isinstance(epochs, (int, float)) or not math.isfinite(epochs) \
-                or epochs < 0:
-            raise complain("Budget.epochs_to_steps", "epochs", epochs, "a finite number >= 0")
-        return math.floor(epochs * self.steps_per_epoch + 0.5)
+        try:
+            ok = not isinstance(epochs, bool) and isinstance(epochs, Real) and math.isfinite(epochs) \
+                and 0 <= epochs <= MAX_TICKS
+        except OverflowError:  # an int too large for a float
+            ok = False
+        if not ok:
+            raise complain("Budget.epochs_to_steps", "epochs", epochs, "a finite number >= 0 and <= 2**53")
+        return math.floor(float(epochs) * self.steps_per_epoch + 0.5)
 
     def steps_to_epochs(self, steps: int) -> float:
         """Epochs (a float) covered by ``steps`` updates.
@@ -102,8 +111,8 @@ class Budget:
         5.0
         """
         n = as_whole(steps)
-        if n is None or n < 0:
-            raise complain("Budget.steps_to_epochs", "steps", steps, "a whole number >= 0")
+        if n is None or n < 0 or n > MAX_TICKS:
+            raise complain("Budget.steps_to_epochs", "steps", steps, "a whole number >= 0 and <= 2**53")
         return n / self.steps_per_epoch
 
     def describe(self, unit: str = "step") -> str:
@@ -136,25 +145,89 @@ def check_length(s: Schedule, steps: int | Budget, unit: str = "step", owner: st
         n, where = as_whole(steps), ""
         if n is None or n < 1:
             raise complain(owner, "steps", steps, "a whole number >= 1 or a Budget")
+    if n > MAX_TICKS:
+        raise complain(owner, "steps", steps, "a budget of at most 2**53 ticks",
+                       "above that, ticks are no longer exact on a float64 clock")
     L = s.length
     if L is None or L == n:
         return n
     if L > n:
-        effect = f"its last {L - n:,} {unit}s would never run"
+        effect = f"its last {_count(L - n, unit)} would never run"
     else:
-        effect = f"its last rate {s(L):.3g} would be held for {n - L:,} more {unit}s"
-    hint = f"budget mismatch: {effect}; fit the design with s.stretch({n}) or fix the budget"
+        effect = f"its last rate {s(L):.3g} would be held for {_count(n - L, unit, 'more ')}"
+    knots_end = _open_knots(s)
+    if knots_end is not None and L == n - 1:
+        # a trace of n rates rebuilt as knots(list(enumerate(rates))) ends at its last knot, tick n - 1;
+        # stretching it would move every knot by n / (n - 1)
+        hint = (f"budget mismatch: {effect}; a knots design ends at its last knot's tick ({L:,}), so a trace of "
+                f"{n:,} rates, one per tick, is knots(list(enumerate(rates)), interp='hold', steps={n}): give knots "
+                f"its length with steps={n} (s.stretch would move every knot)")
+    elif knots_end is not None and L < n:
+        hint = (f"budget mismatch: {effect}; hold the last knot's rate to the end with knots(..., steps={n}), "
+                f"or fit the design with s.stretch({n}) (every knot moves in proportion), or fix the budget")
+    else:
+        hint = f"budget mismatch: {effect}; fit the design with s.stretch({n}) or fix the budget"
     if max(L, n) >= 50 * min(L, n):
         hint += f"; a ratio of {max(L, n) / min(L, n):,.0f} usually means steps and epochs are mixed up"
     msg = f"{owner}: steps must equal the design's length of {L:,} {unit}s, got {n:,} {unit}s{where} ({hint})"
     raise ScheduleError(msg)
 
 
+def _count(k: int, unit: str, more: str = "") -> str:
+    return f"{k:,} {more}{unit}" + ("" if k == 1 else "s")
+
+
+def _open_knots(s: Schedule):
+    """The knots node that ends ``s`` without a ``steps`` of its own (through scales and clips), or None."""
+    from .combine import Clip, Scaled
+    from .shapes import Knots
+
+    while isinstance(s, (Scaled, Clip)):
+        s = s.target
+    return s if isinstance(s, Knots) and getattr(s, "steps", None) is None else None
+
+
 def _positive_whole(owner: str, name: str, value: Any) -> int:
     n = as_whole(value)
-    if n is None or n < 1:
-        raise complain(owner, name, value, "a whole number >= 1")
+    if n is None or n < 1 or n > MAX_TICKS:
+        raise complain(owner, name, value, "a whole number >= 1" if n is None or n < 1 else "a whole number <= 2**53")
     return n
+
+
+def _constant_open(s: Schedule) -> bool:
+    """Whether ``s`` is open-ended and the same rate at every tick (a flat rate, scaled or clipped)."""
+    from .combine import Clip, Scaled
+    from .shapes import Flat
+
+    while isinstance(s, (Scaled, Clip)):
+        s = s.target
+    return isinstance(s, Flat) and s.length is None
+
+
+def _rescale_open(s: Schedule, a: int, b: int) -> Schedule | None:
+    """An open-ended design on the clock of batch ``b`` instead of ``a``, or None when that needs a length.
+
+    A constant open part has nothing on its clock to move.  Before it, a warmup's length and the finite
+    stages are moved to the same samples seen (the stages together, by one rounding, as ``stretch`` does);
+    any other open-ended shape (a decay, restarts without an end) changes along an unbounded clock.
+    """
+    from .combine import Clip, Scaled, Stages, Warmup
+
+    if _constant_open(s):
+        return s
+    if isinstance(s, (Scaled, Clip)):
+        inner = _rescale_open(s.target, a, b)
+        return None if inner is None else replace(s, target=inner)
+    if isinstance(s, Warmup):
+        inner = _rescale_open(s.target, a, b)
+        return None if inner is None else replace(s, target=inner, steps=max(1, round(s.steps * a / b)))
+    if isinstance(s, Stages):
+        last = _rescale_open(s.parts[-1], a, b)
+        if last is None:
+            return None
+        head = s.parts[0] if len(s.parts) == 2 else Stages(parts=s.parts[:-1])
+        return Stages(parts=(head.stretch(max(1, round(head.length * a / b))), last))
+    return None
 
 
 def scale_for_batch(s: Schedule, from_batch: int, to_batch: int, rule: str = "linear", keep: str = "samples",
@@ -168,6 +241,14 @@ def scale_for_batch(s: Schedule, from_batch: int, to_batch: int, rule: str = "li
     (Python's round: halves go to the even tick), or to ``steps`` when given
     (e.g. ``Budget(...).steps``), so a warmup and every join stay at the same
     number of samples seen; with ``keep="steps"`` every tick stays where it was.
+
+    An open-ended design rescales too when its open end is a constant rate
+    (``flat(lr)``, scaled or clipped): that part has nothing on its clock to
+    move, so only its rate changes, and a warmup or finite stages before it move
+    to the same samples seen (the stages together: their joins move in
+    proportion, ``round(their length * from_batch / to_batch)``).  An open-ended
+    decay or endless restarts change along an unbounded clock and need
+    ``keep="steps"`` or a length.  ``steps`` must be None for an open-ended design.
 
     Examples
     --------
@@ -193,8 +274,16 @@ def scale_for_batch(s: Schedule, from_batch: int, to_batch: int, rule: str = "li
             raise complain(owner, "steps", steps, "None with keep='steps'", "keep='steps' never changes the length")
         return s if factor == 1.0 else s * factor
     if s.length is None:
-        raise complain(owner, "s", s, "a schedule with a length when keep='samples'",
-                       "an open-ended design has no budget to rescale; use keep='steps'")
+        if steps is not None:
+            raise complain(owner, "steps", steps, "None for an open-ended design",
+                           "an open-ended design has no length to set; its warmup and joins move to the same samples")
+        moved = _rescale_open(s, a, b)
+        if moved is None:
+            raise complain(owner, "s", s, "a schedule with a length, or an open-ended one that ends in a constant "
+                           "rate, when keep='samples'",
+                           "an open-ended design has no budget to rescale; use keep='steps' to scale its rates only, "
+                           "or give it a length: its rate changes along an unbounded clock")
+        return moved if factor == 1.0 else moved * factor
     n = max(1, round(s.length * a / b)) if steps is None else _positive_whole(owner, "steps", steps)
     out = s.stretch(n)
     return out if factor == 1.0 else out * factor
