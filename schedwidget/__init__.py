@@ -10,7 +10,7 @@ from typing import Any
 
 from .budget import Budget, check_length, scale_for_batch
 from .combine import restarts, stages, warmup
-from .export import RateFactor, to_python, to_torch, torch_factor
+from .export import RateFactor, make_scheduler, to_python, to_torch, torch_factor
 from .facts import Facts, facts
 from .metrics import read_metric
 from .plateau import PlateauReplay, plateau_source, replay_plateau
@@ -26,7 +26,7 @@ __all__ = [
     "stages", "warmup", "restarts",
     "Facts", "facts",
     "replay_plateau", "plateau_source", "PlateauReplay", "read_metric",
-    "to_python", "to_torch", "torch_factor", "RateFactor",
+    "to_python", "to_torch", "torch_factor", "RateFactor", "make_scheduler",
     "Budget", "check_length", "scale_for_batch",
     "Design", "to_spec", "from_spec", "save", "load", "load_design", "json_schema",
 ]

@@ -15,6 +15,8 @@ from __future__ import annotations
 import builtins
 import json
 import math
+import sys
+import weakref
 from numbers import Real
 from typing import Any, Callable, Sequence
 
@@ -22,10 +24,12 @@ from .budget import check_length
 from .codegen import TAKEN, UNITS, check_name, function_source
 from .schedule import Schedule, ScheduleError, complain
 
-__all__ = ["to_python", "torch_factor", "to_torch", "RateFactor"]
+__all__ = ["to_python", "make_scheduler", "torch_factor", "to_torch", "RateFactor"]
 
 #: Names the torch snippet defines itself besides the function.
 SNIPPET_NAMES = frozenset({"torch", "BASE_LR", "GROUP_MULTIPLIERS", "ExportedFactor", "make_scheduler"})
+#: Names the snippet's factor reads inside ``__call__(self, t)``, where a function of that name would be shadowed.
+SNIPPET_LOCALS = frozenset({"self", "t"})
 #: Compiled functions, keyed by the canonical spec text a RateFactor holds (kept out of its __dict__).
 _COMPILED: dict[str, Callable[[int], float]] = {}
 
@@ -78,64 +82,257 @@ def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_ep
 
 
 # ------------------------------------------------------------------ factor objects
+#: The keys of a factor's state, as LambdaLR.state_dict() saves it (the instance __dict__).
+FIELDS = ("base_lr", "design", "multiplier")
+#: The two explicit choices when a checkpoint's design differs from the new one.
+RESUME_CHOICES = ("saved", "new")
+#: At most this many compiled designs are kept (crafted checkpoints must not grow memory without bound).
+COMPILED_MAX = 256
+_INF = math.inf
+
+
+class _Shown:
+    """A value shown in a message as given text (no quotes), e.g. a shortened repr."""
+
+    def __init__(self, text: str) -> None:
+        self.text = text
+
+    def __repr__(self) -> str:
+        return self.text
+
+
+def _brief(value: Any, limit: int = 80) -> _Shown:
+    """``repr(value)`` cut to ``limit`` characters; never raises (huge ints, odd objects)."""
+    try:
+        text = repr(value)
+    except Exception:  # noqa: BLE001 - a crafted object's repr may fail; the message must not
+        text = f"<{type(value).__name__}>"
+    return _Shown(text if len(text) <= limit else text[:limit - 3] + "...")
+
+
 def _design_text(s: Schedule) -> str:
     from .spec import to_spec
 
     return json.dumps(to_spec(s), sort_keys=True, separators=(",", ":"))
 
 
-def _compiled(design: str) -> Callable[[int], float]:
-    """The generated function for a spec text: rebuilt through the validating loader, never run from the text."""
-    fn = _COMPILED.get(design)
-    if fn is None:
-        from .spec import from_spec
+_SPEC_TEXT = "the JSON text of a spec (a str, as RateFactor saves it)"
 
-        try:
-            spec = json.loads(design)
-        except (TypeError, ValueError):
-            raise ScheduleError(f"RateFactor: design must be the JSON text of a spec, got {design!r:.80}") from None
-        text, modules = function_source(from_spec(spec), "rate_at", doc=False)
-        namespace: dict[str, Any] = {"__builtins__": builtins, **{m: __import__(m) for m in modules}}
-        exec(compile(text, "<schedwidget RateFactor>", "exec"), namespace)
-        fn = _COMPILED[design] = namespace["rate_at"]
-    return fn
+
+def _read_design(owner: str, text: Any) -> Schedule:
+    """The schedule a saved design text describes, through the validating spec loader; never runs the text."""
+    from .spec import from_spec
+
+    if not isinstance(text, str):
+        raise complain(owner, "design", _brief(text), _SPEC_TEXT)
+    try:
+        spec = json.loads(text)
+    except (ValueError, RecursionError):
+        raise complain(owner, "design", _brief(text), _SPEC_TEXT) from None
+    try:
+        return from_spec(spec)
+    except ScheduleError as exc:
+        raise ScheduleError(f"{owner}: design must be a valid spec: {exc}") from None
+    except (RecursionError, OverflowError, MemoryError, TypeError, ValueError, KeyError) as exc:
+        raise complain(owner, "design", _brief(text), "a valid spec", f"{type(exc).__name__}: {exc}"[:200]) from None
+
+
+def _build(owner: str, s: Schedule) -> Callable[[int], float]:
+    text, modules = function_source(s, "rate_at", doc=False)
+    namespace: dict[str, Any] = {"__builtins__": builtins, **{m: __import__(m) for m in modules}}
+    exec(compile(text, "<schedwidget RateFactor>", "exec"), namespace)
+    return namespace["rate_at"]
+
+
+def _canonical(owner: str, design: Any) -> tuple[str, Callable[[int], float]]:
+    """The canonical text of a saved design and its generated function (compiled once per design).
+
+    A text that is not in the cache is rebuilt through the validating spec
+    loader, so no code is ever read from a checkpoint; spacing or key order in
+    a saved text never counts as a difference.
+    """
+    fn = _COMPILED.get(design) if isinstance(design, str) else None
+    if fn is not None:
+        return design, fn
+    s = _read_design(owner, design)
+    text = _design_text(s)
+    fn = _COMPILED.get(text)
+    if fn is None:
+        fn = _build(owner, s)
+        if len(_COMPILED) >= COMPILED_MAX:
+            _COMPILED.clear()
+        _COMPILED[text] = fn
+    return text, fn
 
 
 def _positive(owner: str, name: str, value: Any, zero: bool = False) -> float:
-    ok = isinstance(value, Real) and not isinstance(value, bool) and math.isfinite(value) \
-        and (value >= 0 if zero else value > 0)
-    if not ok:
-        raise complain(owner, name, value, f"a finite number {'>=' if zero else '>'} 0")
-    return float(value)
+    v = math.nan
+    if isinstance(value, Real) and not isinstance(value, bool):
+        try:
+            v = float(value)
+        except (OverflowError, ValueError, TypeError):  # an int too large for a float, an odd Real
+            pass
+    if not (math.isfinite(v) and (v >= 0 if zero else v > 0)):
+        raise complain(owner, name, _brief(value), f"a finite number {'>=' if zero else '>'} 0")
+    return v
+
+
+class _Valid:
+    """A factor state that passed every check: the canonical design text, the numbers as floats, the function."""
+
+    __slots__ = ("text", "base_lr", "multiplier", "fn")
+
+    def __init__(self, text: str, base_lr: float, multiplier: float, fn: Callable[[int], float]) -> None:
+        self.text, self.base_lr, self.multiplier, self.fn = text, base_lr, multiplier, fn
+
+    def same(self, other: _Valid) -> bool:
+        return (self.text, self.base_lr, self.multiplier) == (other.text, other.base_lr, other.multiplier)
+
+    def describe(self) -> str:
+        """In words for a message: multiplier x the design (base_lr)."""
+        return f"{self.multiplier:g} x {_read_design('RateFactor', self.text)!r} (base_lr {self.base_lr!r})"
+
+
+def _two(a: str, b: str, width: int = 110) -> tuple[str, str]:
+    """Two descriptions cut to ``width`` characters around where they first differ."""
+    if max(len(a), len(b)) <= width:
+        return a, b
+    same = next((i for i, (x, y) in enumerate(zip(a, b)) if x != y), min(len(a), len(b)))
+    start = max(0, same - width // 3)
+
+    def cut(s: str) -> str:
+        return ("..." if start else "") + s[start:start + width] + ("..." if len(s) > start + width else "")
+    return cut(a), cut(b)
+
+
+_CHOOSE = ("choose explicitly: make_scheduler(optimizer, design, state=<the saved scheduler.state_dict()>, "
+           "resume_with='saved') continues on the checkpoint's design, resume_with='new' continues on the new "
+           "design from the saved tick; load the optimizer's state first")
+
+
+def _valid_state(owner: str, state: Any) -> _Valid:
+    """Check a factor state (a loaded checkpoint's or a fresh one) field by field; ScheduleError otherwise.
+
+    The design is compared in canonical form, so spacing or key order in a
+    saved text never counts as a difference.
+    """
+    allowed = "a dict with exactly the keys 'base_lr', 'design', 'multiplier' (what RateFactor saves)"
+    if not isinstance(state, dict):
+        raise complain(owner, "state", _brief(state), allowed)
+    missing = [k for k in FIELDS if k not in state]
+    extra = sorted(repr(k) for k in state if k not in FIELDS)
+    if missing or extra:
+        why = "; ".join(([f"missing {', '.join(map(repr, missing))}"] if missing else [])
+                        + ([f"unexpected {', '.join(extra)}"[:120]] if extra else []))
+        raise complain(owner, "state", _Shown("{" + ", ".join(sorted(repr(k) for k in state))[:120] + "}"),
+                       allowed, why)
+    base_lr = _positive(owner, "base_lr", state["base_lr"])
+    multiplier = _positive(owner, "multiplier", state["multiplier"], zero=True)
+    if not math.isfinite(multiplier / base_lr):
+        raise complain(owner, "multiplier / base_lr", multiplier / base_lr, "a finite number",
+                       f"multiplier={multiplier!r} and base_lr={base_lr!r} overflow a float together")
+    text, fn = _canonical(owner, state["design"])
+    return _Valid(text, base_lr, multiplier, fn)
+
+
+#: Per factor (by id), kept outside its __dict__ so that a checkpoint never carries it:
+#: the state last checked, as (that state's copy, function, multiplier, base_lr) for the hot path ...
+_CHECKED: dict[int, tuple[dict[str, Any], Callable[[int], float], float, float]] = {}
+#: ... and the design it was built with (what a loaded state is compared against).
+_BUILT: dict[int, _Valid] = {}
+
+
+def _forget(key: int) -> None:
+    _CHECKED.pop(key, None)
+    _BUILT.pop(key, None)
 
 
 class RateFactor:
-    """A picklable ``LambdaLR`` factor: ``s(t) * multiplier / base_lr``.
+    """A picklable ``LambdaLR`` factor: ``s(t) * multiplier / base_lr``, checked after every load.
 
     A plain class, not a lambda or closure, with all of its state in the
-    instance ``__dict__``: the design's spec as canonical JSON text, ``base_lr``
-    and ``multiplier``.  ``LambdaLR.state_dict()`` saves exactly that dict and
-    ``load_state_dict()`` restores it, so a checkpoint carries the design.  The
-    function it calls is generated once per design and cached outside the
-    instance; restoring a spec text rebuilds it through the validating spec
-    loader, so no code is ever read from a checkpoint.
+    instance ``__dict__``: the design's spec as canonical JSON text,
+    ``base_lr`` and ``multiplier``.  ``LambdaLR.state_dict()`` saves exactly
+    that dict and ``load_state_dict()`` restores it (with ``__dict__.update``,
+    which no method of ours sees), so a checkpoint carries the design.
 
-    Build it with ``torch_factor``.  Each group's ``lr`` in the optimizer must
-    be ``base_lr``; then the group's rate is ``s(t) * multiplier``.
+    What the factor was built with, and the state it last checked, are kept
+    outside the instance (so no checkpoint carries them).  The first call
+    after its ``__dict__`` changes checks the new state field by field like a
+    fresh one (keys, ``base_lr`` finite > 0, ``multiplier`` finite >= 0, the
+    design through the validating spec loader: no code is ever read from a
+    checkpoint) and compares it with what the factor was built with: another
+    design, multiplier or base_lr is refused, never used.  To resume on
+    purpose from a checkpoint of another design, use
+    ``make_scheduler(..., state=..., resume_with="saved" | "new")``.  Every
+    factor value is checked to be finite and >= 0 before it is returned.
+
+    Build it with ``make_scheduler`` (or ``torch_factor``).
+
+    Examples
+    --------
+    >>> from schedwidget import cosine
+    >>> f = RateFactor(cosine(0.1, steps=100), base_lr=0.1, multiplier=0.5)
+    >>> f(0), f(100)
+    (0.5, 0.0)
+    >>> f.__dict__.update(base_lr=0.0)   # what loading a corrupted checkpoint does
+    >>> f(1)
+    Traceback (most recent call last):
+    ...
+    schedwidget.schedule.ScheduleError: RateFactor: base_lr must be a finite number > 0, got 0.0
     """
 
     def __init__(self, s: Schedule, base_lr: float, multiplier: float = 1.0) -> None:
         self.design = _design_text(_schedule("RateFactor", s))
         self.base_lr = _positive("RateFactor", "base_lr", base_lr)
         self.multiplier = _positive("RateFactor", "multiplier", multiplier, zero=True)
-        _compiled(self.design)
+        self._built(_valid_state("RateFactor", self.__dict__))
+
+    def _built(self, valid: _Valid) -> None:
+        """Record ``valid`` as what this factor was built with, and as checked."""
+        key = id(self)
+        if key not in _BUILT:
+            weakref.finalize(self, _forget, key).atexit = False
+        _BUILT[key] = valid
+        _CHECKED[key] = (dict(self.__dict__), valid.fn, valid.multiplier, valid.base_lr)
+
+    def __setstate__(self, state: Any) -> None:
+        """pickle and copy: the state is checked like a loaded one and becomes what the factor was built with."""
+        valid = _valid_state("RateFactor", state)
+        self.__dict__.update(state)
+        self._built(valid)
+
+    def _check(self) -> tuple[dict[str, Any], Callable[[int], float], float, float]:
+        """Check a changed state (a load): valid field by field, and the design the factor was built with."""
+        valid = _valid_state("RateFactor", self.__dict__)
+        built = _BUILT.get(id(self))
+        if built is None:  # made without __init__ or pickle (object.__new__): nothing to compare with
+            self._built(valid)
+        elif not valid.same(built):
+            saved, new = _two(valid.describe(), built.describe())
+            raise complain("RateFactor", "a loaded state's design", _Shown(f"the checkpoint's {saved}"),
+                           f"the new design this factor was built with, {new}", _CHOOSE)
+        checked = _CHECKED[id(self)] = (dict(self.__dict__), valid.fn, valid.multiplier, valid.base_lr)
+        return checked
 
     def __call__(self, t: int) -> float:
-        try:  # the hot path: one dict lookup, no numpy
-            fn = _COMPILED[self.design]
-        except KeyError:
-            fn = _compiled(self.design)
-        return fn(t) * self.multiplier / self.base_lr
+        # The hot path (once per training step): one lookup and one dict comparison tell that the state is
+        # the one last checked; a load (LambdaLR's __dict__.update) changes it and sends us through _check.
+        checked = _CHECKED.get(id(self))
+        try:
+            stale = checked is None or checked[0] != self.__dict__
+        except Exception:  # noqa: BLE001 - a crafted value whose == misbehaves: check the state properly
+            stale = True
+        if stale:
+            checked = self._check()
+        x = checked[1](t) * checked[2] / checked[3]
+        try:
+            if 0.0 <= x < _INF:
+                return x
+        except TypeError:  # not a real number at all
+            pass
+        raise complain("RateFactor", f"the factor at t={t!r}", _brief(x), "a finite number >= 0",
+                       "the design gives no usable rate there")
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, RateFactor):
@@ -145,12 +342,14 @@ class RateFactor:
     __hash__ = None  # type: ignore[assignment]  # mutable: load_state_dict updates it in place
 
     def __repr__(self) -> str:
-        return f"RateFactor(base_lr={self.base_lr!r}, multiplier={self.multiplier!r}, design={self.design[:60]}...)"
+        return (f"RateFactor(base_lr={self.__dict__.get('base_lr')!r}, multiplier={self.__dict__.get('multiplier')!r}, "
+                f"design={str(self.__dict__.get('design'))[:60]}...)")
 
 
 def torch_factor(s: Schedule, base_lr: float, groups: Sequence[float] | None = None) -> RateFactor | list[RateFactor]:
     """A picklable factor for ``torch.optim.lr_scheduler.LambdaLR``, or one per param group.
 
+    Prefer ``make_scheduler``, which also checks the optimizer's param groups.
     Build the optimizer with ``lr=base_lr`` for every group.  Without ``groups``
     the result is one ``RateFactor`` (LambdaLR applies it to every group); with
     ``groups=[1.0, 0.1, ...]`` it is a list with one factor per group, in the
@@ -180,6 +379,223 @@ def _multipliers(owner: str, groups: Any) -> tuple[float, ...]:
         raise complain(owner, "groups", groups, "a non-empty list of multipliers, one per param group",
                        "use None for one schedule shared by every group")
     return out
+
+
+# ------------------------------------------------------------------ the checked way into an optimizer
+def _lambda_lr(optimizer: Any) -> Any:
+    """torch's LambdaLR class, for an optimizer that is a torch optimizer.
+
+    The core never imports torch: training code that only designs schedules
+    must not need it, and ``import schedwidget`` stays light.  An optimizer
+    passed in means torch is loaded already, so its module is read from
+    ``sys.modules``, which imports nothing.
+    """
+    optim = getattr(sys.modules.get("torch"), "optim", None)
+    if optim is None or not isinstance(optimizer, optim.Optimizer):
+        raise complain("make_scheduler", "optimizer", _Shown(f"a {type(optimizer).__name__}"),
+                       "a torch optimizer (torch.optim.SGD(...), torch.optim.AdamW(...), ...)")
+    return optim.lr_scheduler.LambdaLR
+
+
+def _start_lrs(optimizer: Any, resuming: bool) -> list[float]:
+    """Each param group's starting lr: its "initial_lr" (set by a scheduler, kept by a checkpoint), else its lr."""
+    out = []
+    for i, group in enumerate(optimizer.param_groups):
+        if resuming and "initial_lr" not in group:
+            raise complain("make_scheduler", f"param_groups[{i}]", _Shown("a group without 'initial_lr'"),
+                           "the optimizer's state from the checkpoint (it carries each group's starting lr)",
+                           "call optimizer.load_state_dict(...) before make_scheduler(..., state=...)")
+        lr = group.get("initial_lr", group.get("lr"))
+        try:
+            v = float(lr)  # a float, or a one-element tensor
+        except (TypeError, ValueError, OverflowError):
+            v = math.nan
+        if not (math.isfinite(v) and v >= 0):
+            raise complain("make_scheduler", f"param_groups[{i}]['lr']", _brief(lr), "a finite number >= 0")
+        out.append(v)
+    return out
+
+
+def _base(base_lr: Any, starts: list[float]) -> float:
+    """base_lr as given (a group must start there), or the common starting lr of every group."""
+    if base_lr is None:
+        if len(set(starts)) > 1:
+            shown = ", ".join(f"{v!r}" for v in starts[:6]) + (", ..." if len(starts) > 6 else "")
+            raise complain("make_scheduler", "base_lr", None,
+                           f"given when the param groups start at different lrs (found {shown})",
+                           f"pass the lr the design's rates are meant for, e.g. base_lr={starts[0]!r}; a group "
+                           "starting at 10x base_lr then runs at 10x the design")
+        return _positive("make_scheduler", "base_lr (every param group's lr)", starts[0])
+    base = _positive("make_scheduler", "base_lr", base_lr)
+    if base not in starts:
+        shown = ", ".join(f"{v!r}" for v in sorted(set(starts))[:6])
+        raise complain("make_scheduler", "base_lr", base_lr, f"the starting lr of a param group (found {shown})",
+                       f"build the optimizer with lr=base_lr, or pass base_lr={starts[0]!r}; otherwise every rate "
+                       f"would be {starts[0] / base:g}x the design")
+    return base
+
+
+def _shares(owner: str, starts: list[float], bases: Sequence[float], mults: Sequence[float], given: bool) -> None:
+    """A group's share of the design comes from its multiplier or from its starting lr, never from both."""
+    for i, (lr, base, m) in enumerate(zip(starts, bases, mults)):
+        if lr != base and m != 1.0:
+            ratio = lr / base
+            fixed = "[" + ", ".join("1" if j == i else f"{x:g}" for j, x in enumerate(mults)) + "]"
+            source = f"groups[{i}]={m:g}" if given else f"the checkpoint's multiplier {m:g}"
+            raise complain(owner, f"param_groups[{i}]['lr']", lr,
+                           f"base_lr={base!r} when {source} sets its share (it starts at {ratio:g}x base_lr, "
+                           f"and the multiplier would apply on top: a {ratio * m:g}x rate)",
+                           f"set that group's lr to base_lr, or pass groups={fixed} to keep the {ratio:g}x "
+                           "its lr already gives")
+
+
+def _tick(start_tick: Any) -> int:
+    if isinstance(start_tick, bool) or not isinstance(start_tick, int) or start_tick < 0:
+        raise complain("make_scheduler", "start_tick", _brief(start_tick),
+                       "a whole number >= 0 (the ticks already done; 0 for a fresh run)")
+    return start_tick
+
+
+def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
+                   groups: Sequence[float] | None = None, start_tick: int = 0, *,
+                   state: dict[str, Any] | None = None, resume_with: str | None = None) -> Any:
+    """A torch ``LambdaLR`` that runs ``design`` on ``optimizer``, after checking the optimizer's param groups.
+
+    The documented way to use the factor (``RateFactor``): group ``i`` runs at
+    ``design(t) * share_i``, where the share comes from ``groups[i]`` or from
+    the group's own starting lr (``lr / base_lr``), never from both: a group
+    built at 10x ``base_lr`` with ``groups[i] = 10`` would run at 100x and is
+    refused.  Each group's starting lr is its ``"initial_lr"`` when a scheduler
+    or checkpoint set one, else its ``lr``.  Call ``scheduler.step()`` once per
+    tick of the design's clock (after ``optimizer.step()`` for a step clock,
+    after each epoch for an epoch clock).
+
+    Parameters
+    ----------
+    optimizer : a torch optimizer; torch is not imported here (it is already loaded).
+    design : the schedule (or a ``Design`` from ``load_design``); its values are absolute rates.
+    base_lr : the lr the design's rates are meant for.  None: every group's starting lr, which must be
+        the same for all; given: at least one group must start there.
+    groups : one multiplier per param group, in ``optimizer.param_groups`` order (None: 1 for each); the
+        count must match the optimizer's.
+    start_tick : resume by tick alone: the ticks already done (the next update uses ``design(start_tick)``).
+        As in the ``to_torch`` snippet: ``LambdaLR(..., last_epoch=start_tick - 1)``, with "initial_lr" set to
+        each group's starting lr where it is missing.
+    state : resume from a saved ``scheduler.state_dict()``; load the optimizer's state first (it carries
+        each group's starting lr), then call ``make_scheduler(optimizer, design, state=...)`` instead of
+        ``scheduler.load_state_dict(...)``.  Every saved factor is checked field by field; the next update
+        uses the rate of the saved tick.
+    resume_with : needed (with ``state``) only when the checkpoint's design differs from ``design`` (another
+        design, multiplier or base_lr): ``"saved"`` continues on the checkpoint's design, ``"new"`` continues
+        on ``design`` from the saved tick.  Without it a difference is a ScheduleError naming both designs.
+        A plain ``scheduler.load_state_dict(...)`` of another design is refused too, at the next step.
+
+    Returns
+    -------
+    torch.optim.lr_scheduler.LambdaLR with one ``RateFactor`` per param group.
+
+    Examples
+    --------
+    >>> import torch
+    >>> from schedwidget import cosine, warmup
+    >>> body, head = torch.nn.Linear(4, 4), torch.nn.Linear(4, 2)
+    >>> optimizer = torch.optim.SGD([{"params": body.parameters()}, {"params": head.parameters()}], lr=3e-4)
+    >>> scheduler = make_scheduler(optimizer, warmup(cosine(3e-4, steps=900), steps=100), groups=[1, 10])
+    >>> [group["lr"] for group in optimizer.param_groups]     # the first update: t = 0
+    [0.0, 0.0]
+    >>> head_at_10x = torch.optim.SGD([{"params": body.parameters()},
+    ...                                {"params": head.parameters(), "lr": 3e-3}], lr=3e-4)
+    >>> make_scheduler(head_at_10x, warmup(cosine(3e-4, steps=900), steps=100), base_lr=3e-4, groups=[1, 10])
+    Traceback (most recent call last):
+    ...
+    schedwidget.schedule.ScheduleError: make_scheduler: param_groups[1]['lr'] must be base_lr=0.0003 when groups[1]=10 sets its share (it starts at 10x base_lr, and the multiplier would apply on top: a 100x rate), got 0.003 (set that group's lr to base_lr, or pass groups=[1, 1] to keep the 10x its lr already gives)
+    """
+    lambda_lr = _lambda_lr(optimizer)
+    from .spec import Design
+
+    s = _schedule("make_scheduler", design.schedule if isinstance(design, Design) else design)
+    tick = _tick(start_tick)
+    if resume_with is not None and resume_with not in RESUME_CHOICES:
+        raise complain("make_scheduler", "resume_with", _brief(resume_with), "None, 'saved' or 'new'",
+                       "'saved' continues on the checkpoint's design, 'new' on the new design from the saved tick")
+    if state is None and resume_with is not None:
+        raise complain("make_scheduler", "resume_with", resume_with, "None when no state is given",
+                       "it chooses between a checkpoint's design and the new one: pass state=<the saved "
+                       "scheduler.state_dict()> too")
+    if state is not None and tick:
+        raise complain("make_scheduler", "start_tick", tick, "0 when state is given (the state carries its tick)")
+    starts = _start_lrs(optimizer, resuming=state is not None)
+    n = len(starts)
+    base = _base(base_lr, starts)
+    mults = (1.0,) * n if groups is None else _multipliers("make_scheduler", groups)
+    if len(mults) != n:
+        raise complain("make_scheduler", "groups", _brief(list(groups or ())),
+                       f"one multiplier per param group: the optimizer has {n}",
+                       "list them in optimizer.param_groups order")
+    _shares("make_scheduler", starts, [base] * n, mults, True)
+    factors = [RateFactor(s, base, m) for m in mults]
+    if state is None:
+        if tick:  # LambdaLR(..., last_epoch >= 0) reads "initial_lr": the starting lr just checked
+            for group, lr in zip(optimizer.param_groups, starts):
+                group.setdefault("initial_lr", lr)
+        return lambda_lr(optimizer, lr_lambda=factors, last_epoch=tick - 1)
+    scheduler = lambda_lr(optimizer, lr_lambda=factors)
+    _resume(scheduler, factors, state, resume_with, starts)
+    return scheduler
+
+
+def _resume(scheduler: Any, factors: list[RateFactor], state: Any, resume_with: str | None,
+            starts: list[float]) -> None:
+    """Load a saved scheduler state after checking it, as ``resume_with`` chooses; set the saved tick's rates."""
+    owner, n = "make_scheduler", len(factors)
+    if not isinstance(state, dict):
+        raise complain(owner, "state", _brief(state), "a dict saved by scheduler.state_dict()")
+    tick = state.get("last_epoch")
+    if isinstance(tick, bool) or not isinstance(tick, int) or tick < 0:
+        raise complain(owner, "state['last_epoch']", _brief(tick), "a whole number >= 0 (the ticks already done)")
+    saved, bases = state.get("lr_lambdas"), state.get("base_lrs")
+    if not isinstance(saved, list) or len(saved) != n:
+        raise complain(owner, "state['lr_lambdas']", _brief(saved), f"a list with one entry per param group ({n})")
+    if not isinstance(bases, list) or len(bases) != n or any(
+            not isinstance(b, Real) or isinstance(b, bool) or b != lr for b, lr in zip(bases, starts)):
+        raise complain(owner, "state['base_lrs']", _brief(bases),
+                       f"each param group's starting lr in the loaded optimizer, {starts!r}",
+                       "load the optimizer's state from the same checkpoint first")
+    chosen, differ = [], []
+    for i, (f, d) in enumerate(zip(factors, saved)):
+        new = _valid_state(owner, f.__dict__)
+        if d is None:  # the saved run used a plain function: torch kept nothing to compare with
+            if resume_with != "new":
+                raise complain(owner, f"state['lr_lambdas'][{i}]", None, "a saved RateFactor state",
+                               "that run used a function torch does not save; pass resume_with='new' to "
+                               f"continue on the new design from the saved tick {tick}")
+            chosen.append(dict(f.__dict__))
+            continue
+        old = _valid_state(f"{owner}: state['lr_lambdas'][{i}]", d)
+        if not old.same(new):
+            differ.append((i, old, new))
+        chosen.append(dict(f.__dict__) if resume_with == "new" else dict(d))
+    if differ and resume_with is None:
+        i, old, new = differ[0]
+        a, b = _two(old.describe(), new.describe())
+        raise complain(owner, f"state's design for param_groups[{i}]", _Shown(f"the checkpoint's {a}"),
+                       f"the new design {b} unless resume_with says which to keep",
+                       f"pass resume_with='saved' to continue on the checkpoint's design, or resume_with='new' "
+                       f"to continue on the new design from the saved tick {tick}")
+    if resume_with == "saved":
+        kept = [_valid_state(owner, d) for d in chosen]
+        _shares(owner, starts, [v.base_lr for v in kept], [v.multiplier for v in kept], False)
+    scheduler.load_state_dict({**state, "lr_lambdas": chosen})
+    for f in factors:  # what was loaded is now what each factor was built with
+        f._built(_valid_state(owner, f.__dict__))
+    # the rates of the saved tick, as an uninterrupted run's scheduler.step() set them
+    for group, b, f in zip(scheduler.optimizer.param_groups, scheduler.base_lrs, factors):
+        rate = b * f(tick)
+        if hasattr(group["lr"], "fill_"):
+            group["lr"].fill_(rate)
+        else:
+            group["lr"] = rate
+    scheduler._last_lr = [group["lr"] for group in scheduler.optimizer.param_groups]
 
 
 # ------------------------------------------------------------------ torch snippet
@@ -280,6 +696,16 @@ _CLOCK = {
 }
 
 
+def _snippet_name(name: Any) -> str:
+    """A function name the snippet can call from its factor class: not shadowed there, not private or mangled."""
+    check_name("to_torch", name, TAKEN | SNIPPET_NAMES | SNIPPET_LOCALS)
+    if name.startswith("_"):
+        raise complain("to_torch", "name", name, "a public identifier, not starting with _",
+                       "the snippet calls it from a class, where Python renames __x to _ExportedFactor__x; "
+                       "try 'lr_at'")
+    return name
+
+
 def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[float] | None = None,
              steps: int | None = None, name: str = "lr_at", steps_per_epoch: int | None = None) -> str:
     """A ready torch snippet: the generated function, a picklable factor class and ``make_scheduler``.
@@ -312,7 +738,7 @@ def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[f
     from string import Template
 
     _schedule("to_torch", s)
-    check_name("to_torch", name, TAKEN | SNIPPET_NAMES)
+    _snippet_name(name)
     _unit("to_torch", unit)
     spe = _spe("to_torch", steps_per_epoch)
     base = _positive("to_torch", "base_lr", base_lr)
