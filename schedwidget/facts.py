@@ -156,13 +156,47 @@ def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tu
 
 
 def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int, level: float) -> int | None:
-    """The first tick from ``start`` where the rate is at or under ``level`` (within LEVEL_TOLERANCE relative)."""
+    """The first tick from ``start`` where the rate is at or under ``level`` (within LEVEL_TOLERANCE relative).
+
+    On a grid, the gap before the first grid tick that is under is searched too (``_refine_under``).
+    """
     bound = level * (1.0 + LEVEL_TOLERANCE)
+    before = start  # a tick known to be above the level: the peak, then the last tick read
     for t in _chunks(grid, n, start):
         hit = np.flatnonzero(s(t) <= bound)
         if hit.size:
-            return int(t[hit[0]])
+            k = int(hit[0])
+            at, prev = int(t[k]), int(t[k - 1]) if k else before
+            return _refine_under(s, prev, at, bound) if grid is not None and at - prev > 1 else at
+        before = int(t[-1])
     return None
+
+
+def _refine_under(s: Schedule, lo: int, hi: int, bound: float) -> int:
+    """The earliest tick in ``(lo, hi]`` at or under ``bound``, where ``hi`` is such a tick and ``lo`` is not.
+
+    Bounded descent: split into ``REFINE_SPLIT`` pieces, read their ends, go into the earliest piece before
+    the first end that is under whose lower bound reaches the level; read tick by tick once
+    ``REFINE_DENSE`` ticks or shorter.  Exact for shapes with tight bounds (every monotone stretch);
+    otherwise the earliest tick found.
+    """
+    found = hi
+    for _ in range(12):  # 64**9 > 2**53
+        if hi - lo <= REFINE_DENSE:
+            t = np.arange(lo + 1, hi + 1)
+            h = np.flatnonzero(s(t) <= bound)
+            return min(found, int(t[h[0]])) if h.size else found
+        c = np.unique(np.linspace(lo, hi, REFINE_SPLIT + 1).astype(np.int64))
+        under = np.flatnonzero(s(c) <= bound)
+        if not under.size or under[0] == 0:
+            return min(found, int(c[under[0]])) if under.size else found
+        k = int(under[0])
+        found = min(found, int(c[k]))
+        low, _ = s._span(c[:k].astype(float), c[1:k + 1].astype(float))
+        reach = np.flatnonzero(low <= bound)
+        j = int(reach[0]) if reach.size else k - 1
+        lo, hi = int(c[j]), int(c[j + 1])
+    return found
 
 
 def _half_life(s: Schedule) -> tuple[float, ExpDecay] | None:

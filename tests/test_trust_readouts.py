@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import time
 import tracemalloc
 
@@ -73,6 +74,18 @@ class TestBoundedFacts:
         assert top < 256 * 2 ** 20
         # Vaswani et al. 2017, eq. 3: the rate peaks at step_num = warmup_steps
         assert not f.exact and f.peak == 0.1 and f.peak_at == 1000
+        # and falls as sqrt(warmup / t): 10 % of the peak at t = 100 * warmup, 1 % at 10,000 * warmup
+        assert (f.under_10, f.under_1) == (100_000, 10_000_000)
+
+    def test_grid_reading_finds_the_first_tick_under(self):
+        """On a grid the gap before the first grid tick under the level is searched: the hand tick, not the grid's."""
+        n = 10 ** 9
+        s = cosine(0.1, steps=n)
+        f = facts(s)
+        # Loshchilov & Hutter 2017, eq. 5: 0.1 (1 + cos(pi t / n)) / 2 <= 0.01 from cos(pi t / n) <= -0.8
+        hand = math.ceil(n * math.acos(-0.8) / math.pi)
+        assert not f.exact and abs(f.under_10 - hand) <= 1
+        assert s(f.under_10) <= 0.01 * (1 + LEVEL_TOLERANCE) < s(f.under_10 - 1)
 
     def test_exact_reading_in_chunks(self):
         """An exact reading longer than one chunk agrees with every tick evaluated at once."""
