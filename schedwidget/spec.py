@@ -8,6 +8,17 @@ A spec file looks like::
 
 Loading parses JSON, validates it against the schema and rebuilds the value
 through one registry of kinds; nothing in a spec is ever executed.
+
+Limits (each stated in its message): a spec file is a regular file of at most
+``MAX_SPEC_BYTES`` (16 MiB); schedules nest at most ``MAX_DEPTH`` (48) deep; a
+spec holds at most ``MAX_VALUES`` JSON values and a design at most ``MAX_NODES``
+schedules; every integer fits a float (``|n| < 2**1024``, at most 309 digits).
+Paths are ``str`` or ``os.PathLike`` (bytes paths and file descriptors are refused).
+
+Validation has two routes with one outcome: a spec made of plain JSON values is
+checked by predicates compiled once from the shipped schema (exactly its rules);
+only a spec they reject (or one holding other Python types) goes to ``jsonschema``,
+which is imported then, for its messages.
 """
 
 from __future__ import annotations
@@ -16,11 +27,12 @@ import dataclasses
 import functools
 import json
 import os
-import tempfile
+import secrets
+import stat
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Callable
 
 from .combine import Clip, Product, Restarts, Scaled, Stages, Stretch, Sum, Warmup
 from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain
@@ -30,7 +42,7 @@ if TYPE_CHECKING:  # jsonschema costs ~0.8 s to import (its format checkers); it
     import jsonschema
 
 __all__ = ["FORMAT_VERSION", "Design", "to_spec", "from_spec", "read_design", "save", "load", "load_design",
-           "json_schema", "KINDS"]
+           "json_schema", "KINDS", "MAX_DEPTH", "MAX_SPEC_BYTES", "MAX_VALUES", "MAX_NODES", "read_file"]
 
 FORMAT_VERSION = 1
 UNITS = ("step", "epoch")
@@ -50,6 +62,25 @@ class Design:
     steps_per_epoch: int | None = None
 
 
+#: Deepest nesting of schedule nodes a spec may have (real designs are a handful deep).
+MAX_DEPTH = 48
+#: Most schedule nodes a design written as a spec may have (a 3,000-stage design has about 3,001).
+MAX_NODES = 100_000
+#: Most JSON values (objects, arrays, numbers, strings...) a spec may hold.
+MAX_VALUES = 2 ** 22
+#: Largest spec file ``load`` reads, in bytes (16 MiB; a 20-stage design is about 5 KB).
+MAX_SPEC_BYTES = 16 * 2 ** 20
+#: Integers in a spec must be smaller than this in magnitude: every number must fit a float.
+INT_LIMIT = 2 ** 1024
+#: JSON container levels a spec may nest: the top object, two per schedule (a node and its
+#: list of parts) and two for a knots table (the list of pairs and a pair).
+MAX_JSON_DEPTH = 2 * MAX_DEPTH + 3
+
+
+def _type_words(v: Any) -> str:
+    return "None" if v is None else f"a {type(v).__name__}"
+
+
 # ------------------------------------------------------------------- writing
 def _node(s: Schedule) -> dict[str, Any]:
     out: dict[str, Any] = {"kind": s.kind}
@@ -67,8 +98,36 @@ def _node(s: Schedule) -> dict[str, Any]:
     return out
 
 
+def _check_size(s: Schedule, owner: str) -> None:
+    """Refuse a design a spec file cannot hold: deeper than MAX_DEPTH or with more than MAX_NODES schedules.
+
+    Walks the design without recursion, so any design gets an answer in bounded time
+    (a design that reuses one sub-design many times is counted as the tree it writes).
+    """
+    todo, seen = [(s, 1)], 0
+    while todo:
+        node, level = todo.pop()
+        seen += 1
+        if level > MAX_DEPTH:
+            raise complain(owner, "s", f"a design more than {MAX_DEPTH} schedules deep",
+                           f"at most {MAX_DEPTH} nested schedules (the limit of spec files)",
+                           "flatten nested stages into one stages(...)")
+        if seen > MAX_NODES:
+            raise complain(owner, "s", f"a design of more than {MAX_NODES:,} schedules",
+                           f"at most {MAX_NODES:,} schedules (the limit of spec files)")
+        todo.extend((c, level + 1) for c in node.children())
+
+
 def to_spec(s: Schedule, unit: str | None = None, steps_per_epoch: int | None = None) -> dict[str, Any]:
-    """Plain-JSON spec of ``s`` with the format version (and the clock's unit when given)."""
+    """Plain-JSON spec of ``s`` with the format version (and the clock's unit when given).
+
+    ``s`` must be a Schedule at most ``MAX_DEPTH`` deep with at most ``MAX_NODES``
+    schedules (what a spec file may hold); anything else is a ScheduleError.
+    """
+    if not isinstance(s, Schedule):
+        raise complain("to_spec", "s", None if s is None else _type_words(s),
+                       "a Schedule (built with flat, cosine, stages, ...)")
+    _check_size(s, "to_spec")
     spec: dict[str, Any] = {"version": FORMAT_VERSION}
     if unit is not None:
         if unit not in UNITS:
@@ -176,7 +235,7 @@ def _shallow(schema: dict[str, Any], root: str | None) -> jsonschema.Draft202012
 
 @functools.lru_cache(maxsize=None)
 def _validator(kind: str | None = None) -> jsonschema.Draft202012Validator:
-    return _shallow(shipped_schema(), kind)
+    return _shallow(shipped_schema_cached(), kind)
 
 
 def _problems(d: dict[str, Any]) -> list[tuple[list, str, str]]:
@@ -198,9 +257,152 @@ def _problems(d: dict[str, Any]) -> list[tuple[list, str, str]]:
     return found
 
 
+@functools.lru_cache(maxsize=1)
+def shipped_schema_cached() -> dict[str, Any]:
+    """The shipped schema, read once (do not mutate the result)."""
+    return shipped_schema()
+
+
 def shipped_schema() -> dict[str, Any]:
     """The schema file shipped inside the package (a test keeps it equal to ``json_schema()``)."""
     return json.loads(resources.files("schedwidget").joinpath(SCHEMA_FILE).read_text("utf-8"))
+
+
+# ----------------------------------------------------- the schema as predicates
+# For a document made only of plain JSON values (dict with str keys, list, str, int,
+# float, bool, None), these predicates decide exactly what Draft 2020-12 decides for
+# the keywords the shipped schema uses: "number" is int or float (bools are not
+# numbers), "integer" is an int or an integral float, bounds compare as Python does,
+# enums and consts are strings compared by equality.  A keyword they do not know makes
+# the predicate answer False, which only sends the document to jsonschema.
+_Check = Callable[[Any], bool]
+_NUMBER = (int, float)
+_TYPES: dict[str, _Check] = {
+    "object": lambda v: type(v) is dict,
+    "array": lambda v: type(v) is list,
+    "string": lambda v: type(v) is str,
+    "boolean": lambda v: type(v) is bool,
+    "null": lambda v: v is None,
+    "number": lambda v: type(v) in _NUMBER,
+    "integer": lambda v: type(v) is int or (type(v) is float and v.is_integer()),
+}
+_IGNORED = ("description", "default", "title", "$schema", "$id", "$defs")
+
+
+def _never(v: Any) -> bool:
+    return False
+
+
+def _compile(schema: Any, table: dict[str, _Check]) -> _Check:
+    """One predicate for ``schema`` (a sub-schema of the shipped one); ``table`` maps $defs names to predicates."""
+    if schema is True:
+        return lambda v: True
+    if schema is False:
+        return _never
+    if not isinstance(schema, dict):
+        return _never
+    checks: list[_Check] = []
+    for key, val in schema.items():
+        if key in _IGNORED:
+            continue
+        if key == "type" and isinstance(val, str) and val in _TYPES:
+            checks.append(_TYPES[val])
+        elif key in ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum") and type(val) in _NUMBER:
+            checks.append(_bound(key, val))
+        elif key in ("enum", "const"):
+            allowed = val if key == "enum" else [val]
+            if not all(isinstance(a, str) for a in allowed):
+                return _never
+            names = frozenset(allowed)
+            checks.append(lambda v, names=names: type(v) is str and v in names)
+        elif key == "anyOf" and isinstance(val, list):
+            subs = [_compile(x, table) for x in val]
+            checks.append(lambda v, subs=subs: any(f(v) for f in subs))
+        elif key == "$ref" and isinstance(val, str) and val.startswith("#/$defs/"):
+            name = val[len("#/$defs/"):]
+            checks.append(lambda v, name=name: table[name](v))
+        elif key == "properties" and isinstance(val, dict):
+            props = {k: _compile(x, table) for k, x in val.items()}
+            closed = schema.get("additionalProperties") is False
+            checks.append(_properties(props, closed))
+        elif key == "additionalProperties" and val is False and "properties" in schema:
+            continue  # part of the "properties" predicate
+        elif key == "required" and isinstance(val, list):
+            need = tuple(val)
+            checks.append(lambda v, need=need: type(v) is not dict or all(k in v for k in need))
+        elif key == "minItems" and type(val) is int:
+            checks.append(lambda v, n=val: type(v) is not list or len(v) >= n)
+        elif key == "prefixItems" and isinstance(val, list):
+            continue  # with "items"
+        elif key == "items":
+            checks.append(_items([_compile(x, table) for x in schema.get("prefixItems", ())], val, table))
+        else:
+            return _never
+    if "prefixItems" in schema and "items" not in schema:
+        return _never
+    return lambda v: all(f(v) for f in checks)
+
+
+def _bound(key: str, b: float) -> _Check:
+    # written as jsonschema tests them (``instance < minimum`` is the error), so nan passes every bound there
+    # and here alike; the parameter check then refuses it with its own message
+    if key == "minimum":
+        return lambda v: type(v) not in _NUMBER or not v < b
+    if key == "maximum":
+        return lambda v: type(v) not in _NUMBER or not v > b
+    if key == "exclusiveMinimum":
+        return lambda v: type(v) not in _NUMBER or not v <= b
+    return lambda v: type(v) not in _NUMBER or not v >= b
+
+
+def _properties(props: dict[str, _Check], closed: bool) -> _Check:
+    def check(v: Any) -> bool:
+        if type(v) is not dict:
+            return True
+        for k, x in v.items():
+            f = props.get(k)
+            if f is None:
+                if closed:
+                    return False
+            elif not f(x):
+                return False
+        return True
+    return check
+
+
+def _items(prefix: list[_Check], rest: Any, table: dict[str, _Check]) -> _Check:
+    if rest is False:
+        return lambda v: type(v) is not list or (len(v) <= len(prefix) and all(f(x) for f, x in zip(prefix, v)))
+    each = _compile(rest, table)
+    n = len(prefix)
+    return lambda v: type(v) is not list or (all(f(x) for f, x in zip(prefix, v)) and all(each(x) for x in v[n:]))
+
+
+def _node_form(kinds: list[str]) -> dict[str, Any]:
+    """The shipped schema's definition of a schedule node: an object whose kind picks its definition."""
+    return {"type": "object", "required": ["kind"], "properties": {"kind": {"enum": kinds}},
+            "allOf": [{"if": {"properties": {"kind": {"const": k}}, "required": ["kind"]},
+                       "then": {"$ref": f"#/$defs/{k}"}} for k in kinds]}
+
+
+@functools.lru_cache(maxsize=1)
+def _accepts() -> _Check:
+    """The predicate for a whole spec, compiled once from the shipped schema."""
+    schema = shipped_schema_cached()
+    defs = schema.get("$defs", {})
+    table: dict[str, _Check] = {}
+    for name, sub in defs.items():
+        if name != "node":
+            table[name] = _compile(sub, table)
+    kinds = [k for k in defs.get("node", {}).get("properties", {}).get("kind", {}).get("enum", [])]
+    if defs.get("node") == _node_form(kinds) and all(k in table for k in kinds):
+        # the allOf of if/then branches picks exactly the branch whose const equals the kind
+        chosen = {k: table[k] for k in kinds}
+        table["node"] = lambda v: type(v) is dict and type(v.get("kind")) is str and (
+            v["kind"] in chosen and chosen[v["kind"]](v))
+    else:  # a node definition of another form: leave every spec to jsonschema
+        table["node"] = _never
+    return _compile({k: v for k, v in schema.items() if k != "$defs"}, table)
 
 
 # ------------------------------------------------------------------- reading
@@ -211,36 +413,85 @@ def _where(path) -> str:
     return out or "(top level)"
 
 
-#: Deepest nesting of schedule nodes a spec may have (real designs are a handful deep).
-MAX_DEPTH = 48
+class _LongInt:
+    """Stands for an integer literal too long to convert (the scan reports it with its JSON path)."""
+
+    __slots__ = ("digits",)
+
+    def __init__(self, digits: int) -> None:
+        self.digits = digits
 
 
-def _depth(d: Any) -> int:
-    """Nesting depth of JSON containers, without recursion."""
-    deepest, todo = 0, [(d, 1)]
+def _parse_int(text: str) -> int | _LongInt:
+    digits = len(text.lstrip("-"))
+    return _LongInt(digits) if digits > 310 else int(text)
+
+
+_PLAIN = frozenset((dict, list, str, int, float, bool, type(None)))
+
+
+def _scan(d: Any) -> bool:
+    """Check the limits that keep loading bounded, without recursion; True when every value is plain JSON.
+
+    At most MAX_DEPTH schedules (JSON objects below the top one) on any path and at
+    most MAX_JSON_DEPTH nested containers, at most MAX_VALUES values, every integer
+    smaller than INT_LIMIT in magnitude.  A cycle or a shared sub-document counts as
+    the tree it unfolds to, so it ends at a limit.
+    """
+    todo: list[tuple[Any, int, int, Any]] = [(d, 1, 0, None)]
+    seen, plain = 0, True
+
+    def path(link: Any) -> str:
+        parts = []
+        while link is not None:
+            link, key = link
+            parts.append(key)
+        parts.reverse()
+        return _where(parts) if len(parts) <= 12 else f"{_where(parts[:5])} ... {_where(parts[-5:])}"
+
     while todo:
-        node, level = todo.pop()
-        if isinstance(node, dict):
-            todo.extend((v, level + 1) for v in node.values())
-        elif isinstance(node, list):
-            todo.extend((v, level + 1) for v in node)
-        else:
-            continue
-        deepest = max(deepest, level)
-    return deepest
+        node, level, nodes, link = todo.pop()
+        seen += 1
+        if seen > MAX_VALUES:
+            raise ScheduleError(f"spec: a spec must hold at most {MAX_VALUES:,} JSON values, got more "
+                                "(a design this large is almost certainly generated by mistake)")
+        t = type(node)
+        if t is dict or t is list:
+            if level > MAX_JSON_DEPTH or (t is dict and nodes > MAX_DEPTH):
+                raise ScheduleError(f"spec: nesting must be at most {MAX_DEPTH} schedules deep, got more at "
+                                    f"{path(link)} (at most {MAX_JSON_DEPTH} levels of JSON objects and arrays; "
+                                    "a design this deep is almost certainly generated by mistake)")
+            if t is dict:
+                for k, v in node.items():
+                    if type(k) is not str:
+                        plain = False
+                    todo.append((v, level + 1, nodes + 1, (link, k)))
+            else:
+                todo.extend((v, level + 1, nodes, (link, i)) for i, v in enumerate(node))
+        elif t is int:
+            if not -INT_LIMIT < node < INT_LIMIT:
+                digits = int(node.bit_length() * 0.30103) + 1
+                raise ScheduleError(f"spec: {path(link)}: an integer must be smaller than 2**1024 (about 1.8e308, "
+                                    f"a float's range) in magnitude, got one of about {digits:,} digits")
+        elif t is _LongInt:
+            raise ScheduleError(f"spec: {path(link)}: an integer must be smaller than 2**1024 (about 1.8e308, a "
+                                f"float's range) in magnitude, got one of {node.digits:,} digits")
+        elif t not in _PLAIN:
+            plain = False
+    return plain
 
 
 def _check_schema(d: Any) -> None:
+    """The limits, then the schema: a ScheduleError naming up to three problems by their JSON paths."""
     if not isinstance(d, dict):
         raise ScheduleError(f"spec: the top level must be a JSON object, got {type(d).__name__}")
-    depth = _depth(d)
-    if depth > 2 * MAX_DEPTH:
-        raise ScheduleError(f"spec: nesting must be at most {MAX_DEPTH} schedules deep, got about {depth // 2} "
-                            "(a design this deep is almost certainly generated by mistake)")
+    plain = _scan(d)
     version = d.get("version")
     if isinstance(version, int) and not isinstance(version, bool) and version > FORMAT_VERSION:
         raise ScheduleError(f"spec: version must be <= {FORMAT_VERSION}, got {version} "
                             "(this file was written by a newer schedwidget; upgrade to read it)")
+    if plain and _accepts()(d):
+        return
     errors = sorted(_problems(d), key=lambda e: (-len(e[0]), e[1]))
     useful = [e for e in errors if e[2] not in ("allOf", "if", "$ref")] or errors
     lines_all: list[str] = []
@@ -276,10 +527,16 @@ def _build(node: dict[str, Any], where: str) -> Schedule:
         return cls(**kwargs)
     except ScheduleError as exc:
         raise ScheduleError(f"spec: {where}: {exc}") from None
+    except (ArithmeticError, TypeError, ValueError) as exc:  # a constructor's check that is not a ScheduleError yet
+        raise ScheduleError(f"spec: {where}: {node['kind']} cannot be built from these values "
+                            f"({type(exc).__name__}: {exc})") from None
 
 
 def read_design(d: Any) -> Design:
-    """Validate a parsed spec and rebuild its Design (schedule, unit, steps per epoch)."""
+    """Validate a parsed spec and rebuild its Design (schedule, unit, steps per epoch).
+
+    Any input gets a Design or a ScheduleError, in bounded time (see the module's limits).
+    """
     _check_schema(d)
     return Design(_build(d["schedule"], "schedule"), d.get("unit", "step"), d.get("steps_per_epoch"))
 
@@ -289,23 +546,102 @@ def from_spec(d: Any) -> Schedule:
     return read_design(d).schedule
 
 
-def _read(path: str | os.PathLike) -> Any:
-    p = Path(path)
+def check_path(owner: str, path: Any, name: str = "path") -> str:
+    """``path`` as a str file path: a ``str`` or an ``os.PathLike`` that gives one; anything else is refused."""
+    if isinstance(path, str) or (isinstance(path, os.PathLike) and not isinstance(path, bytes)):
+        try:
+            out = os.fspath(path)
+        except TypeError:
+            out = None
+        if isinstance(out, str) and out and "\0" not in out:
+            return out
+    raise complain(owner, name, path if isinstance(path, (str, bytes, int)) else _type_words(path),
+                   "a file path: a non-empty str or os.PathLike such as pathlib.Path",
+                   "bytes paths and file descriptors are not accepted; decode bytes with os.fsdecode")
+
+
+def _kind_of(mode: int) -> str:
+    for test, words in ((stat.S_ISDIR, "a folder"), (stat.S_ISFIFO, "a pipe (FIFO)"),
+                        (stat.S_ISCHR, "a character device"), (stat.S_ISBLK, "a block device"),
+                        (stat.S_ISSOCK, "a socket")):
+        if test(mode):
+            return words
+    return "not a regular file"
+
+
+def read_file(path: Any, owner: str, name: str = "path", cap: int = MAX_SPEC_BYTES,
+              what: str = "name an existing file", folder: str = "it is a folder") -> bytes:
+    """The bytes of a regular file of at most ``cap`` bytes, read without ever blocking.
+
+    The path is checked with ``os.stat`` before it is opened, so a pipe, a device
+    or a socket (which may never end, or never start) is refused with a message;
+    the file is opened non-blocking and checked again on the open descriptor, and
+    at most ``cap + 1`` bytes are read, so a file that grows meanwhile is refused too.
+    Messages read ``"{owner}: {name} must {what}, got '...' (why)"``.
+    """
+    p = check_path(owner, path, name)
+
+    def refuse(why: str) -> ScheduleError:
+        return ScheduleError(f"{owner}: {name} must {what}, got {p!r} ({why})")
+
     try:
-        text = p.read_text("utf-8")
+        st = os.stat(p)
     except FileNotFoundError:
-        raise ScheduleError(f"load: path must name an existing file, got {str(p)!r}") from None
-    except (IsADirectoryError, PermissionError, UnicodeDecodeError) as exc:
-        raise ScheduleError(f"load: {str(p)!r} cannot be read as UTF-8 text ({type(exc).__name__})") from None
+        raise refuse(f"no such file; relative paths start at {os.getcwd()}") from None
+    except OSError as exc:
+        raise refuse(f"it cannot be read: {exc.strerror or type(exc).__name__}") from None
+    if not stat.S_ISREG(st.st_mode):
+        kind = _kind_of(st.st_mode)
+        raise refuse(folder if kind == "a folder" else
+                     f"it is {kind}; only regular files are read, since a pipe or a device may never end")
+    too_big = f"{{:,}} bytes; at most {cap:,} bytes ({cap / 2 ** 20:g} MiB) are read"
+    if st.st_size > cap:
+        raise refuse("it has " + too_big.format(st.st_size))
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0) | getattr(os, "O_CLOEXEC", 0)
     try:
-        return json.loads(text)
+        fd = os.open(p, flags)
+    except OSError as exc:
+        raise refuse(f"it cannot be opened: {exc.strerror or type(exc).__name__}") from None
+    try:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):  # replaced by something else since the stat
+            raise refuse("it is no longer a regular file")
+        chunks, size = [], 0
+        while size <= cap:
+            chunk = os.read(fd, min(cap + 1 - size, 1 << 20))
+            if not chunk:
+                break
+            chunks.append(chunk)
+            size += len(chunk)
+    except OSError as exc:
+        raise refuse(f"reading it failed: {exc.strerror or type(exc).__name__}") from None
+    finally:
+        os.close(fd)
+    if size > cap:
+        raise refuse("it grew past " + too_big.format(cap))
+    return b"".join(chunks)
+
+
+def _read(path: Any, owner: str = "load") -> Any:
+    data = read_file(path, owner, cap=MAX_SPEC_BYTES, folder="it is a folder, which cannot be read as a spec")
+    shown = repr(os.fspath(path))
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ScheduleError(f"{owner}: {shown} cannot be read as UTF-8 text (byte {exc.start:,}: {exc.reason})") \
+            from None
+    try:
+        return json.loads(text, parse_int=_parse_int)
     except json.JSONDecodeError as exc:
-        raise ScheduleError(f"load: {str(p)!r} is not JSON (line {exc.lineno}, column {exc.colno}: {exc.msg})") from None
+        raise ScheduleError(f"{owner}: {shown} is not JSON (line {exc.lineno}, column {exc.colno}: {exc.msg})") \
+            from None
+    except RecursionError:
+        raise ScheduleError(f"{owner}: {shown} nests JSON arrays or objects too deeply to read; a spec nests at most "
+                            f"{MAX_JSON_DEPTH} levels ({MAX_DEPTH} schedules)") from None
 
 
 def load_design(path: str | os.PathLike) -> Design:
-    """Read a spec file into a Design."""
-    return read_design(_read(path))
+    """Read a spec file into a Design (a regular file of at most MAX_SPEC_BYTES; see the module's limits)."""
+    return read_design(_read(path, "load"))
 
 
 def load(path: str | os.PathLike) -> Schedule:
@@ -318,28 +654,75 @@ def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,
     """Write ``s`` as a spec file atomically: a temporary file in the same folder, then a rename.
 
     An existing file is replaced only once the new one is complete, so a crash
-    mid-write never leaves half a design on disk.
+    mid-write never leaves half a design on disk.  A replaced file keeps its
+    permission bits; a new file gets the usual ones (0666 less the umask).  A
+    symbolic link is written through: its target is replaced and the link stays.
+    Only a regular file (or a new name) can be written.
     """
     if not isinstance(s, Schedule):
         raise ScheduleError(f"save: s must be a Schedule, got {type(s).__name__}")
+    target = Path(check_path("save", path))
     text = json.dumps(to_spec(s, unit, steps_per_epoch), indent=2) + "\n"
-    target = Path(path)
-    if not target.parent.is_dir():
-        raise ScheduleError(f"save: path must be in an existing folder, got {str(target)!r}")
-    write_atomic(target, text)
+    write_atomic(target, text, owner="save")
     return target
 
 
-def write_atomic(target: Path, text: str) -> None:
-    """Write ``text`` to a temporary file beside ``target``, then rename it over ``target``."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+def write_atomic(target: Path, text: str, owner: str = "save", name: str = "path") -> None:
+    """Write ``text`` to a temporary file beside the file ``target`` names, then rename it over that file.
+
+    A symbolic link is followed to the file it names (which is replaced; the link
+    stays).  The new file keeps the permission bits of the one it replaces, or for
+    a new file 0666 less the umask (the kernel applies the umask at creation).
+    Anything but a regular file (a folder, a pipe, a device) is refused.
+    """
+    shown = str(target)
+    real = Path(os.path.realpath(target))
+    if not real.parent.is_dir():
+        raise complain(owner, name, shown, "in an existing folder",
+                       None if real == Path(os.path.abspath(target)) else f"the link leads to {str(real)!r}")
+    try:
+        st = os.stat(real)
+    except FileNotFoundError:
+        st = None
+    except OSError as exc:
+        raise complain(owner, name, shown, "a writable file", exc.strerror or type(exc).__name__) from None
+    if st is not None and not stat.S_ISREG(st.st_mode):
+        raise complain(owner, name, shown, "a regular file or a new name", f"it is {_kind_of(st.st_mode)}")
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_NOFOLLOW", 0)
+    for _ in range(100):
+        tmp = real.parent / f".{real.name}.{secrets.token_hex(4)}.tmp"
+        try:
+            fd = os.open(tmp, flags, 0o666)
+            break
+        except FileExistsError:
+            continue
+    else:  # pragma: no cover - 100 collisions of 32 random bits
+        raise complain(owner, name, shown, "a file whose folder accepts a temporary file",
+                       "100 temporary names were taken")
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            if st is not None:
+                os.fchmod(fh.fileno(), stat.S_IMODE(st.st_mode))
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())
-        os.replace(tmp, target)
+        os.replace(tmp, real)
     except BaseException:
-        if os.path.exists(tmp):
+        if os.path.lexists(tmp):
             os.unlink(tmp)
         raise
+    _sync_folder(real.parent)
+
+
+def _sync_folder(folder: Path) -> None:
+    """Flush the rename to disk where the platform allows it (best effort)."""
+    try:
+        fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
