@@ -22,7 +22,7 @@ import numpy as np
 
 from .combine import Restarts, Stretch
 from .sample import at_ticks, breaks, budget_of
-from .schedule import Schedule, ScheduleError, as_whole, complain
+from .schedule import Schedule, as_whole, complain
 from .shapes import ExpDecay
 
 __all__ = ["Facts", "facts", "EXACT_LIMIT", "LARGE_BATCH", "LEVEL_TOLERANCE"]
@@ -277,7 +277,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
         raise complain(owner, "s", s, "a Schedule (e.g. cosine(0.1, steps=1000))",
                        "a bare rate is flat(rate, steps=...)" if isinstance(s, (int, float, np.number)) else None)
     if not isinstance(unit, str) or unit not in ("step", "epoch"):
-        raise ScheduleError(f"facts: unit must be one of 'step', 'epoch', got {unit!r}")
+        raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
     if steps_per_epoch is not None:
         steps_per_epoch = _whole_or_none(owner, "steps_per_epoch", steps_per_epoch)
     if batch is not None:
@@ -322,7 +322,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
 def _whole_or_none(owner: str, name: str, value) -> int:
     n = as_whole(value)
     if n is None or n < 1 or n > 2 ** 53:
-        raise ScheduleError(f"{owner}: {name} must be a whole number >= 1 or None, got {value!r}")
+        raise complain(owner, name, value, "a whole number >= 1 or None")
     return n
 
 

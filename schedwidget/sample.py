@@ -39,7 +39,7 @@ def budget_of(s: Schedule, steps: int | None, owner: str) -> int:
                             "(pass steps=the number of ticks to read)")
     w = as_whole(n)
     if w is None or w < 1:
-        raise ScheduleError(f"{owner}: steps must be a whole number >= 1, got {n!r}")
+        raise complain(owner, "steps", n, "a whole number >= 1")
     if w > MAX_TICKS:
         raise complain(owner, "steps", n, "a whole number <= 2**53",
                        "above that, ticks are no longer exact on a float64 clock")
