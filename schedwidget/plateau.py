@@ -135,6 +135,8 @@ def lead_in(base: Schedule | None) -> int:
     from .combine import Stages, Stretch, Warmup
     from .shapes import Ramp
 
+    if base is not None and not isinstance(base, Schedule):
+        raise complain("lead_in", "base", base, "None or a Schedule on the epoch clock (e.g. warmup(flat(0.1), 5))")
     if isinstance(base, Warmup):
         return int(base.steps)
     if isinstance(base, Stages) and isinstance(base.parts[0], Ramp) and base.parts[0].end > base.parts[0].start:

@@ -52,9 +52,13 @@ def at_ticks(s: Schedule, t: np.ndarray) -> np.ndarray:
     Nodes evaluate a sorted clock fastest (``stages`` cuts it into one slice per stage), so
     scattered ticks (both sides of every join, say) cost one pass over the design, not one per tick.
     """
-    t = np.asarray(t, dtype=np.int64)
-    u, back = np.unique(t.reshape(-1), return_inverse=True)
-    return s(u)[back].reshape(t.shape)
+    if not isinstance(s, Schedule):
+        raise complain("at_ticks", "s", s, "a Schedule")
+    arr = np.asarray(t) if isinstance(t, np.ndarray) else None
+    if arr is None or arr.dtype.kind not in "iu" or arr.ndim == 0:
+        return s(t)  # the schedule's own checks and messages for anything but an integer array
+    u, back = np.unique(arr.reshape(-1), return_inverse=True)
+    return s(u)[back].reshape(arr.shape)
 
 
 def breaks(s: Schedule, n: int) -> np.ndarray:

@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 
 from schedwidget import ScheduleError, cosine, warmup
 from schedwidget.metrics import DEMO_NAMES, demo_path, read_metric
-from schedwidget.plateau import MEMBERS, TORCH_MIN_DROP, plateau_source, replay_plateau
+from schedwidget.plateau import MEMBERS, TORCH_MIN_DROP, lead_in, plateau_source, replay_plateau
 
 from .test_plateau import START, all_rates, histories, run_source
 
@@ -175,6 +175,12 @@ class TestHugeNumbers:
                 replay_plateau([1.0, 2.0, 3.0], **args)
             else:
                 plateau_source(**args)
+
+    @pytest.mark.parametrize("base", ["warmup", 5, 0.1])
+    def test_lead_in_of_a_non_schedule(self, base):
+        """lead_in reads a Schedule or None; anything else is named, not silently 0."""
+        with pytest.raises(ScheduleError, match=r"^lead_in: base must be None or a Schedule"):
+            lead_in(base)
 
     def test_whole_numbers_that_fit_are_fine(self):
         """A large integer that fits a float is a number like any other."""

@@ -131,6 +131,8 @@ class TestBadInput:
         (lambda: breaks(S, 0), r"^breaks: steps must be a whole number >= 1, got 0"),
         (lambda: breaks("design", 10), r"^breaks: s must be a Schedule"),
         (lambda: budget_of([1], 10, "render_svg"), r"^render_svg: s must be a Schedule"),
+        (lambda: at_ticks(S, np.array([1.5, 2.0])), r"^cosine: t must be a whole number of ticks"),
+        (lambda: at_ticks(None, np.array([1])), r"^at_ticks: s must be a Schedule"),
         (lambda: facts(S, steps=-10 ** 5000), r"^facts: steps must be a whole number >= 1, got an integer of about"),
         (lambda: facts(S, steps_per_epoch=10 ** 5000), r"^facts: steps_per_epoch must be a whole number >= 1 or "
                                                          r"None, got an integer of about 5001 digits"),
