@@ -158,44 +158,63 @@ def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tu
 def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int, level: float) -> int | None:
     """The first tick from ``start`` where the rate is at or under ``level`` (within LEVEL_TOLERANCE relative).
 
-    On a grid, the gap before the first grid tick that is under is searched too (``_refine_under``).
+    Every tick when ``grid`` is None.  On a grid, the gaps before the first grid tick that is under and
+    whose interval lower bound reaches the level are searched first (at most ``REFINE_TRIES`` of them,
+    earliest first), then the gap that ends at that grid tick (``_refine_under``).
     """
     bound = level * (1.0 + LEVEL_TOLERANCE)
-    before = start  # a tick known to be above the level: the peak, then the last tick read
-    for t in _chunks(grid, n, start):
-        hit = np.flatnonzero(s(t) <= bound)
-        if hit.size:
-            k = int(hit[0])
-            at, prev = int(t[k]), int(t[k - 1]) if k else before
-            return _refine_under(s, prev, at, bound) if grid is not None and at - prev > 1 else at
-        before = int(t[-1])
+    if grid is None:
+        for t in _chunks(None, n, start):
+            hit = np.flatnonzero(s(t) <= bound)
+            if hit.size:
+                return int(t[hit[0]])
+        return None
+    g = grid[int(np.searchsorted(grid, start)):]
+    if not g.size or g[0] != start:
+        g = np.concatenate([[start], g]).astype(np.int64)
+    for i in range(0, g.size - 1, CHUNK):
+        a, b = g[i:i + CHUNK], g[i + 1:i + CHUNK + 1]
+        a = a[:b.size]
+        under = np.flatnonzero(s(b) <= bound)
+        k = int(under[0]) if under.size else b.size
+        low, _ = s._span(a[:k].astype(float), b[:k].astype(float))
+        for j in np.flatnonzero((low <= bound) & (b[:k] - a[:k] > 1))[:REFINE_TRIES].tolist():
+            got = _refine_under(s, int(a[j]), int(b[j]), bound)
+            if got is not None:
+                return got
+        if under.size:
+            got = _refine_under(s, int(a[k]), int(b[k]), bound)
+            return int(b[k]) if got is None else got
     return None
 
 
-def _refine_under(s: Schedule, lo: int, hi: int, bound: float) -> int:
-    """The earliest tick in ``(lo, hi]`` at or under ``bound``, where ``hi`` is such a tick and ``lo`` is not.
+def _refine_under(s: Schedule, lo: int, hi: int, bound: float, budget: int = 48) -> int | None:
+    """The earliest tick in ``(lo, hi]`` at or under ``bound`` that a bounded search finds, or None.
 
-    Bounded descent: split into ``REFINE_SPLIT`` pieces, read their ends, go into the earliest piece before
-    the first end that is under whose lower bound reaches the level; read tick by tick once
-    ``REFINE_DENSE`` ticks or shorter.  Exact for shapes with tight bounds (every monotone stretch);
-    otherwise the earliest tick found.
+    Depth first over pieces, earliest first: a piece longer than ``REFINE_DENSE`` ticks is split into
+    ``REFINE_SPLIT`` pieces whose ends are read; the pieces up to the first end that is under, whose
+    interval lower bound reaches the level, are searched in order.  At most ``budget`` pieces are
+    opened; exact for shapes with tight bounds (every monotone stretch), otherwise the earliest tick found.
     """
-    found = hi
-    for _ in range(12):  # 64**9 > 2**53
+    stack = [(lo, hi)]
+    found: int | None = None
+    while stack and budget > 0:
+        lo, hi = stack.pop()
+        budget -= 1
         if hi - lo <= REFINE_DENSE:
             t = np.arange(lo + 1, hi + 1)
             h = np.flatnonzero(s(t) <= bound)
-            return min(found, int(t[h[0]])) if h.size else found
+            if h.size:
+                return int(t[h[0]])
+            continue
         c = np.unique(np.linspace(lo, hi, REFINE_SPLIT + 1).astype(np.int64))
-        under = np.flatnonzero(s(c) <= bound)
-        if not under.size or under[0] == 0:
-            return min(found, int(c[under[0]])) if under.size else found
-        k = int(under[0])
-        found = min(found, int(c[k]))
+        under = np.flatnonzero(s(c[1:]) <= bound)  # piece i is (c[i], c[i + 1]]
+        k = int(under[0]) if under.size else c.size - 1
+        if under.size:
+            found = int(c[k + 1]) if found is None else min(found, int(c[k + 1]))
         low, _ = s._span(c[:k].astype(float), c[1:k + 1].astype(float))
-        reach = np.flatnonzero(low <= bound)
-        j = int(reach[0]) if reach.size else k - 1
-        lo, hi = int(c[j]), int(c[j + 1])
+        later = [(int(c[k]), int(c[k + 1]))] if under.size else []
+        stack += later + [(int(c[j]), int(c[j + 1])) for j in np.flatnonzero(low <= bound)[::-1].tolist()]
     return found
 
 

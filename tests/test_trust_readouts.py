@@ -9,7 +9,7 @@ import tracemalloc
 import numpy as np
 import pytest
 
-from schedwidget import ScheduleError, cosine, drops, flat, inv_sqrt, knots, stages, warmup
+from schedwidget import ScheduleError, cosine, drops, flat, inv_sqrt, knots, restarts, stages, warmup
 from schedwidget.facts import LEVEL_TOLERANCE, facts
 from schedwidget.sample import at_ticks, breaks, budget_of, trace
 
@@ -86,6 +86,14 @@ class TestBoundedFacts:
         hand = math.ceil(n * math.acos(-0.8) / math.pi)
         assert not f.exact and abs(f.under_10 - hand) <= 1
         assert s(f.under_10) <= 0.01 * (1 + LEVEL_TOLERANCE) < s(f.under_10 - 1)
+
+    def test_grid_reading_finds_a_dip_between_grid_ticks(self):
+        """Restarts over 2**53 ticks: the first cycle dips under 10 % long before any grid tick does."""
+        s = restarts(warmup(cosine(1.0, steps=3700), steps=300))
+        f = facts(s, steps=2 ** 53)
+        # Loshchilov & Hutter 2017, eq. 5 after a 300-tick warmup: cos(pi u / 3700) <= -0.8 (10 %), -0.98 (1 %)
+        hand = [300 + math.ceil(3700 * math.acos(c) / math.pi) for c in (-0.8, -0.98)]
+        assert not f.exact and f.peak_at == 300 and [f.under_10, f.under_1] == hand == [3243, 3765]
 
     def test_exact_reading_in_chunks(self):
         """An exact reading longer than one chunk agrees with every tick evaluated at once."""
