@@ -6,12 +6,19 @@
     python -m schedwidget schema
 
 Bad input ends with exit code 1 and one line on stderr, never a traceback.
+Spec files must be regular files of at most 16 MiB (``spec.MAX_SPEC_BYTES``):
+a pipe or a device is refused before it is opened, so the command never blocks.
+When the reader of stdout goes away (``... | head -c1``) the command stops
+quietly with exit code 141 (128 + SIGPIPE, what a shell reports for a program
+ended by a closed pipe); when stdout is closed it says so in one line, exit 1.
+An interrupt (Ctrl-C) exits quietly with 130 (128 + SIGINT).
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -20,6 +27,8 @@ from .schedule import ScheduleError
 from .spec import write_atomic
 
 PROG = "python -m schedwidget"
+#: Exit codes: a broken pipe (128 + SIGPIPE) and an interrupt (128 + SIGINT), as a shell reports them.
+EXIT_PIPE, EXIT_INTERRUPT = 141, 130
 
 
 class _Usage(Exception):
@@ -29,6 +38,18 @@ class _Usage(Exception):
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str):  # type: ignore[override]
         raise _Usage(f"{message} (see {self.prog} --help)")
+
+
+class _StdoutClosed(Exception):
+    """stdout is closed: nothing can be written."""
+
+
+def _whole(text: str) -> int:
+    t = text.strip().replace("_", "")
+    if not (t.lstrip("-").isdigit() and len(t) <= 20):
+        raise argparse.ArgumentTypeError(f"--steps must be a whole number of at most 20 digits, got {text[:40]!r}"
+                                         + (" ..." if len(text) > 40 else ""))
+    return int(t)
 
 
 def _groups(text: str) -> list[float]:
@@ -58,14 +79,14 @@ def _parser() -> argparse.ArgumentParser:
                     help="torch: the optimizer's lr for every param group (default: the design's peak)")
     ex.add_argument("--groups", type=_groups, default=None, metavar="M,M,...",
                     help="torch: one rate multiplier per param group, e.g. 1.0,0.1 (default: one rate for all)")
-    ex.add_argument("--steps", type=int, default=None, metavar="N",
+    ex.add_argument("--steps", type=_whole, default=None, metavar="N",
                     help="the budget in ticks of the spec's unit; a design of another length is an error")
     ex.add_argument("-o", "--output", default=None, metavar="FILE",
                     help="write here (atomically: a temporary file, then a rename) instead of stdout")
     ck = sub.add_parser("check", help="validate a spec file (exit 0 'ok: ...' or 1 with the problem)",
                         description="Validate a spec file; with --steps also check its length against a budget.")
     ck.add_argument("spec", metavar="SPEC.json")
-    ck.add_argument("--steps", type=int, default=None, metavar="N", help="the budget in ticks of the spec's unit")
+    ck.add_argument("--steps", type=_whole, default=None, metavar="N", help="the budget in ticks of the spec's unit")
     sub.add_parser("schema", help="print the JSON Schema of spec files",
                    description="Print the JSON Schema (draft 2020-12) that spec files are validated against.")
     return p
@@ -102,27 +123,41 @@ def _show(d, path: str) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _out(text: str) -> None:
+    """Write to stdout (a closed stdout is reported, not a traceback)."""
+    if sys.stdout is None:
+        raise _StdoutClosed
+    try:
+        sys.stdout.write(text)
+    except (ValueError, OSError) as exc:  # ValueError: the stream object was closed
+        if isinstance(exc, BrokenPipeError):
+            raise
+        if isinstance(exc, ValueError) or getattr(exc, "errno", None) == 9:  # EBADF: the descriptor is closed
+            raise _StdoutClosed from None
+        raise
+
+
 def _write(text: str, output: str | None) -> None:
     if output is None:
-        sys.stdout.write(text)
+        _out(text)
         return
     target = Path(output)
     if not target.parent.is_dir() or target.is_dir():
         raise ScheduleError(f"export: -o must name a file in an existing folder, got {output!r}")
-    write_atomic(target, text)
+    write_atomic(target, text, owner="export", name="-o")
 
 
 def _run(args: argparse.Namespace) -> int:
     from .spec import json_schema, load_design
 
     if args.command == "schema":
-        sys.stdout.write(json.dumps(json_schema(), indent=2) + "\n")
+        _out(json.dumps(json_schema(), indent=2) + "\n")
         return 0
     d = load_design(args.spec)
     s, unit, spe = d.schedule, d.unit, d.steps_per_epoch
     spe = spe if unit == "step" else None
     if args.command == "show":
-        sys.stdout.write(_show(d, args.spec))
+        _out(_show(d, args.spec))
         return 0
     if args.command == "check":
         from .budget import check_length
@@ -130,7 +165,7 @@ def _run(args: argparse.Namespace) -> int:
         if args.steps is not None:
             check_length(s, args.steps, unit, owner="check")
         size = f"{s.length:,} {unit}s" if s.length is not None else f"open-ended, unit {unit}"
-        print(f"ok: {args.spec}: {s.kind}, {size}" + (f", {spe:,} steps per epoch" if spe else ""))
+        _out(f"ok: {args.spec}: {s.kind}, {size}" + (f", {spe:,} steps per epoch" if spe else "") + "\n")
         return 0
     from .export import to_python, to_torch
 
@@ -151,18 +186,63 @@ def _run(args: argparse.Namespace) -> int:
     return 0
 
 
+def _say(line: str) -> None:
+    """One line on stderr (nothing when stderr itself is gone)."""
+    try:
+        if sys.stderr is not None:
+            sys.stderr.write(line + "\n")
+            sys.stderr.flush()
+    except (OSError, ValueError):
+        pass
+
+
+def _quiet_stdout() -> None:
+    """Point stdout at the null device, so the interpreter's last flush cannot fail on a broken pipe."""
+    try:
+        fd = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(fd, sys.stdout.fileno())
+        os.close(fd)
+    except (AttributeError, OSError, ValueError):  # no real descriptor (a test's capture)
+        pass
+
+
+def _one_line(exc: BaseException) -> str:
+    if isinstance(exc, OSError) and exc.filename is not None:
+        return f"{exc.strerror or type(exc).__name__}: {exc.filename!r}"
+    if isinstance(exc, (_Usage, ScheduleError)):
+        return " ".join(str(exc).split()) or type(exc).__name__
+    if isinstance(exc, MemoryError):
+        return "out of memory (MemoryError); the input is too large for this machine"
+    if isinstance(exc, RecursionError):
+        return "the input is nested too deeply to process (RecursionError)"
+    text = " ".join(str(exc).split())
+    if len(text) > 300:
+        text = text[:297] + "..."
+    if isinstance(exc, OSError):
+        return text or type(exc).__name__
+    return f"internal error, please report it: {type(exc).__name__}" + (f": {text}" if text else "")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; returns the exit code (0 ok, 1 bad input)."""
+    """Run the command line; returns the exit code (0 ok, 1 bad input, 141 broken pipe, 130 interrupted)."""
     try:
         args = _parser().parse_args(argv)
-        return _run(args)
+        code = _run(args)
+        if sys.stdout is not None:
+            sys.stdout.flush()  # a broken pipe shows here, not in the interpreter's last flush
+        return code
     except SystemExit as exc:  # --help and --version print and exit 0
         return exc.code if isinstance(exc.code, int) else 0
-    except (_Usage, ScheduleError, OSError, RecursionError) as exc:
-        text = " ".join(str(exc).split()) or type(exc).__name__
-        if isinstance(exc, OSError) and exc.filename is not None:
-            text = f"{exc.strerror or type(exc).__name__}: {exc.filename!r}"
-        print(f"schedwidget: error: {text}", file=sys.stderr)
+    except BrokenPipeError:
+        _quiet_stdout()
+        return EXIT_PIPE
+    except KeyboardInterrupt:
+        return EXIT_INTERRUPT
+    except _StdoutClosed:
+        _say("schedwidget: error: stdout is closed, so nothing was written (pass -o FILE to export to a file)")
+        return 1
+    except Exception as exc:  # noqa: BLE001 - the command line promises one line and exit 1, never a traceback
+        _say(f"schedwidget: error: {_one_line(exc)}")
         return 1
 
 

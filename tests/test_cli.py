@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 from importlib import resources
@@ -167,3 +168,129 @@ class TestBadFiles:
                              text=True, timeout=120)
         assert bad.returncode == 1 and bad.stdout == "" and bad.stderr.count("\n") == 1
         assert "Traceback" not in bad.stderr and "newer schedwidget" in bad.stderr
+
+
+def _run_cli(*args: str, **kw) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "schedwidget", *args], capture_output=True, text=True, timeout=60,
+                          **kw)
+
+
+class TestHostileFiles:
+    """Issue 10: the CLI blocked forever on a FIFO, printed a MemoryError on /dev/zero and a traceback when stdout
+    was closed.  Each case is a real process with a timeout, so a hang fails the test instead of the run."""
+
+    def test_fifo_is_refused_without_blocking(self, tmp_path):
+        """A FIFO with no writer: refused after a stat, never opened."""
+        fifo = tmp_path / "spec.json"
+        os.mkfifo(fifo)
+        for command in (["show"], ["check"], ["export", "--to", "python"]):
+            out = _run_cli(command[0], str(fifo), *command[1:])
+            assert out.returncode == 1 and out.stdout == "" and out.stderr.count("\n") == 1, out.stderr
+            assert "it is a pipe (FIFO); only regular files are read" in out.stderr
+
+    def test_dev_zero_is_refused(self):
+        """/dev/zero never ends: refused as a device instead of read until memory runs out."""
+        if not os.path.exists("/dev/zero"):
+            pytest.skip("no /dev/zero here")
+        out = _run_cli("show", "/dev/zero")
+        assert out.returncode == 1 and out.stderr.count("\n") == 1 and "it is a character device" in out.stderr
+
+    def test_oversized_file_states_the_cap(self, tmp_path, capsys):
+        """A regular file over 16 MiB is refused before reading, and the message says the cap."""
+        big = tmp_path / "big.json"
+        with open(big, "wb") as fh:
+            fh.truncate(16 * 2 ** 20 + 10)
+        err = one_line_error(capsys, ["check", str(big)])
+        assert "at most 16,777,216 bytes (16 MiB) are read" in err
+
+    def test_deep_and_huge_specs_are_one_line(self, tmp_path, capsys):
+        """JSON nested past the parser's recursion and a 5,000-digit integer: one line each."""
+        deep = tmp_path / "deep.json"
+        deep.write_text('{"version": 1, "schedule": ' + "[" * 50_000 + "]" * 50_000 + "}")
+        assert "nests JSON arrays or objects too deeply" in one_line_error(capsys, ["show", str(deep)])
+        huge = tmp_path / "huge.json"
+        huge.write_text('{"version": 1, "schedule": {"kind": "flat", "lr": 1' + "0" * 4999 + "}}")
+        assert "schedule.lr: an integer must be smaller than 2**1024" in one_line_error(capsys, ["show", str(huge)])
+
+    def test_export_onto_a_fifo_is_refused(self, tmp_path):
+        """-o naming a FIFO: refused (an atomic rename would replace it; opening it would block)."""
+        fifo = tmp_path / "out.py"
+        os.mkfifo(fifo)
+        out = _run_cli("export", COSINE, "--to", "python", "-o", str(fifo))
+        assert out.returncode == 1 and "export: -o must be a regular file or a new name" in out.stderr
+        assert out.stderr.count("\n") == 1
+
+    def test_export_through_a_symlink_keeps_the_link(self, tmp_path, capsys):
+        real = tmp_path / "real.py"
+        real.write_text("old\n")
+        os.chmod(real, 0o640)
+        link = tmp_path / "link.py"
+        link.symlink_to(real)
+        assert main(["export", COSINE, "--to", "python", "-o", str(link)]) == 0
+        assert link.is_symlink() and "def lr_at" in real.read_text()
+        assert (os.stat(real).st_mode & 0o777) == 0o640
+
+
+class TestClosedOutput:
+    """A reader that goes away, or no stdout at all: no traceback."""
+
+    def test_broken_pipe_exits_quietly_with_141(self):
+        """The reader closed before the first write (what `| head -c1` does to a longer output)."""
+        r, w = os.pipe()
+        os.close(r)
+        try:
+            out = subprocess.run([sys.executable, "-m", "schedwidget", "show", COSINE], stdout=w,
+                                 stderr=subprocess.PIPE, text=True, timeout=60)
+        finally:
+            os.close(w)
+        assert out.returncode == 141 and out.stderr == "", out.stderr
+
+    def test_head_c1(self):
+        """The shell pipeline from the issue: one byte arrives and nothing is printed on stderr."""
+        out = subprocess.run(["bash", "-c", f'"{sys.executable}" -m schedwidget schema | head -c1; '
+                                            'echo " ${PIPESTATUS[0]}"'], capture_output=True, text=True, timeout=60)
+        assert out.stderr == "" and out.stdout.startswith("{ "), out
+        assert out.stdout.split()[-1] in ("0", "141")  # 0 when the output fit in the pipe before head left
+
+    def test_closed_stdout_is_one_line(self):
+        """stdout closed (`>&-`): one line on stderr, exit 1."""
+        out = subprocess.run(["bash", "-c", f'"{sys.executable}" -m schedwidget check "{COSINE}" >&-'],
+                             capture_output=True, text=True, timeout=60)
+        assert out.returncode == 1 and "Traceback" not in out.stderr, out.stderr
+        assert out.stderr == ("schedwidget: error: stdout is closed, so nothing was written "
+                              "(pass -o FILE to export to a file)\n")
+
+
+class TestNeverATraceback:
+    """Whatever goes wrong inside, the command line answers in one line with exit code 1."""
+
+    def test_unexpected_exception(self, capsys, monkeypatch):
+        import schedwidget.__main__ as cli
+
+        def broken(*a, **k):
+            raise TypeError("something inside broke")
+        monkeypatch.setattr(cli, "_show", broken)
+        err = one_line_error(capsys, ["show", COSINE])
+        assert err == "schedwidget: error: internal error, please report it: TypeError: something inside broke\n"
+
+    def test_memory_error(self, capsys, monkeypatch):
+        import schedwidget.__main__ as cli
+
+        def broken(*a, **k):
+            raise MemoryError
+        monkeypatch.setattr(cli, "_show", broken)
+        assert "out of memory (MemoryError)" in one_line_error(capsys, ["show", COSINE])
+
+    def test_interrupt_is_quiet(self, capsys, monkeypatch):
+        import schedwidget.__main__ as cli
+
+        def stop(*a, **k):
+            raise KeyboardInterrupt
+        monkeypatch.setattr(cli, "_show", stop)
+        assert main(["show", COSINE]) == 130
+        assert capsys.readouterr().err == ""
+
+    def test_absurd_steps(self, capsys):
+        """A 5,000-digit --steps is refused by the argument parser in one line (int() of it raised ValueError)."""
+        err = one_line_error(capsys, ["check", COSINE, "--steps", "9" * 5000])
+        assert "--steps must be a whole number of at most 20 digits" in err and len(err) < 300
