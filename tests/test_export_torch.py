@@ -311,6 +311,31 @@ class TestSnippet:
         with pytest.raises(ScheduleError, match=r"to_torch: name must be"):
             to_torch(DEMO, BASE, name=name)
 
+    @pytest.mark.parametrize("name,error", [("self", RecursionError), ("t", TypeError), ("__x", NameError)])
+    def test_names_that_fail_at_run_time(self, torch, name, error):
+        """self and t are the factor class's own names and __x is renamed inside it: each is refused."""
+        with pytest.raises(ScheduleError, match=rf"to_torch: name must be .*got '{name}'"):
+            to_torch(STEP_DESIGN, BASE, name=name)
+        text = to_torch(STEP_DESIGN, BASE).replace("lr_at", name)   # what the snippet would have been
+        with pytest.raises(error):
+            _snippet_namespace(torch, text)["make_scheduler"](make_optimizer(torch, make_model(torch)))
+
+    @pytest.mark.parametrize("name", ["_x", "_lr_at"])
+    def test_private_names(self, name):
+        """A leading underscore marks a private (or, doubled, a mangled) name: refused."""
+        with pytest.raises(ScheduleError, match=r"to_torch: name must be a public identifier, not starting with _"):
+            to_torch(STEP_DESIGN, BASE, name=name)
+
+    @pytest.mark.parametrize("name", ["rate", "multiplier", "groups", "group", "factors", "start_tick", "lr", "i", "x"])
+    def test_accepted_names_run(self, torch, name):
+        """Names the snippet's make_scheduler uses as its own locals stay usable: the rates follow the design."""
+        ns = _snippet_namespace(torch, to_torch(STEP_DESIGN, BASE, groups=MULTIPLIERS, name=name))
+        opt = make_optimizer(torch, make_model(torch))
+        scheduler = ns["make_scheduler"](opt, start_tick=12)
+        assert [g["lr"] for g in opt.param_groups] == pytest.approx([STEP_DESIGN(12) * m for m in MULTIPLIERS],
+                                                                     rel=1e-12)
+        assert ns[name](12) == scheduler.lr_lambdas[0](12) * BASE
+
     def test_core_does_not_import_torch(self):
         """Writing torch code does not import torch."""
         code = ("import sys; from schedwidget.export import to_torch; from schedwidget import cosine; "
