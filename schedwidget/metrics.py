@@ -4,6 +4,12 @@ A metric history is one number per evaluation (usually one per epoch), read
 into a float64 array.  Reading checks the *shape* of the input (numbers, a
 named column, a non-empty file); whether every value is finite is checked by
 the replay, which can name the evaluation that is not.
+
+Limits: a CSV file is a regular file of at most ``MAX_METRIC_BYTES`` (64 MiB;
+a pipe or a device is refused before it is opened); a CSV field holds at most
+``csv.field_size_limit()`` characters (131,072 by default); every value must fit
+a float (``|x| <= 1.8e308``); a masked array may have no masked entry (a masked
+entry is a missing evaluation: it is refused with its index).
 """
 
 from __future__ import annotations
@@ -17,8 +23,12 @@ from typing import Any
 import numpy as np
 
 from .schedule import ScheduleError, complain
+from .spec import read_file
 
 __all__ = ["read_metric", "make_demo_histories", "demo_csv", "demo_path", "DEMO_NAMES", "DEMO_SEED"]
+
+#: Largest CSV file ``read_metric`` reads, in bytes (64 MiB: millions of rows).
+MAX_METRIC_BYTES = 64 * 2 ** 20
 
 #: Column names that number the evaluations rather than measure anything.
 INDEX_COLUMNS = ("epoch", "step", "evaluation", "")
@@ -87,17 +97,34 @@ def values_of(owner: str, name: str, value: Any) -> np.ndarray:
         if value.ndim != 1:
             raise complain(owner, name, f"an array of shape {value.shape}", "a 1-D array of numbers",
                            "one value per evaluation; pick one column or row")
+        if isinstance(value, np.ma.MaskedArray):
+            masked = np.flatnonzero(np.ma.getmaskarray(value))
+            if masked.size:
+                raise complain(owner, f"{name}[{int(masked[0])}]", "a masked entry", "a number",
+                               f"{masked.size:,} masked entr{'y' if masked.size == 1 else 'ies'}; a masked entry is a missing evaluation: fill it "
+                               "(np.ma.filled(x, np.nan) keeps it as nan for the replay to report) or drop it")
+            value = np.ma.getdata(value)
         if value.dtype.kind in "fiu":
-            out = value.astype(np.float64)
+            with np.errstate(over="ignore", invalid="ignore"):
+                out = np.asarray(value, dtype=np.float64)
             if out.size == 0:
                 raise _empty(owner, name)
-            return out
+            bad = np.flatnonzero(np.isinf(out) & ~np.isinf(value))
+            if bad.size:  # a wider float (longdouble) beyond float64's range
+                i = int(bad[0])
+                raise complain(owner, f"{name}[{i}]", value[i].item() if value.dtype.kind != "f" else str(value[i]),
+                               "a number within the float range (|x| <= 1.8e308)")
+            return out.copy() if out is value else out
         value = value.tolist()
     out = np.empty(len(value), dtype=np.float64)
     for i, v in enumerate(value):
         if isinstance(v, (bool, np.bool_)) or not isinstance(v, (Real, np.number)):
             raise complain(owner, f"{name}[{i}]", v, "a number", "one number per evaluation")
-        out[i] = float(v)
+        try:
+            out[i] = float(v)
+        except (OverflowError, ValueError, TypeError):  # an int beyond the float range, an odd Real
+            raise complain(owner, f"{name}[{i}]", v, "a number within the float range (|x| <= 1.8e308)",
+                           "one number per evaluation") from None
     if out.size == 0:
         raise _empty(owner, name)
     return out
@@ -114,14 +141,18 @@ def _short(v: Any) -> Any:
 
 
 def _read_file(path: str | os.PathLike) -> str:
-    p = Path(path)
-    if not p.is_file():
-        why = "it is a folder" if p.is_dir() else f"no such file; relative paths start at {os.getcwd()}"
-        raise complain("read_metric", "source", os.fspath(path), "an existing CSV file", why)
+    data = read_file(path, "read_metric", "source", cap=MAX_METRIC_BYTES, what="be an existing CSV file")
     try:
-        return p.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
         raise complain("read_metric", "source", os.fspath(path), "a readable UTF-8 CSV file", str(exc)) from None
+
+
+class _Label(str):
+    """Where a CSV came from, shown as written in messages (a path is already quoted)."""
+
+    def __repr__(self) -> str:
+        return str(self)
 
 
 def _is_number(cell: str) -> bool:
@@ -133,13 +164,23 @@ def _is_number(cell: str) -> bool:
 
 
 def _from_csv_text(text: str, column: str | int | None, where: str) -> np.ndarray:
+    where = _Label(where)
     kept = [(n, line) for n, line in enumerate(text.splitlines(), start=1)
             if line.strip() and not line.lstrip().startswith("#")]
     if not kept:
         raise complain("read_metric", "source", where, "a CSV file with a header and at least one row",
                        "the file is empty or holds only comments")
-    rows = list(csv.reader(line for _, line in kept))
+    rows = []
     lines = [n for n, _ in kept]
+    reader = csv.reader(line for _, line in kept)
+    try:
+        for row in reader:
+            rows.append(row)
+    except csv.Error as exc:
+        n = lines[min(len(rows), len(lines) - 1)]
+        raise complain("read_metric", "source", where, "a CSV file of numbers",
+                       f"line {n} cannot be read as CSV: {exc}; a field holds at most "
+                       f"{csv.field_size_limit():,} characters") from None
     first = [c.strip() for c in rows[0]]
     if all(_is_number(c) for c in first):
         header = [str(k) for k in range(len(first))]
@@ -192,7 +233,7 @@ def _from_pandas(obj: Any, column: str | int | None) -> np.ndarray:
         raise complain("read_metric", "column", column, "None for a Series", "a Series is one column already")
     try:
         arr = obj.to_numpy(dtype=np.float64, na_value=np.nan)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise complain("read_metric", "source", f"a Series of dtype {obj.dtype}", "a Series of numbers") from None
     return values_of("read_metric", "source", arr)
 

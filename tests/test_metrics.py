@@ -151,6 +151,107 @@ class TestReadMetricPandas:
             read_metric(pd.Series(["a", "b"]))
 
 
+class TestHostileInput:
+    """Issue 10: a long CSV field raised csv.Error, huge integers OverflowError, a masked array came back masked
+    (and then broke the replay); pipes and devices were opened.  Every one is now a ScheduleError."""
+
+    def test_field_over_the_csv_limit(self, tmp_path):
+        """A field over csv's 131,072 characters is refused with its line and the limit."""
+        p = write(tmp_path, "epoch,val_acc\n0,0.5\n1," + "9" * 200_000 + "\n")
+        with pytest.raises(ScheduleError, match=r"read_metric: source must be a CSV file of numbers, got '.*log.csv' "
+                                                r"\(line 3 cannot be read as CSV: field larger than field limit "
+                                                r"\(131072\); a field holds at most 131,072 characters\)"):
+            read_metric(p)
+        with pytest.raises(ScheduleError, match=r"got the uploaded file \(line 2 cannot be read as CSV"):
+            read_metric(b"val_acc\n" + b"1" * 140_000 + b"\n")
+
+    @pytest.mark.parametrize("source", [[0.5, 10 ** 400], (0.5, 10 ** 400), np.array([0.5, 10 ** 400], dtype=object)])
+    def test_huge_integers(self, source):
+        """An integer beyond the float range names its index and the range (OverflowError before)."""
+        with pytest.raises(ScheduleError, match=r"^read_metric: source\[1\] must be a number within the float range "
+                                                r"\(\|x\| <= 1.8e308\), got an integer of about 401 digits"):
+            read_metric(source)
+
+    def test_longdouble_beyond_float64(self):
+        """A longdouble array with a value float64 cannot hold is refused, not silently made inf."""
+        big = np.array([0.5, np.longdouble("1e4000")], dtype=np.longdouble)
+        if np.isinf(big[1]):
+            pytest.skip("longdouble is float64 on this platform")
+        with pytest.raises(ScheduleError, match=r"source\[1\] must be a number within the float range"):
+            read_metric(big)
+
+    def test_masked_entry_is_a_missing_evaluation(self):
+        """A masked entry is refused with its index (decision: it is a missing evaluation, not a value)."""
+        m = np.ma.masked_array([0.5, 0.6, 0.7, 0.8], mask=[0, 1, 0, 1])
+        with pytest.raises(ScheduleError, match=r"^read_metric: source\[1\] must be a number, got 'a masked entry' "
+                                                r"\(2 masked entries; a masked entry is a missing evaluation"):
+            read_metric(m)
+
+    def test_masked_array_without_masked_entries(self):
+        """Nothing masked: the values, as a plain float64 array (before: a MaskedArray came back)."""
+        m = np.ma.masked_array([1, 2, 3], mask=[0, 0, 0])
+        out = read_metric(m)
+        assert type(out) is np.ndarray and out.dtype == np.float64 and out.tolist() == [1.0, 2.0, 3.0]
+        assert type(read_metric(np.ma.masked_array([0.5, 0.6]))) is np.ndarray
+
+    def test_array_is_copied(self):
+        """The history is the reader's own copy: changing the caller's array later does not change it."""
+        a = np.array([0.5, 0.6])
+        out = read_metric(a)
+        a[0] = 9.0
+        assert out[0] == 0.5
+
+    def test_fifo_is_refused_without_blocking(self, tmp_path):
+        """A FIFO would block the open (no writer) or never end."""
+        import os
+        import threading
+
+        fifo = tmp_path / "metrics.csv"
+        os.mkfifo(fifo)
+        box = {}
+
+        def go():
+            try:
+                read_metric(fifo)
+            except ScheduleError as exc:
+                box["error"] = str(exc)
+        worker = threading.Thread(target=go, daemon=True)
+        worker.start()
+        worker.join(10)
+        assert not worker.is_alive(), "read_metric blocked on a FIFO"
+        assert "it is a pipe (FIFO); only regular files are read" in box["error"]
+
+    def test_device_is_refused(self):
+        import os
+
+        if not os.path.exists("/dev/zero"):
+            pytest.skip("no /dev/zero here")
+        with pytest.raises(ScheduleError, match=r"source must be an existing CSV file, got '/dev/zero' \(it is a "
+                                                r"character device"):
+            read_metric("/dev/zero")
+
+    def test_size_cap(self, tmp_path):
+        """A file over 64 MiB is refused before it is read (a sparse file: no disk used)."""
+        from schedwidget.metrics import MAX_METRIC_BYTES
+
+        p = tmp_path / "huge.csv"
+        with open(p, "wb") as fh:
+            fh.truncate(MAX_METRIC_BYTES + 1)
+        with pytest.raises(ScheduleError, match=r"\(it has 67,108,865 bytes; at most 67,108,864 bytes \(64 MiB\) "
+                                                r"are read\)"):
+            read_metric(p)
+
+    def test_path_types(self):
+        """An int is neither a path nor a history."""
+        with pytest.raises(ScheduleError, match=r"read_metric: source must be a list, tuple or 1-D array"):
+            read_metric(3)
+
+    def test_pandas_huge_integers(self):
+        pd = pytest.importorskip("pandas")
+        with pytest.raises(ScheduleError, match=r"source must be a Series of numbers"):
+            read_metric(pd.Series([1, 10 ** 400], dtype=object))
+
+
 class TestDemoHistories:
     """The shipped demo files are invented, labelled as such, and regenerate from their seed."""
 
