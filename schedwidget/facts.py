@@ -283,11 +283,19 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     unit : "step" or "epoch", the unit of the clock; stated in every line.
     batch : batch size per update, used only for cautions.
     exact_up_to : budgets up to this many ticks are read tick by tick; longer ones from an
-        even grid of half as many ticks plus every jump (``Facts.exact`` says which).
+        even grid of half as many ticks plus every jump (``Facts.exact`` says which); at most 2**26.
+
+    "Under 10 % (1 %) of the peak" (``under_10``, ``under_1``, the sentence) is the first tick from
+    the peak where ``rate <= share * peak * (1 + 1e-12)``: a rate equal to the share, or above it only
+    by float rounding (``LEVEL_TOLERANCE``, 1e-12 relative), counts, so drops of exactly x0.1 at
+    epochs 30 and 60 read 10 % from epoch 30 and 1 % from epoch 60.
 
     Examples
     --------
-    >>> from schedwidget import exp_decay
+    >>> from schedwidget import drops, exp_decay
+    >>> f = facts(drops(0.05, at=(30, 60), factor=0.1, steps=90), unit="epoch")
+    >>> f.under_10, f.under_1
+    (30, 60)
     >>> print(facts(exp_decay(0.1, 0.95), steps=200, unit="epoch").sentence)
     x0.95 per epoch: half-life 13.5 epochs; after 200 epochs the rate is 3.51e-05 of the peak (3.51e-06).
     """

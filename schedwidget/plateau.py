@@ -250,6 +250,13 @@ def replay_plateau(metric: Any, start_lr: float | None, goal: str = "max", facto
     >>> r = replay_plateau([0.5, 0.6, 0.6, 0.6, 0.6, 0.7], 0.1, patience=2)
     >>> r.rates.tolist(), r.drop_epochs, r.next_rate
     ([0.1, 0.1, 0.1, 0.1, 0.1, 0.010000000000000002], (5,), 0.010000000000000002)
+
+    torch's skip rule, below 1e-8 (a drop from 1e-8 to 1e-9 is 9e-9, not more than 1e-8):
+
+    >>> replay_plateau([0.5] * 4, 1e-7, patience=0).rates.tolist()
+    [1e-07, 1e-07, 1e-08, 1e-09]
+    >>> replay_plateau([0.5] * 4, 1e-7, patience=0, min_drop=1e-8).rates.tolist()
+    [1e-07, 1e-07, 1e-08, 1e-08]
     """
     owner = "replay_plateau"
     rule = PlateauRule(goal=goal, factor=factor, patience=patience, tolerance=tolerance, relative=relative,
