@@ -539,14 +539,25 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
             for group, lr in zip(optimizer.param_groups, starts):
                 group.setdefault("initial_lr", lr)
         return lambda_lr(optimizer, lr_lambda=factors, last_epoch=tick - 1)
+    tick, chosen = _choose(factors, state, resume_with, starts)   # every check before anything is touched
     scheduler = lambda_lr(optimizer, lr_lambda=factors)
-    _resume(scheduler, factors, state, resume_with, starts)
+    scheduler.load_state_dict({**state, "lr_lambdas": chosen})
+    for f in factors:  # what was loaded is now what each factor was built with
+        f._built(_valid_state("make_scheduler", f.__dict__))
+    # the rates of the saved tick, as an uninterrupted run's scheduler.step() set them
+    for group, b, f in zip(optimizer.param_groups, scheduler.base_lrs, factors):
+        rate = b * f(tick)
+        if hasattr(group["lr"], "fill_"):  # a tensor lr keeps its identity, as torch's own step does
+            group["lr"].fill_(rate)
+        else:
+            group["lr"] = rate
+    scheduler._last_lr = [group["lr"] for group in optimizer.param_groups]
     return scheduler
 
 
-def _resume(scheduler: Any, factors: list[RateFactor], state: Any, resume_with: str | None,
-            starts: list[float]) -> None:
-    """Load a saved scheduler state after checking it, as ``resume_with`` chooses; set the saved tick's rates."""
+def _choose(factors: list[RateFactor], state: Any, resume_with: str | None,
+            starts: list[float]) -> tuple[int, list[dict[str, Any]]]:
+    """The saved tick and the factor states to load: each saved one checked, a different design only by choice."""
     owner, n = "make_scheduler", len(factors)
     if not isinstance(state, dict):
         raise complain(owner, "state", _brief(state), "a dict saved by scheduler.state_dict()")
@@ -585,17 +596,7 @@ def _resume(scheduler: Any, factors: list[RateFactor], state: Any, resume_with: 
     if resume_with == "saved":
         kept = [_valid_state(owner, d) for d in chosen]
         _shares(owner, starts, [v.base_lr for v in kept], [v.multiplier for v in kept], False)
-    scheduler.load_state_dict({**state, "lr_lambdas": chosen})
-    for f in factors:  # what was loaded is now what each factor was built with
-        f._built(_valid_state(owner, f.__dict__))
-    # the rates of the saved tick, as an uninterrupted run's scheduler.step() set them
-    for group, b, f in zip(scheduler.optimizer.param_groups, scheduler.base_lrs, factors):
-        rate = b * f(tick)
-        if hasattr(group["lr"], "fill_"):
-            group["lr"].fill_(rate)
-        else:
-            group["lr"] = rate
-    scheduler._last_lr = [group["lr"] for group in scheduler.optimizer.param_groups]
+    return tick, chosen
 
 
 # ------------------------------------------------------------------ torch snippet

@@ -379,9 +379,13 @@ class TestCorruptedStates:
         _, optimizer = model_and_optimizer(torch)
         state = make_scheduler(optimizer, OLD).state_dict()
         state["lr_lambdas"] = [crafted(fields), crafted(fields)]
+        for group in optimizer.param_groups:
+            group["lr"] = 0.005                         # the saved tick's rate, as a loaded optimizer has it
+        before = [dict(g, params=None) for g in optimizer.param_groups]
         for resume_with in (None, "saved", "new"):
             with pytest.raises(ScheduleError, match=r"^make_scheduler: state\['lr_lambdas'\]\[0\]: " + match):
                 make_scheduler(optimizer, OLD, state=state, resume_with=resume_with)
+        assert [dict(g, params=None) for g in optimizer.param_groups] == before   # nothing was touched
 
     @pytest.mark.parametrize("missing", ["design", "base_lr", "multiplier"])
     def test_missing_key(self, missing):
