@@ -120,21 +120,21 @@ def _scan(s: Schedule, grid: np.ndarray | None, n: int):
 
 
 def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tuple[float, int]:
-    """On a grid, look inside the earliest gaps before the peak whose bounds reach it for a higher or earlier one.
+    """On a grid, look inside gaps whose bounds pass the peak (or reach it before it) for a higher or earlier one.
 
-    Bounded work: at most ``REFINE_TRIES`` gaps per round are split into ``REFINE_SPLIT`` pieces (or read
-    tick by tick once ``REFINE_DENSE`` ticks or shorter); each round shrinks them 64-fold, so 2**53 ticks
-    take at most 9 rounds.
+    Bounded work: at most ``REFINE_TRIES`` gaps per round, earliest first, are split into ``REFINE_SPLIT``
+    pieces (or read tick by tick once ``REFINE_DENSE`` ticks or shorter); each round shrinks them 64-fold,
+    so 2**53 ticks take at most 9 rounds.
     """
-    before = int(np.searchsorted(grid[:-1], peak_at))
-    a, b = grid[:before], grid[1:before + 1]
+    a, b = grid[:-1], grid[1:]
     while a.size:
         wide = b - a > 1
         a, b = a[wide], b[wide]
         picked: list[int] = []
         for i in range(0, a.size, CHUNK):  # earliest first: stop as soon as enough gaps qualify
             _, hi = s._span(a[i:i + CHUNK].astype(float), b[i:i + CHUNK].astype(float))
-            picked += (np.flatnonzero(hi >= peak)[:REFINE_TRIES - len(picked)] + i).tolist()
+            ok = (hi > peak) | ((hi >= peak) & (a[i:i + CHUNK] < peak_at))
+            picked += (np.flatnonzero(ok)[:REFINE_TRIES - len(picked)] + i).tolist()
             if len(picked) >= REFINE_TRIES:
                 break
         a, b = a[picked], b[picked]
@@ -150,42 +150,61 @@ def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tu
             break
         a = np.concatenate([c[:-1] for c in pieces])
         b = np.concatenate([c[1:] for c in pieces])
-        keep = a < peak_at
-        a, b = a[keep], b[keep]
     return peak, peak_at
 
 
-def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int, level: float) -> int | None:
-    """The first tick from ``start`` where the rate is at or under ``level`` (within LEVEL_TOLERANCE relative).
+def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int,
+                 levels: tuple[float, ...]) -> list[int | None]:
+    """For each level, the first tick from ``start`` where the rate is at or under it (None if never).
 
-    Every tick when ``grid`` is None.  On a grid, the gaps before the first grid tick that is under and
-    whose interval lower bound reaches the level are searched first (at most ``REFINE_TRIES`` of them,
-    earliest first), then the gap that ends at that grid tick (``_refine_under``).
+    "At or under" is within LEVEL_TOLERANCE relative.  One pass serves every level; a level below the
+    design's lower bound over ``[start, n)`` is never reached and costs nothing.  Every tick is read when
+    ``grid`` is None.  On a grid, the gaps before the first grid tick that is under and whose interval
+    lower bound reaches the level are searched first (at most ``REFINE_TRIES`` of them, earliest first),
+    then the gap that ends at that grid tick (``_refine_under``).
     """
-    bound = level * (1.0 + LEVEL_TOLERANCE)
+    bounds = [level * (1.0 + LEVEL_TOLERANCE) for level in levels]
+    out: list[int | None] = [None] * len(levels)
+    floor_, _ = s._span(np.array([float(start)]), np.array([float(n - 1)]))
+    todo = [i for i, b in enumerate(bounds) if floor_[0] <= b]
+    if not todo:
+        return out
     if grid is None:
         for t in _chunks(None, n, start):
-            hit = np.flatnonzero(s(t) <= bound)
-            if hit.size:
-                return int(t[hit[0]])
-        return None
+            y = s(t)
+            for i in list(todo):
+                hit = np.flatnonzero(y <= bounds[i])
+                if hit.size:
+                    out[i] = int(t[hit[0]])
+                    todo.remove(i)
+            if not todo:
+                break
+        return out
     g = grid[int(np.searchsorted(grid, start)):]
     if not g.size or g[0] != start:
         g = np.concatenate([[start], g]).astype(np.int64)
-    for i in range(0, g.size - 1, CHUNK):
-        a, b = g[i:i + CHUNK], g[i + 1:i + CHUNK + 1]
+    for c in range(0, g.size - 1, CHUNK):
+        a, b = g[c:c + CHUNK], g[c + 1:c + CHUNK + 1]
         a = a[:b.size]
-        under = np.flatnonzero(s(b) <= bound)
-        k = int(under[0]) if under.size else b.size
-        low, _ = s._span(a[:k].astype(float), b[:k].astype(float))
-        for j in np.flatnonzero((low <= bound) & (b[:k] - a[:k] > 1))[:REFINE_TRIES].tolist():
-            got = _refine_under(s, int(a[j]), int(b[j]), bound)
+        yb = s(b)
+        low, _ = s._span(a.astype(float), b.astype(float))
+        for i in list(todo):
+            under = np.flatnonzero(yb <= bounds[i])
+            k = int(under[0]) if under.size else b.size
+            got = None
+            for j in np.flatnonzero((low[:k] <= bounds[i]) & (b[:k] - a[:k] > 1))[:REFINE_TRIES].tolist():
+                got = _refine_under(s, int(a[j]), int(b[j]), bounds[i])
+                if got is not None:
+                    break
+            if got is None and under.size:
+                got = _refine_under(s, int(a[k]), int(b[k]), bounds[i])
+                got = int(b[k]) if got is None else got
             if got is not None:
-                return got
-        if under.size:
-            got = _refine_under(s, int(a[k]), int(b[k]), bound)
-            return int(b[k]) if got is None else got
-    return None
+                out[i] = got
+                todo.remove(i)
+        if not todo:
+            break
+    return out
 
 
 def _refine_under(s: Schedule, lo: int, hi: int, bound: float, budget: int = 48) -> int | None:
@@ -335,8 +354,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
         rows.append((f"join {i + 1}: first tick after", j, float(after_join[i])))
     rows.append(("last tick", n - 1, final))
     rows.append(("held after the budget", n, after))
-    under_10 = _first_under(s, grid, n, peak_at, 0.1 * peak) if peak > 0 else None
-    under_1 = _first_under(s, grid, n, peak_at, 0.01 * peak) if peak > 0 else None
+    under_10, under_1 = _first_under(s, grid, n, peak_at, (0.1 * peak, 0.01 * peak)) if peak > 0 else (None, None)
     hl = _half_life(s)
     sentence = _sentence(s, n, unit, steps_per_epoch, first, peak, peak_at, final, after,
                          hl, under_10, len(brk), exact)

@@ -9,7 +9,7 @@ import tracemalloc
 import numpy as np
 import pytest
 
-from schedwidget import ScheduleError, cosine, drops, flat, inv_sqrt, knots, restarts, stages, warmup
+from schedwidget import ScheduleError, cosine, drops, flat, inv_sqrt, knots, restarts, stages, triangle, warmup
 from schedwidget.facts import LEVEL_TOLERANCE, facts
 from schedwidget.sample import at_ticks, breaks, budget_of, trace
 
@@ -86,6 +86,15 @@ class TestBoundedFacts:
         hand = math.ceil(n * math.acos(-0.8) / math.pi)
         assert not f.exact and abs(f.under_10 - hand) <= 1
         assert s(f.under_10) <= 0.01 * (1 + LEVEL_TOLERANCE) < s(f.under_10 - 1)
+
+    def test_grid_reading_finds_a_peak_after_the_grid_peak(self):
+        """A triangle over 10**8 ticks peaks between two grid ticks, after the highest grid tick."""
+        # Smith 2017 (triangular policy): high at half_period, back to low at 2 * half_period
+        s = triangle(0.0, 1.0, half_period=298, shrink=0.999, steps=100_000_006)
+        f = facts(s)
+        assert not f.exact and (f.peak, f.peak_at) == (1.0, 298)
+        # 1 - (t - 298) / 298 <= 0.1 from t >= 566.2, <= 0.01 from t >= 593.02
+        assert (f.under_10, f.under_1) == (567, 594)
 
     def test_grid_reading_finds_a_dip_between_grid_ticks(self):
         """Restarts over 2**53 ticks: the first cycle dips under 10 % long before any grid tick does."""
