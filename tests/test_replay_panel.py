@@ -8,7 +8,7 @@ import math
 
 import numpy as np
 import pytest
-from traitlets import HasTraits, Instance, Int, Unicode
+from traitlets import HasTraits, Instance, Int, Unicode, observe
 
 from schedwidget import Schedule, cosine, flat, warmup
 from schedwidget.budget import Budget, scale_for_batch
@@ -20,7 +20,7 @@ from schedwidget.widget.rescale import RescalePanel
 
 
 class Stand(HasTraits):
-    """The designer's traits that the panels read and write."""
+    """The designer's traits that the panels read and write, and its ``revision`` they observe."""
 
     schedule = Instance(Schedule)
     unit = Unicode("epoch")
@@ -28,6 +28,14 @@ class Stand(HasTraits):
     steps_per_epoch = Int(None, allow_none=True)
     batch = Int(None, allow_none=True)
     error = Unicode("")
+    revision = Int(0)
+
+    @observe("schedule", "unit", "steps", "steps_per_epoch", "batch")
+    def _bump(self, _change):
+        self.revision += 1
+
+    def guarded(self, fn):
+        return fn
 
 
 def epoch_design(s: Schedule | None = None) -> Stand:

@@ -244,12 +244,13 @@ class TestRedraws:
         assert d.redraws == 2
         d.stages.total.value = 50_000  # steps and schedule change together: one redraw
         assert d.redraws == 3
-        d.pin("a")
+        d.pin("a")  # a pin is a change of what is drawn (its ghost) and read (the compare table): one redraw
+        assert d.redraws == 4
         d.control(0, "peak").text.value = 0.3
         d.compare.restore("a")
-        assert d.redraws == 5
+        assert d.redraws == 6
         d.control(0, "floor").text.value = 0.9  # invalid: no redraw
-        assert d.redraws == 5
+        assert d.redraws == 6
 
 
 class TestDisplayBundle:

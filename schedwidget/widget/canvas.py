@@ -9,9 +9,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any, Sequence
-
 import warnings
+from typing import TYPE_CHECKING, Any, Sequence
 
 import ipywidgets as W
 import numpy as np
@@ -24,7 +23,12 @@ with warnings.catch_warnings():
 
 from ..sample import Trace, trace
 from ..schedule import Schedule
-from ..svg import CURVE, GHOSTS, JOIN, nice_ticks  # one palette and one tick rule for the live and static curves
+from ..svg import nice_ticks  # one tick rule for the live and static curves
+from .guard import Panel
+from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, LABEL_SIZE, figure_layout
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .designer import ScheduleDesigner
 
 __all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR"]
 
@@ -56,15 +60,18 @@ class Clock:
         return "epoch" if self.axis == "epochs" else "step"
 
 
-class CurvePanel(W.VBox):
+class CurvePanel(Panel, W.VBox):
     """The figure, its two toggles (rate axis, x axis) and the hover readout.
 
-    ``draw(s, steps, clock)`` puts a design on the figure; ``ghost(i, label, s, steps, clock)``
-    pins one.  Marks: ``curve`` (teal), ``ghosts`` (five greys), ``joins`` (dotted slate,
-    on a 0..1 scale so they always span the plot).
+    It shows the designer's design over its budget and its pins: the curve is drawn again when
+    the design, the budget, the clock or an axis changes; a pin's ghost is traced once when it is
+    pinned and drawn again only when the axes change (``ghost_traces`` counts the traces).
+    ``draw(s, steps, clock)`` puts a design on the figure; ``ghost(i, pin)`` draws pin ``i``.
+    Marks: ``curve`` (teal), ``ghosts`` (five greys), ``joins`` (dotted slate, on a 0..1 scale
+    so they always span the plot).
     """
 
-    def __init__(self) -> None:
+    def __init__(self, designer: ScheduleDesigner, axis: str = "steps") -> None:
         self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
         self.ys_linear = LinearScale(min=0.0)
         self.ys_log = LogScale()
@@ -83,21 +90,20 @@ class CurvePanel(W.VBox):
                            stroke_width=1, visible=False, labels=["stage joins"])
         # names at the right end of each line, in the figure's right margin (a legend would sit on the curves)
         self.names = [Label(x=[0.0], y=[0.0], text=[""], scales={"x": self.xs, "y": self.parking}, colors=[c],
-                            apply_clip=False, x_offset=6, y_offset=0, align="start", default_size=11,
+                            apply_clip=False, x_offset=6, y_offset=0, align="start", default_size=LABEL_SIZE,
                             visible=False) for c in (CURVE, *GHOSTS)]
         self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s", num_ticks=6)
         self.y_axis = Axis(scale=self.ys_linear, side="left", label="rate", tick_format=".2~g")
-        self.hover = IndexSelector(scale=self.xs, marks=[self.curve], color="#94a3b8", line_width=1)
+        self.hover = IndexSelector(scale=self.xs, marks=[self.curve], color=HOVER, line_width=1)
         self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve, *self.names],
                              axes=[self.x_axis, self.y_axis],
                              interaction=self.hover, animation_duration=0, padding_y=0.05,
-                             fig_margin={"top": 16, "bottom": 48, "left": 72, "right": 112},
-                             layout=W.Layout(width="100%", height="320px"))
+                             fig_margin=CURVE_FIGURE[1], layout=W.Layout(**figure_layout(CURVE_FIGURE)))
         self.figure.add_class("sw-curve")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
                                          style={"button_width": "5em", "description_width": "5em"})
-        self.x_choice = W.ToggleButtons(options=["steps", "epochs"], value="steps", description="x axis",
+        self.x_choice = W.ToggleButtons(options=["steps", "epochs"], value=axis, description="x axis",
                                         tooltip="ticks of the x axis: optimizer steps or epochs",
                                         style={"button_width": "6em", "description_width": "4em"})
         self.hover_label = W.Label("move the mouse over the curve to read a step", layout={"min_height": "1.6em"})
@@ -107,7 +113,35 @@ class CurvePanel(W.VBox):
         self.clock = Clock("step", None, "steps")
         self.peak = 1.0
         self.log_bottom = 1e-6
+        self._ghosts: dict[int, tuple] = {}         # slot -> (pin, its trace): traced once per pin
+        self._ghost_keys: dict[int, tuple] = {}     # slot -> what its mark shows now
+        self.ghost_traces = 0
         super().__init__([self.figure, W.HBox([self.rate_axis, self.x_choice]), self.hover_label])
+        g = designer.guarded
+        self.rate_axis.observe(g(self._axes_changed), names="value")
+        self.x_choice.observe(g(lambda _c: self.redraw()), names="value")
+        self.hover.observe(g(self._hovered), names="selected")
+        self.listen(designer)
+
+    # ----------------------------------------------------------------- panel
+    def shows(self) -> tuple:
+        d = self.d
+        return d.schedule, d.steps, d.clock, self.rate_axis.value, d.pinned
+
+    def paint(self) -> None:
+        d = self.d
+        for i in range(len(self.ghosts)):
+            self.ghost(i, d.pinned[i] if i < len(d.pinned) else None)
+        self.draw(d.schedule, d.steps, d.clock)
+
+    def _axes_changed(self, change: dict) -> None:
+        self.use_log(change["new"] == "log")
+        self.redraw()
+
+    def _hovered(self, change: dict) -> None:
+        words = self.read(self.d.schedule, change["new"])
+        if words and self.hover_label.value != words:
+            self.hover_label.value = words
 
     # ----------------------------------------------------------------- marks
     def _y(self, y: np.ndarray) -> np.ndarray:
@@ -169,68 +203,81 @@ class CurvePanel(W.VBox):
         self._legend()
         return tr
 
-    def ghost(self, i: int, label: str | None, s: Schedule | None = None, steps: int | None = None,
-              clock: Clock | None = None) -> None:
-        """Draw pin ``i`` (``label`` None hides it); its ticks are mapped with its own clock."""
+    def ghost(self, i: int, pin: Any | None) -> None:
+        """Draw pin ``i`` (None hides it): traced once per pin, its ticks mapped with its own clock."""
         m = self.ghosts[i]
-        if label is None or s is None:
+        if pin is None:
+            self._ghosts.pop(i, None)
+            self._ghost_keys.pop(i, None)
             self._tops.pop(i, None)
             if m.visible:
                 with m.hold_sync():
                     m.visible = m.display_legend = False
                     m.scales = {"x": self.xs, "y": self.parking}
-            self._legend()
-            self._fit_x()
             return
-        tr = trace(s, steps)
-        f = clock.factor if clock else 1.0
+        clock = self.d.clock_for(pin.unit, pin.steps_per_epoch)
+        key = (pin, clock, self.rate_axis.value)
+        if self._ghost_keys.get(i) == key:
+            return
+        if i not in self._ghosts or self._ghosts[i][0] != pin:
+            self._ghosts[i] = (pin, trace(pin.schedule, pin.steps))
+            self.ghost_traces += 1
+        tr = self._ghosts[i][1]
+        f = clock.factor
         with m.hold_sync():
             m.x = tr.x * f
-            m.y = self._y(tr.y)
-            m.labels = [label]
+            m.y = self._own_y(tr.y)
+            m.labels = [pin.name]
             m.visible = True
             if m.scales.get("y") is not self.rate_scale:
                 m.scales = {"x": self.xs, "y": self.rate_scale}
-        self._legend()
+        self._ghost_keys[i] = key
         self._tops[i] = max(tr.steps - 1, 1) * f
-        self._fit_x()
-        self._log_ticks()
+
+    def _own_y(self, y: np.ndarray) -> np.ndarray:
+        """A ghost's rates as drawn: on the log axis its zeros sit a decade below its own smallest positive rate
+        (so a ghost does not move when the current design changes)."""
+        if self.rate_axis.value != "log":
+            return y
+        positive = y[y > 0]
+        peak = float(np.max(y)) if y.size else 1.0
+        bottom = max(float(positive.min()) / 10.0 if positive.size else 1e-6, peak * LOG_FLOOR if peak > 0 else 0.0)
+        return np.maximum(np.where(y > 0, y, bottom), peak * LOG_FLOOR)
 
     def _legend(self) -> None:
         """Name each line at its right end, in the margin (only when there are pins); names that would
-        overlap are pushed apart vertically."""
+        overlap are pushed apart vertically.  Only what moved is sent."""
         lines = [self.curve, *self.ghosts]
         pinned = any(g.visible for g in self.ghosts)
-        ends = []
-        for i, (m, name) in enumerate(zip(lines, self.names)):
-            shown = pinned and (m is self.curve or m.visible) and np.asarray(m.y).size > 0
-            if not shown:
-                if name.visible:
-                    name.visible = False
-                continue
-            ends.append((self._height(float(np.asarray(m.y)[-1])), i))
+        shown = [(i, m) for i, m in enumerate(lines) if pinned and (m is self.curve or m.visible) and m.y.size]
+        for i, name in enumerate(self.names):
+            if name.visible and i not in {k for k, _ in shown}:
+                name.visible = False
+        if not shown:
+            return
+        lo = min(float(np.min(m.y)) for _, m in shown)
+        hi = max(float(np.max(m.y)) for _, m in shown)
+        ends = sorted((self._height(float(m.y[-1]), lo, hi), i) for i, m in shown)
         placed: list[float] = []
-        for h, i in sorted(ends):
+        for h, i in ends:
             px = h * 250.0  # about the plot's height in pixels
             while any(abs(px - q) < 13 for q in placed):
                 px += 13
             placed.append(px)
             m, name = lines[i], self.names[i]
-            x, y = np.asarray(m.x), np.asarray(m.y)
+            want = {"x": np.array([float(m.x[-1])]), "y": np.array([float(m.y[-1])]),
+                    "text": [m.labels[0] if m.labels else ""], "y_offset": -int(round(px - h * 250.0)),
+                    "scales": {"x": self.xs, "y": self.rate_scale}, "visible": True}
             with name.hold_sync():
-                name.x, name.y = np.array([float(x[-1])]), np.array([float(y[-1])])
-                name.text = [m.labels[0] if m.labels else ""]
-                name.y_offset = -int(round(px - h * 250.0))
-                if name.scales.get("y") is not self.rate_scale:
-                    name.scales = {"x": self.xs, "y": self.rate_scale}
-                name.visible = True
+                for trait, value in want.items():
+                    now = getattr(name, trait)
+                    same = np.array_equal(now, value) if trait in ("x", "y") else (
+                        now.get("y") is value["y"] if trait == "scales" else now == value)
+                    if not same:
+                        setattr(name, trait, value)
 
-    def _height(self, y: float) -> float:
-        """Where ``y`` sits on the rate axis, 0 (bottom) .. 1 (top), from the lines shown."""
-        shown = [np.asarray(m.y) for m in (self.curve, *self.ghosts) if (m is self.curve or m.visible)
-                 and np.asarray(m.y).size]
-        lo = min(float(v.min()) for v in shown)
-        hi = max(float(v.max()) for v in shown)
+    def _height(self, y: float, lo: float, hi: float) -> float:
+        """Where ``y`` sits on the rate axis, 0 (bottom) .. 1 (top), for lines spanning ``lo`` .. ``hi``."""
         if self.rate_axis.value == "log":
             lo, hi, y = (math.log10(max(v, 1e-300)) for v in (lo, hi, y))
         else:

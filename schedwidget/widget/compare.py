@@ -2,14 +2,21 @@
 
 Up to five pins.  For each: its facts next to the current design's, the
 largest rate difference against the current design (and where), and the
-ratio of the areas.  A pin can be restored into the editor.
+ratio of the areas.  A pin can be restored into the editor.  The pins are the
+designer's ``pinned`` trait; the curve panel draws their ghosts.
+
+The largest difference is read on one grid per budget (every tick up to
+``DIFF_GRID`` ticks, else an even grid of ``DIFF_GRID`` ticks) plus every jump of
+either design and the tick before it.  A pin's values there are computed once
+per pin; on a change of the design only the design is evaluated, once for all
+pins (the jumps come from the facts, so nothing is sorted or deduplicated).
 """
 
 from __future__ import annotations
 
 import html
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Sequence
 
 import ipywidgets as W
 import numpy as np
@@ -17,14 +24,16 @@ import numpy as np
 from ..facts import Facts, facts
 from ..sample import breaks
 from ..schedule import Schedule, complain
+from .guard import Panel
+from .theme import cell
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["Pin", "ComparePanel", "largest_difference", "MAX_PINS", "DIFF_EXACT"]
+__all__ = ["Pin", "ComparePanel", "largest_difference", "MAX_PINS", "DIFF_GRID"]
 
 MAX_PINS = 5
-DIFF_EXACT = 2 ** 16  # budgets up to this are compared tick by tick; longer ones on a grid plus every jump
+DIFF_GRID = 4096  # budgets up to this are compared tick by tick; longer ones on this many ticks plus every jump
 
 
 @dataclass(frozen=True)
@@ -38,25 +47,41 @@ class Pin:
     steps_per_epoch: int | None
 
 
+def grid(n: int) -> np.ndarray:
+    """The ticks every comparison over ``n`` ticks reads: all of them up to ``DIFF_GRID``, else an even grid."""
+    if n <= DIFF_GRID:
+        return np.arange(n, dtype=np.int64)
+    return np.linspace(0, n - 1, DIFF_GRID).astype(np.int64)
+
+
+def near(jumps: Sequence[int] | np.ndarray) -> np.ndarray:
+    """Each jump's tick and the tick before it (where a difference across a jump is largest)."""
+    j = np.asarray(jumps, dtype=np.int64)
+    return np.concatenate([j, np.maximum(j - 1, 0)])
+
+
+def biggest(t: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[float, int]:
+    """``max |a - b|`` over the ticks ``t`` (any order, repeats allowed) and the first tick where it is reached."""
+    d = np.abs(a - b)
+    top = float(d.max())
+    return top, int(t[d == top].min())
+
+
 def largest_difference(a: Schedule, b: Schedule, steps: int) -> tuple[float, int]:
     """``max |a(t) - b(t)|`` over ``t < steps`` and the first tick where it is reached.
 
-    Every tick up to ``DIFF_EXACT`` ticks; above that an even grid of
-    ``DIFF_EXACT // 2`` ticks plus every jump of either design and its neighbour.
+    Every tick up to ``DIFF_GRID`` ticks; above that an even grid of ``DIFF_GRID``
+    ticks plus every jump of either design and the tick before it.
 
     >>> from schedwidget import flat
     >>> largest_difference(flat(0.1), flat(0.05), 10)
     (0.05, 0)
     """
-    if steps <= DIFF_EXACT:
-        t = np.arange(steps, dtype=np.int64)
-    else:
-        grid = np.linspace(0, steps - 1, DIFF_EXACT // 2).astype(np.int64)
-        jumps = np.concatenate([breaks(a, steps), breaks(b, steps)]).astype(np.int64)
-        t = np.unique(np.concatenate([grid, jumps, np.maximum(jumps - 1, 0)]))
-    d = np.abs(a(t) - b(t))
-    i = int(np.argmax(d))
-    return float(d[i]), int(t[i])
+    t = np.concatenate([grid(steps), near(breaks(a, steps)), near(breaks(b, steps))])
+    return biggest(t, a(t), b(t))
+
+
+NO_PINS = "<i>No pins yet: name the current design under the curve and press Pin.</i>"
 
 
 def number(x: float) -> str:
@@ -75,15 +100,15 @@ def at(tick: int | None, unit: str) -> str:
     return f"epoch {tick:,}" if unit == "epoch" else f"step {tick:,}"
 
 
-class ComparePanel(W.VBox):
+class ComparePanel(Panel, W.VBox):
     """Pin row (``pin_row``: name box ``sw-pin-name`` and button ``sw-pin``, laid out under the curve),
     and this panel: the side-by-side table, restore and remove."""
 
-    def __init__(self, designer: ScheduleDesigner) -> None:
-        self.d = designer
+    def __init__(self, designer: ScheduleDesigner, tab: int | None = None) -> None:
         g = designer.guarded
-        self.pins: list[Pin] = []
-        self._facts: dict[tuple, Facts] = {}
+        self._facts: dict[Pin, Facts] = {}
+        self._values: dict[tuple, np.ndarray] = {}  # (pin, n) -> its values at _ticks(n); ("ticks", n) -> those
+        self._current: dict = {}                   # per change: n -> the design at _ticks(n); "jumps" -> its own
         self.name = W.Text(placeholder="name of this design", description="pin as",
                            tooltip="pin the current design under this name (up to five)",
                            style={"description_width": "4em"}, layout={"width": "18em"})
@@ -98,33 +123,41 @@ class ComparePanel(W.VBox):
         self.remove_button = W.Button(description="Remove pin", tooltip="forget this pin")
         self.restore_button.on_click(g(lambda _b: self.restore(self.choice.value)))
         self.remove_button.on_click(g(lambda _b: self.unpin(self.choice.value)))
-        self.table = W.HTML("<i>No pins yet: name the current design under the curve and press Pin.</i>")
+        self.table = W.HTML(NO_PINS)
         self.table.add_class("sw-compare")
         super().__init__([self.table, W.HBox([self.choice, self.restore_button, self.remove_button])])
+        designer.observe(g(self._pins_changed), names="pinned")
+        self.listen(designer, tab)
+
+    @property
+    def pins(self) -> list[Pin]:
+        """The designer's pins, oldest first."""
+        return list(self.d.pinned)
 
     # ---------------------------------------------------------------- pins
     def pin(self, name: str | None = None) -> Pin:
         """Pin the current design under ``name`` (a pin of the same name is replaced)."""
         d = self.d
-        label = (name or "").strip() or f"pin {len(self.pins) + 1}"
+        label = (name or "").strip() or f"pin {len(d.pinned) + 1}"
         pin = Pin(label, d.schedule, d.steps, d.unit, d.steps_per_epoch)
-        names = [p.name for p in self.pins]
+        pins = list(d.pinned)
+        names = [p.name for p in pins]
         if label in names:
-            self.pins[names.index(label)] = pin
-        elif len(self.pins) >= MAX_PINS:
-            raise complain("compare", "pins", len(self.pins) + 1, f"at most {MAX_PINS}",
+            pins[names.index(label)] = pin
+        elif len(pins) >= MAX_PINS:
+            raise complain("compare", "pins", len(pins) + 1, f"at most {MAX_PINS}",
                            "remove a pin in the Compare panel first")
         else:
-            self.pins.append(pin)
+            pins.append(pin)
         if self.name.value:
             self.name.value = ""
-        self.refresh(ghosts=True)
+        d.pinned = tuple(pins)
         return pin
 
     def unpin(self, name: str | None) -> None:
         """Forget the pin called ``name``."""
-        self.pins = [p for p in self.pins if p.name != self._find(name).name]
-        self.refresh(ghosts=True)
+        gone = self._find(name)
+        self.d.pinned = tuple(p for p in self.d.pinned if p is not gone)
 
     def restore(self, name: str | None) -> None:
         """Put the pin called ``name`` back into the editor (design, budget and clock)."""
@@ -132,51 +165,77 @@ class ComparePanel(W.VBox):
         self.d.restore(p.schedule, p.steps, p.unit, p.steps_per_epoch)
 
     def _find(self, name: str | None) -> Pin:
-        for p in self.pins:
+        for p in self.d.pinned:
             if p.name == name:
                 return p
-        raise complain("compare", "pin", name, "the name of a pin: " + (", ".join(repr(p.name) for p in self.pins)
+        raise complain("compare", "pin", name, "the name of a pin: " + (", ".join(repr(p.name) for p in self.d.pinned)
                                                                         or "(there are none yet)"))
+
+    def _pins_changed(self, change: dict) -> None:
+        """The pin menu follows the pins at once (it is a control, not a readout); cached values of gone pins go."""
+        names = [p.name for p in change["new"]]
+        if list(self.choice.options) != names:
+            keep = self.choice.value if self.choice.value in names else (names[-1] if names else None)
+            self.choice.options = names
+            self.choice.value = keep
+        kept = set(change["new"])
+        self._facts = {p: f for p, f in self._facts.items() if p in kept}
+        self._values = {}  # the ticks read hold every pin's jumps: read the pins again
 
     # ------------------------------------------------------------- drawing
     def _facts_of(self, p: Pin) -> Facts:
-        key = (p.schedule, p.steps, p.unit, p.steps_per_epoch)
-        if key not in self._facts:
-            self._facts[key] = facts(p.schedule, p.steps, p.steps_per_epoch, p.unit, exact_up_to=2 ** 16)
-        return self._facts[key]
+        if p not in self._facts:
+            self._facts[p] = facts(p.schedule, p.steps, p.steps_per_epoch, p.unit, exact_up_to=2 ** 16)
+        return self._facts[p]
 
-    def refresh(self, ghosts: bool = False) -> None:
-        """Redraw the table (and the ghost marks when ``ghosts``) against the current design."""
+    def _ticks(self, n: int) -> np.ndarray:
+        """The grid over ``n`` ticks and every pin's jumps (and the tick before each): fixed while the pins are."""
+        if ("ticks", n) not in self._values:
+            jumps = [np.asarray(self._facts_of(p).breaks, dtype=np.int64) for p in self.d.pinned]
+            self._values[("ticks", n)] = np.concatenate([grid(n), near(np.concatenate(jumps))])
+        return self._values[("ticks", n)]
+
+    def difference(self, p: Pin) -> tuple[float, int]:
+        """The largest |rate difference| between pin ``p`` and the design, and its first tick (same clock).
+
+        Read at the grid, at every pin's jumps and at the design's jumps: the pin's values at the first two are
+        computed once per pin; per change the design is evaluated once for all pins, and each pin only at the
+        design's jumps.
+        """
+        d, s = self.d, self.d.schedule
+        n = max(p.steps, d.steps)
+        t = self._ticks(n)
+        if (p, n) not in self._values:
+            self._values[(p, n)] = p.schedule(t)
+        if n not in self._current:
+            self._current[n] = s(t)
+        if "jumps" not in self._current:
+            jc = near(d.facts.breaks)
+            self._current["jumps"] = (jc, s(jc))
+        jc, at_jc = self._current["jumps"]
+        seen = self._values.get((p, "jumps"))
+        if seen is None or seen[0] != d.facts.breaks:  # the design's jumps stay put while a rate is moved
+            seen = self._values[(p, "jumps")] = (d.facts.breaks, p.schedule(jc) if jc.size else jc.astype(float))
+        pin_jc = seen[1]
+        return biggest(np.concatenate([t, jc]), np.concatenate([self._current[n], at_jc]),
+                       np.concatenate([self._values[(p, n)], pin_jc]))
+
+    def shows(self) -> tuple:
         d = self.d
-        if ghosts:
-            for i in range(MAX_PINS):
-                if i < len(self.pins):
-                    p = self.pins[i]
-                    d.canvas.ghost(i, p.name, p.schedule, p.steps, d.clock_for(p.unit, p.steps_per_epoch))
-                else:
-                    d.canvas.ghost(i, None)
-            keep = {(p.schedule, p.steps, p.unit, p.steps_per_epoch) for p in self.pins}
-            self._facts = {k: v for k, v in self._facts.items() if k in keep}
-            names = [p.name for p in self.pins]
-            if list(self.choice.options) != names:
-                keep = self.choice.value if self.choice.value in names else (names[-1] if names else None)
-                self.choice.options = names
-                self.choice.value = keep
-        if not self.pins:
-            self._put("<i>No pins yet: name the current design under the curve and press Pin.</i>")
-            return
-        self._put(self._html())
+        return d.schedule, d.facts, d.pinned
 
-    def _put(self, text: str) -> None:
+    def paint(self) -> None:
+        """Redraw the table against the current design."""
+        self._current = {}
+        text = self._html() if self.d.pinned else NO_PINS
         if self.table.value != text:
             self.table.value = text
 
     def _html(self) -> str:
         d = self.d
-        cur = d.readout.facts
+        cur = d.facts
         e = html.escape
-        cell = 'style="text-align:right;padding:1px 8px"'
-        left = 'style="text-align:left;padding:1px 8px"'
+        right, left = cell("right"), cell("left")
         cols: list[tuple[str, list[str]]] = []
 
         def column(name: str, f: Facts, diff: str, ratio: str) -> tuple[str, list[str]]:
@@ -185,20 +244,18 @@ class ComparePanel(W.VBox):
 
         if cur is not None:
             cols.append(column("current", cur, "—", number(1.0)))
-        for p in self.pins:
+        for p in d.pinned:
             f = self._facts_of(p)
             if p.unit != d.unit:
                 diff, ratio = f"n/a (pinned in {p.unit}s)", "n/a"
             else:
-                v, t = largest_difference(p.schedule, d.schedule, max(p.steps, d.steps))
+                v, t = self.difference(p)
                 diff = f"{number(v)} at {at(t, d.unit)}"
                 ratio = number(f.area / cur.area) if cur is not None and cur.area > 0 else "—"
             cols.append(column(p.name, f, diff, ratio))
         rows = ["peak rate", "peak at", "final rate", "area (sum of per-tick rates)", "under 10 % of the peak from",
-                "budget",
-                "largest |rate difference| vs current", "area / current area"]
-        head = f"<tr><th {left}></th>" + "".join(f"<th {cell}>{e(n)}</th>" for n, _ in cols) + "</tr>"
-        body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {cell}>{e(v[i])}</td>" for _, v in cols)
+                "budget", "largest |rate difference| vs current", "area / current area"]
+        head = f"<tr><th {left}></th>" + "".join(f"<th {right}>{e(n)}</th>" for n, _ in cols) + "</tr>"
+        body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{e(v[i])}</td>" for _, v in cols)
                        + "</tr>" for i, r in enumerate(rows))
         return f"<table>{head}{body}</table>"
-

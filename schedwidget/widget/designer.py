@@ -1,16 +1,16 @@
 """``ScheduleDesigner``: shape a schedule with sliders and watch the exact curve redraw live.
 
-The designer holds one value, ``schedule`` (the last valid design), with its
-clock (``unit``, ``steps_per_epoch``), its budget (``steps``) and a batch size
-(``batch``, for cautions).  Every control only proposes a new value; one
-observer redraws the curve first, then the readout, compare table, controls and
-code.  An invalid proposal never replaces the design: its message goes to
-``error`` and to the error line under the controls.
+The designer holds the design and what is derived from it as traits: ``schedule``
+(the last valid design), its clock and budget (``unit``, ``steps_per_epoch``,
+``steps``, and ``batch`` for cautions), the ``facts`` of the design (computed once
+per change, shared by every panel) and the ``pinned`` designs.  It only assembles
+the panels: each observes ``revision`` (bumped once per accepted change) and
+redraws what changed for it (``guard.Panel``).  Controls only propose a new value;
+an invalid proposal never replaces the design: its message goes to ``error``.
 """
 
 from __future__ import annotations
 
-import functools
 import html
 import os
 from contextlib import contextmanager
@@ -19,34 +19,36 @@ from time import perf_counter
 from typing import Any, Callable, Iterator
 
 import ipywidgets as W
-from traitlets import Instance, Int, Unicode, observe, validate
+from traitlets import Instance, Int, Tuple, Unicode, observe, validate
 
 from .. import spec as specs
 from ..combine import warmup
-from ..facts import facts
+from ..facts import Facts, facts
 from ..schedule import Schedule, complain
 from ..shapes import cosine
+from ..svg import render_svg
 from .canvas import Clock, CurvePanel
 from .codeview import ExportPanel
 from .compare import ComparePanel, Pin
-from .controls import ParamControl, check_error
+from .controls import ParamControl
 from .form import rescale
+from .guard import explain, quietly
 from .readout import ReadoutPanel
 from .replay import ReplayPanel
 from .rescale import RescalePanel
 from .stages import StagesPanel
+from .theme import ERROR_RED, Tabs
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
 
-READOUT_EXACT = 2 ** 17  # every tick read up to this budget (the demo's 103,500 too); a grid beyond
-ERROR_RED = "#b91c1c"
+READOUT_EXACT = 2 ** 17  # every tick read up to this budget (the demo's 103,500 too); beyond it,
+READOUT_GRID = 2 ** 14   # a grid of about this many ticks plus every jump (bounded work per change)
 DEMO_STEPS_PER_EPOCH, DEMO_EPOCHS, DEMO_BATCH = 1150, 90, 128
+KEPT = "the last valid design is kept"
 
 
 def demo_design() -> Schedule:
     """The demo scenario's starting point: 5 epochs of linear warmup to 0.1, then cosine to 0 (90 x 1,150 steps).
-
-    A place to start shaping from, not a recommendation.
 
     >>> demo_design().length
     103500
@@ -63,66 +65,16 @@ def _whole(owner: str, name: str, value: Any, optional: bool) -> int | None:
     return int(value)
 
 
-class Tabs(W.VBox):
-    """Panes under a tab bar (``bar``, toggle buttons, class ``sw-tabs``); ``children[i]`` is pane ``i``.
-
-    A hidden pane is not taken out of the layout (``display: none``) as a tab widget's pane would be:
-    it keeps its width, gets ``height: 0`` and ``visibility: hidden``.  A bqplot figure lays itself out
-    from its element's size when it first renders, and in a ``display: none`` pane that size is 0, so
-    the plot area came out negative (width 0 - 156 px of margins); the browser's bar has no hidden
-    state of its own either, so a pane filled by the kernel after the person moved on is never 0-sized.
-    """
-
-    selected_index = Int(0, help="the pane shown")
-
-    def __init__(self, panes: list[W.Widget | None], titles: tuple[str, ...]) -> None:
-        self.titles = tuple(titles)
-        self.bar = W.ToggleButtons(options=[(t, i) for i, t in enumerate(self.titles)], value=0,
-                                   style={"button_width": "7em"})
-        self.bar.add_class("sw-tabs")
-        super().__init__([W.Box([] if p is None else [p]) for p in panes],
-                         layout={"border_top": "1px solid #e5e7eb", "padding": "4px 0 0 0"})
-        self.bar.observe(lambda ch: setattr(self, "selected_index", ch["new"]), names="value")
-        self._show({"new": 0})
-
-    @observe("selected_index")
-    def _show(self, change: dict) -> None:
-        i = change["new"]
-        if self.bar.value != i:
-            self.bar.value = i
-        for j, pane in enumerate(self.children):
-            shown = j == i
-            with pane.layout.hold_sync():
-                pane.layout.height = None if shown else "0px"
-                pane.layout.overflow = None if shown else "hidden"
-                pane.layout.visibility = None if shown else "hidden"
-
-
 class ScheduleDesigner(W.VBox):
     """An ipywidgets box to shape a learning-rate schedule and read it exactly.
 
-    Parameters
-    ----------
-    schedule : the design to start from; None starts from the demo scenario
-        (:func:`demo_design`, with 1,150 steps per epoch and batch 128).
-    steps : the budget in ticks of the clock; default the design's length.
-    steps_per_epoch : optimizer steps per epoch (shows epochs beside steps).
-    unit : the clock of the design, ``"step"`` or ``"epoch"``.
-    batch : batch size per update, used only for cautions.
-    autosave : a spec file path written (atomically) after every valid change.
+    Parameters: ``schedule`` (None: the demo scenario, :func:`demo_design`, 1,150 steps per
+    epoch, batch 128), ``steps`` (the budget; default the design's length), ``steps_per_epoch``,
+    ``unit`` (``"step"`` or ``"epoch"``), ``batch`` (for cautions), ``autosave`` (a spec file
+    written atomically after every valid change).  ``set_total`` and ``set_unit`` convert the
+    design in proportion; assigning ``steps`` or ``unit`` only changes what is read.  Panels:
+    ``stages``, ``canvas``, ``readout``, ``compare``, ``export`` and ``tabs``.
 
-    Notes
-    -----
-    Assigning ``steps`` or ``unit`` in code changes only the budget read or the
-    clock's name; ``set_total`` and ``set_unit`` (the budget row) convert the
-    design in proportion.  While the design's length equals the budget, the
-    budget follows the design when a stage gets longer or shorter.  The panels
-    are attributes: ``stages``, ``canvas`` (the bqplot figure and its marks),
-    ``readout``, ``compare``, ``export`` and ``tabs``; ``control(stage, name)``
-    finds one parameter's control.
-
-    Examples
-    --------
     >>> from schedwidget import ScheduleDesigner, cosine
     >>> d = ScheduleDesigner(cosine(0.1, steps=1000))
     >>> d.control(0, "peak").text.value = 0.2
@@ -136,13 +88,15 @@ class ScheduleDesigner(W.VBox):
     steps = Int(1, help="the budget in ticks of the clock")
     steps_per_epoch = Int(None, allow_none=True, help="optimizer steps per epoch, or None")
     batch = Int(None, allow_none=True, help="batch size per update, or None (for cautions only)")
+    facts = Instance(Facts, allow_none=True, help="the facts of the design over its budget (once per change)")
+    pinned = Tuple(help="the pinned designs (Pin values), oldest first")
+    revision = Int(0, help="bumped once per accepted change, when every trait above holds its new value")
 
     def __init__(self, schedule: Schedule | None = None, steps: int | None = None,
                  steps_per_epoch: int | None = None, unit: str = "step", batch: int | None = None,
                  autosave: str | os.PathLike | None = None, **kwargs: Any) -> None:
-        self._hold, self._dirty, self._good, self._saved = 1, False, None, None
-        self.redraws = 0
-        self.timing: dict[str, float] = {}
+        self._hold, self._dirty, self._good, self._saved, self._read = 1, False, None, None, None
+        self.redraws, self.timing = 0, {}
         super().__init__(**kwargs)
         if schedule is None:
             schedule = demo_design()
@@ -154,32 +108,24 @@ class ScheduleDesigner(W.VBox):
             raise complain("ScheduleDesigner", "steps", None, "a whole number >= 1 for an open-ended design",
                            "pass steps=the number of ticks to draw and read")
         self.autosave = None if autosave is None else os.fspath(autosave)
-        self.unit = unit
-        self.steps_per_epoch = steps_per_epoch
-        self.batch = batch
+        self.unit, self.steps_per_epoch, self.batch = unit, steps_per_epoch, batch
         self.steps = schedule.length if steps is None else steps
         self.schedule = schedule
-        self.canvas = CurvePanel()
-        self.canvas.x_choice.value = "epochs" if unit == "epoch" else "steps"
-        self.readout = ReadoutPanel()
-        self.stages = StagesPanel(self)
-        self.compare = ComparePanel(self)
-        self.export = ExportPanel(self)
+        self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale"))
+        self.canvas = CurvePanel(self, "epochs" if unit == "epoch" else "steps")  # observes first: marks first
+        self.observe(self._derive, names="revision")  # then the facts every other panel reads
+        self.readout, self.stages = ReadoutPanel(self), StagesPanel(self)
+        self.compare, self.export = ComparePanel(self, tab=0), ExportPanel(self, tab=1)
         self.error_line = W.HTML("", style={"text_color": ERROR_RED})
         self.error_line.add_class("sw-error")
-        self.canvas.rate_axis.observe(self.guarded(self._axes_changed), names="value")
-        self.canvas.x_choice.observe(self.guarded(self._axes_changed), names="value")
-        self.canvas.hover.observe(self.guarded(self._hovered), names="selected")
-        stage_list = self.stages.list
-        stage_list.layout = W.Layout(max_height="560px", overflow="auto")
+        self.stages.list.layout = W.Layout(max_height="560px", overflow="auto")
         left = W.VBox([W.HTML("<b>Stages</b>"), self.stages, self.error_line],
                       layout={"width": "430px", "flex": "0 0 auto", "padding": "0 8px 0 0"})
         right = W.VBox([self.canvas, self.compare.pin_row, self.readout],
                        layout={"flex": "1 1 auto", "min_width": "0", "width": "auto"})
-        # Replay and Rescale start when their tab is first opened (keeps the designer quick to open)
-        self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}
-        self.tabs = Tabs([self.compare, self.export, None, None], ("Compare", "Export", "Replay", "Rescale"))
-        self.export.visible = lambda: self.tabs.selected_index == 1
+        self.tabs.fill(0, self.compare)
+        self.tabs.fill(1, self.export)
+        self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}  # started when first shown
         self.tabs.observe(self.guarded(self._tab_changed), names="selected_index")
         self.children = [W.HBox([left, right]), self.tabs.bar, self.tabs]
         self.add_class("sw-designer")
@@ -193,24 +139,14 @@ class ScheduleDesigner(W.VBox):
             raise complain("ScheduleDesigner", "unit", proposal["value"], "one of 'step', 'epoch'")
         return proposal["value"]
 
-    @validate("steps")
-    def _check_steps(self, proposal: dict) -> int:
-        return _whole("ScheduleDesigner", "steps", proposal["value"], False)
+    @validate("steps", "steps_per_epoch", "batch")
+    def _check_whole(self, proposal: dict) -> int | None:
+        name = proposal["trait"].name
+        return _whole("ScheduleDesigner", name, proposal["value"], name != "steps")
 
-    @validate("steps_per_epoch")
-    def _check_spe(self, proposal: dict) -> int | None:
-        return _whole("ScheduleDesigner", "steps_per_epoch", proposal["value"], True)
-
-    @validate("batch")
-    def _check_batch(self, proposal: dict) -> int | None:
-        return _whole("ScheduleDesigner", "batch", proposal["value"], True)
-
-    # ------------------------------------------------------------ the one redraw
-    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch")
+    # ------------------------------------------------------------ one change, one redraw
+    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned")
     def _changed(self, change: dict) -> None:
-        if self._hold:
-            self._dirty = True
-            return
         with self._one_redraw():
             self._dirty = True
             old, new = change["old"], change["new"]
@@ -230,71 +166,55 @@ class ScheduleDesigner(W.VBox):
             self._dirty = False
             self._refresh()
 
-    @property
-    def clock(self) -> Clock:
-        """How the design's ticks map onto the x axis right now."""
-        return self.clock_for(self.unit, self.steps_per_epoch)
+    def _state(self) -> tuple:
+        return self.schedule, self.steps, self.unit, self.steps_per_epoch, self.batch
 
-    def clock_for(self, unit: str, steps_per_epoch: int | None) -> Clock:
-        """The x-axis mapping for a design on another clock (used for pins)."""
-        return Clock(unit, steps_per_epoch, self.canvas.x_choice.value)
+    def _derive(self, _change: dict) -> None:
+        """The facts of the design, once per change of what they read (the curve is drawn by now)."""
+        self.timing["marks_at"] = t0 = perf_counter()
+        if self._read != self._state():
+            s, n, unit, spe, batch = self._state()
+            self.facts = facts(s, n, spe if unit == "step" else None, unit, batch,
+                               exact_up_to=READOUT_EXACT if n <= READOUT_EXACT else READOUT_GRID)
+            self._read = self._state()
+        self.timing["readout"] = perf_counter() - t0
 
     def _refresh(self) -> None:
-        """Curve first, then readout, compare table, controls, code, autosave; revert on failure."""
+        """Bump ``revision``: every panel redraws what changed for it; revert if one of them fails."""
         t0 = perf_counter()
-        s, n = self.schedule, self.steps
         try:
-            self.canvas.draw(s, n, self.clock)
-            t1 = perf_counter()
-            spe = self.steps_per_epoch if self.unit == "step" else None
-            self.readout.show(facts(s, n, spe, self.unit, self.batch, exact_up_to=READOUT_EXACT))
-            t2 = perf_counter()
-            self.compare.refresh(ghosts=self._good is None or self._good[1:4] != (n, self.unit,
-                                                                                  self.steps_per_epoch))
-            self.stages.sync()
-            self.export.refresh()
+            self.revision += 1
             self._autosave()
         except Exception as exc:
             self._revert(exc)
             return
-        self.timing = {"marks": t1 - t0, "readout": t2 - t1, "total": perf_counter() - t0, "marks_at": t1}
-        self._good = (s, n, self.unit, self.steps_per_epoch, self.batch)
-        self.redraws += 1
+        self.timing.update(marks=self.timing["marks_at"] - t0, total=perf_counter() - t0)
+        self._good, self.redraws = self._state() + (self.pinned,), self.redraws + 1
         if self.error:
             self.error = ""
 
     def _revert(self, exc: BaseException) -> None:
-        good = self._good
-        message = check_error(exc)
-        if good is not None and good != (self.schedule, self.steps, self.unit, self.steps_per_epoch, self.batch):
+        good, self._read = self._good, None
+        if good is not None and good != self._state() + (self.pinned,):
             self._good = None
             with self._one_redraw():
-                self.schedule, self.steps, self.unit, self.steps_per_epoch, self.batch = good
-        self.error = message
+                self.schedule, self.steps, self.unit, self.steps_per_epoch, self.batch, self.pinned = good
+        self.error = explain(exc, KEPT)
 
     def _autosave(self) -> None:
-        if self.autosave is None:
-            return
-        spec = self.to_spec()
-        if spec != self._saved:
+        if self.autosave is not None and self.to_spec() != self._saved:
             self.save(self.autosave)
-            self._saved = spec
+            self._saved = self.to_spec()
 
     # ------------------------------------------------------------ proposals
     def guarded(self, fn: Callable) -> Callable:
-        """``fn`` wrapped so that no exception leaves it: the message goes to ``error`` instead."""
-        @functools.wraps(fn)
-        def run(*args: Any, **kwargs: Any) -> Any:
-            try:
-                return fn(*args, **kwargs)
-            except Exception as exc:
-                self.error = check_error(exc)
-                try:
-                    self.stages.sync()  # put the controls back to the last valid design
-                except Exception:  # pragma: no cover - the message above is what matters
-                    pass
-                return None
-        return run
+        """``fn`` wrapped so that no exception leaves it: the message goes to ``error``."""
+        return quietly(fn, self._refuse, KEPT)
+
+    def _refuse(self, words: str) -> None:
+        if self.error == words:
+            self.error = ""  # the same refusal again is heard again (the controls go back again)
+        self.error = words
 
     def propose(self, s: Schedule) -> None:
         """Make ``s`` the design (controls call this with the value they built)."""
@@ -335,11 +255,20 @@ class ScheduleDesigner(W.VBox):
         """The control of parameter ``name`` of stage ``stage`` (0 = first stage; "warmup" = the warmup)."""
         return self.stages.control(stage, name)
 
+    @property
+    def clock(self) -> Clock:
+        """How the design's ticks map onto the x axis right now."""
+        return self.clock_for(self.unit, self.steps_per_epoch)
+
+    def clock_for(self, unit: str, steps_per_epoch: int | None) -> Clock:
+        """The x-axis mapping for a design on another clock (used for pins)."""
+        return Clock(unit, steps_per_epoch, self.canvas.x_choice.value)
+
     # ------------------------------------------------------------ pins, files
     @property
     def pins(self) -> list[Pin]:
         """The pinned designs, oldest first."""
-        return list(self.compare.pins)
+        return list(self.pinned)
 
     def pin(self, name: str | None = None) -> Pin:
         """Pin the current design under ``name`` (drawn as a grey ghost; up to five)."""
@@ -373,50 +302,31 @@ class ScheduleDesigner(W.VBox):
         kwargs.setdefault("steps_per_epoch", d.steps_per_epoch)
         return cls(d.schedule, **kwargs)
 
-    # ------------------------------------------------------------ figure events
-    def _axes_changed(self, _change: dict) -> None:
-        self.canvas.use_log(self.canvas.rate_axis.value == "log")
-        self.canvas.draw(self.schedule, self.steps, self.clock)
-        self.compare.refresh(ghosts=True)
-
+    # ------------------------------------------------------------ tabs, display
     def _tab_changed(self, change: dict) -> None:
-        i = change["new"]
-        if i in self.later:
-            self.tabs.children[i].children = (self.later.pop(i)(self),)
-        if self.export.stale and self.export.visible():
-            self.export.refresh()
-
-    def _hovered(self, change: dict) -> None:
-        words = self.canvas.read(self.schedule, change["new"])
-        if words and self.canvas.hover_label.value != words:
-            self.canvas.hover_label.value = words
+        if change["new"] in self.later:
+            self.tabs.fill(change["new"], self.later.pop(change["new"])(self, tab=change["new"]))
 
     @observe("error")
     def _show_error(self, change: dict) -> None:
         if hasattr(self, "error_line"):
             self.error_line.value = html.escape(change["new"])
 
-    # ------------------------------------------------------------ display
     def summary(self) -> str:
         """One line: the budget and the readout's sentence."""
-        f = self.readout.facts
         words = f"{self.steps:,} {self.unit}s"
         if self.steps_per_epoch and self.unit == "step":
             words += f" ({self.steps / self.steps_per_epoch:,.4g} epochs)"
+        f = self.facts
         return f"ScheduleDesigner · {words} · {f.sentence if f is not None else repr(self.schedule)}"
 
     def _repr_mimebundle_(self, **kwargs: Any) -> dict:
         data = super()._repr_mimebundle_(**kwargs) or {}
         data["text/plain"] = self.summary()
         try:
-            from ..svg import render_svg
-        except ImportError:
-            return data
-        try:
             data["image/svg+xml"] = render_svg(
                 self.schedule, steps=self.steps, log=self.canvas.rate_axis.value == "log", unit=self.unit,
-                steps_per_epoch=self.steps_per_epoch, ghosts=[(p.name, p.schedule) for p in self.compare.pins])
+                steps_per_epoch=self.steps_per_epoch, ghosts=[(p.name, p.schedule) for p in self.pinned])
         except Exception:  # the widget still shows; only the static picture is missing
             pass
         return data
-

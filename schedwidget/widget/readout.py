@@ -7,14 +7,18 @@ as HTML (escaped) for two HTML widgets: the readout and the cautions.
 from __future__ import annotations
 
 import html
+from typing import TYPE_CHECKING
 
 import ipywidgets as W
 
 from ..facts import Facts
+from .guard import Panel
+from .theme import AMBER
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .designer import ScheduleDesigner
 
 __all__ = ["ReadoutPanel", "AMBER", "facts_html", "cautions_html", "when"]
-
-AMBER = "#b45309"
 
 
 def when(t: int | None, f: Facts) -> str:
@@ -66,20 +70,34 @@ def cautions_html(f: Facts) -> str:
     return "".join(f"<div>&#9888; {html.escape(c)}</div>" for c in f.cautions)
 
 
-class ReadoutPanel(W.VBox):
-    """The readout HTML (class ``sw-readout``) and the amber cautions HTML (class ``sw-caution``)."""
+class ReadoutPanel(Panel, W.VBox):
+    """The readout HTML (class ``sw-readout``) and the amber cautions HTML (class ``sw-caution``).
 
-    def __init__(self) -> None:
+    It shows the designer's ``facts`` (computed once per change by the designer, never here).
+    """
+
+    def __init__(self, designer: ScheduleDesigner) -> None:
         self.text = W.HTML("")
         self.text.add_class("sw-readout")
         self.cautions = W.HTML("", style={"text_color": AMBER})
         self.cautions.add_class("sw-caution")
-        self.facts: Facts | None = None
         super().__init__([self.cautions, self.text])
+        self.listen(designer)
+
+    @property
+    def facts(self) -> Facts | None:
+        """The facts shown (the designer's)."""
+        return self.d.facts
+
+    def shows(self) -> Facts | None:
+        return self.d.facts
+
+    def paint(self) -> None:
+        if self.d.facts is not None:
+            self.show(self.d.facts)
 
     def show(self, f: Facts) -> None:
         """Show ``f`` (writes only what changed)."""
-        self.facts = f
         text, warn = facts_html(f), cautions_html(f)
         if self.text.value != text:
             self.text.value = text

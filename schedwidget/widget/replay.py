@@ -30,7 +30,8 @@ with warnings.catch_warnings():
 from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
-from .guard import ERROR_RED, quietly
+from .guard import Panel, quietly
+from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, figure_layout
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -38,9 +39,6 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = ["ReplayPanel", "epoch_base", "step_line", "WHAT_IF_PATIENCE"]
 
-CURVE = "#0f766e"       # deep teal: the rate
-METRIC = "#9ca3af"      # grey: the metric, on its own axis
-AMBER = "#b45309"
 WHAT_IF_PATIENCE = tuple(range(1, 9))
 RULE_DEFAULTS = {name: getattr(PlateauRule(), name) for name in PlateauRule.params()}
 LABELS = {"goal": "goal", "relative": "relative tolerance", "factor": "factor", "patience": "patience",
@@ -100,7 +98,7 @@ def epoch_base(s: Schedule, unit: str, steps_per_epoch: int | None) -> Schedule:
     return s.stretch(n // steps_per_epoch)
 
 
-class ReplayPanel(W.VBox):
+class ReplayPanel(Panel, W.VBox):
     """History source, the rule's controls, the figure, the drops table, the what-if strip and a message line.
 
     DOM hooks: ``sw-replay`` (the panel), ``sw-replay-path`` (the path box),
@@ -113,7 +111,7 @@ class ReplayPanel(W.VBox):
     >>> panel.replay.drop_epochs  # doctest: +SKIP
     """
 
-    def __init__(self, designer: ScheduleDesigner) -> None:
+    def __init__(self, designer: ScheduleDesigner, tab: int | None = None) -> None:
         self.d = designer
         self.values: np.ndarray | None = None
         self.source_name = ""
@@ -150,7 +148,6 @@ class ReplayPanel(W.VBox):
                                  layout={"width": "13em"})
         self.follow.observe(g(self._follow_changed), names="value")
         self.start.observe(g(lambda c: self.refresh()), names="value")
-        designer.observe(g(self._design_changed), names=["schedule", "unit", "steps_per_epoch"])
         # ---------------------------------------------------------- figure
         self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
         self.ys_linear = LinearScale(min=0.0)
@@ -176,8 +173,7 @@ class ReplayPanel(W.VBox):
                      color=METRIC, grid_lines="none")]
         self.figure = Figure(marks=[self.metric_line, self.rate_line, self.drop_marks], axes=axes,
                              animation_duration=0, padding_y=0.05,
-                             fig_margin={"top": 16, "bottom": 44, "left": 72, "right": 84},
-                             layout=W.Layout(width="100%", height="300px"))
+                             fig_margin=REPLAY_FIGURE[1], layout=W.Layout(**figure_layout(REPLAY_FIGURE)))
         self.figure.add_class("sw-replay-figure")
         self.figure_box = W.Box([self.figure], layout={"min_height": "300px", "width": "100%"})
         self.note = W.HTML(f"<small><i>{html.escape(COUNTERFACTUAL)}</i></small>")
@@ -203,6 +199,7 @@ class ReplayPanel(W.VBox):
                           self.table, self.whatif])
         self.add_class("sw-replay")
         g(self._source)("demo")
+        self.listen(designer, tab, now=True)
 
     # ------------------------------------------------------------ plumbing
     def _guard(self, fn: Callable) -> Callable:
@@ -244,9 +241,12 @@ class ReplayPanel(W.VBox):
         self.start.disabled = bool(change["new"])
         self.refresh()
 
-    def _design_changed(self, change: dict) -> None:
-        if self.follow.value:
-            self.refresh()
+    def shows(self) -> tuple | None:
+        d = self.d
+        return (d.schedule, d.unit, d.steps_per_epoch) if self.follow.value else None
+
+    def paint(self) -> None:
+        self._guard(self.refresh)()
 
     # --------------------------------------------------------------- input
     def _source(self, kind: str) -> None:

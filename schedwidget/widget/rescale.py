@@ -28,16 +28,15 @@ with warnings.catch_warnings():
 from ..sample import trace
 from ..svg import nice_ticks
 from ..schedule import Schedule, complain
-from .guard import ERROR_RED, quietly
+from .guard import Panel, quietly
+from .theme import AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, figure_layout
+from .theme import METRIC as OLD  # muted grey: the design as it is
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
 __all__ = ["RescalePanel", "Rescaled", "rescale"]
 
-CURVE = "#0f766e"   # deep teal: the new design
-OLD = "#9ca3af"     # muted grey: the design as it is
-AMBER = "#b45309"
 
 
 class Rescaled:
@@ -107,15 +106,16 @@ def rescale(s: Schedule, steps: int, unit: str, steps_per_epoch: int | None, fro
     return Rescaled(s, new, steps, new_steps, unit, from_batch, to_batch, steps_per_epoch, new_spe, budget)
 
 
-class RescalePanel(W.VBox):
+class RescalePanel(Panel, W.VBox):
     """Batch inputs, rule and keep toggles, old/new curves overlaid, a summary, an apply button.
 
     DOM hooks: ``sw-rescale`` (the panel), ``sw-rescale-apply``, ``sw-rescale-error``, ``sw-rescale-summary``.
     """
 
-    def __init__(self, designer: ScheduleDesigner) -> None:
+    def __init__(self, designer: ScheduleDesigner, tab: int | None = None) -> None:
         self.d = designer
         self.result: Rescaled | None = None
+        self._batch_seen = designer.batch
         g = self._guard
         now = designer.batch or 0  # unknown: the person types it (no batch is assumed)
         label = {"description_width": "7em"}
@@ -154,19 +154,17 @@ class RescalePanel(W.VBox):
         self.figure = Figure(marks=[self.old_line, self.new_line],
                              axes=[self.x_label, Axis(scale=self.ys, side="left", label="rate", tick_format=".2~g")],
                              animation_duration=0, padding_y=0.05, legend_location="top-right",
-                             fig_margin={"top": 16, "bottom": 44, "left": 64, "right": 24},
-                             layout=W.Layout(width="100%", height="280px"))
+                             fig_margin=RESCALE_FIGURE[1], layout=W.Layout(**figure_layout(RESCALE_FIGURE)))
         self.figure.add_class("sw-rescale-figure")
         self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%"})
         for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
             w.observe(g(lambda c: self.refresh()), names="value")
         self.apply_button.on_click(g(lambda b: self.apply()))
-        designer.observe(g(self._design_changed), names=["schedule", "unit", "steps", "steps_per_epoch", "batch"])
         super().__init__([W.HBox([W.VBox([self.from_batch, self.batch, self.processes]),
                                   W.VBox([self.rule, self.keep, self.x_axis])]),
                           self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
         self.add_class("sw-rescale")
-        g(self.refresh)()
+        self.listen(designer, tab, now=True)
 
     # ------------------------------------------------------------ plumbing
     def _guard(self, fn: Callable) -> Callable:
@@ -180,11 +178,18 @@ class RescalePanel(W.VBox):
         if self.message.value != value:
             self.message.value = value
 
-    def _design_changed(self, change: dict) -> None:
-        if change["name"] == "batch" and change["new"] and self.from_batch.value != change["new"]:
-            self.from_batch.value = change["new"]  # its observer refreshes
+    def shows(self) -> tuple:
+        d = self.d
+        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch
+
+    def paint(self) -> None:
+        """Follow the designer: a new designer batch becomes 'batch now' (its observer refreshes)."""
+        batch = self.d.batch
+        changed, self._batch_seen = batch != self._batch_seen, batch
+        if changed and batch and self.from_batch.value != batch:
+            self.from_batch.value = batch
             return
-        self.refresh()
+        self._guard(self.refresh)()
 
     # ---------------------------------------------------------------- work
     def refresh(self) -> None:

@@ -2,7 +2,10 @@
 
 Every edit builds a new design value from the editable form (``form.py``) and
 hands it to the designer (``designer.propose``); the panel never keeps a copy
-of the design of its own, it re-reads ``designer.schedule`` in ``sync()``.
+of the design of its own: it observes the designer and re-reads ``schedule`` and
+the budget when they change, and after a refused edit (``error``) it puts the
+controls back.  Controls it replaces (a stage added, removed, moved or changed
+in kind) are closed, with everything inside them.
 """
 
 from __future__ import annotations
@@ -18,6 +21,8 @@ from ..combine import Restarts
 from ..schedule import ScheduleError, as_whole, complain
 from .controls import LABEL, ParamControl, put
 from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form
+from .guard import Panel, close_tree
+from .theme import BORDER
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -30,7 +35,7 @@ NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot
                 "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
 
 
-class StagesPanel(W.VBox):
+class StagesPanel(Panel, W.VBox):
     """Budget row, 'add stage' row, one box per stage (class ``sw-stage``), and a note for other designs."""
 
     def __init__(self, designer: ScheduleDesigner) -> None:
@@ -68,6 +73,19 @@ class StagesPanel(W.VBox):
         self.add.on_click(g(self._add))
         super().__init__([W.HBox([self.unit, self.spe]), W.HBox([self.total, self.batch]), self.total_words,
                           W.HBox([self.shape, self.add]), self.note, self.list])
+        d.observe(self._refused, names="error")
+        self.listen(d)
+
+    def shows(self) -> tuple:
+        d = self.d
+        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch
+
+    def paint(self) -> None:
+        self.sync()
+
+    def _refused(self, change: dict) -> None:
+        if change["new"]:
+            self.redraw()  # put the controls back to the last valid design
 
     # ------------------------------------------------------------- reading
     @property
@@ -98,8 +116,11 @@ class StagesPanel(W.VBox):
             put(self.note, "" if form is not None else f"<i>{NOT_EDITABLE}</i>")
             put(self.add, form is None, "disabled")
             if form is None:
-                if self.list.children:
+                old = self.list.children
+                if old:
                     self.list.children = ()
+                    for box in old:
+                        close_tree(box)
                 self.controls, self.signature = [], None
                 return
             if form.signature() != self.signature:
@@ -169,11 +190,13 @@ class StagesPanel(W.VBox):
                     rows.append(self._control(where, part, target, name, p))
             head_row = W.HBox(head, layout={"flex_flow": "row wrap", "align_items": "center"})
             box = W.VBox([head_row] + [c.box for c in rows],
-                         layout={"border": "1px solid #e5e7eb", "padding": "2px 4px", "margin": "2px 0"})
+                         layout={"border": f"1px solid {BORDER}", "padding": "2px 4px", "margin": "2px 0"})
             box.add_class("sw-stage")
             boxes.append(box)
             self.controls.append(rows)
-        self.list.children = boxes
+        old, self.list.children = self.list.children, boxes
+        for box in old:
+            close_tree(box)
         self.signature = form.signature()
 
     def _control(self, where: str, part: str, target: Any, name: str, p) -> ParamControl:
@@ -272,7 +295,7 @@ class StagesPanel(W.VBox):
             self._propose(Form(form.stages, Warm(steps=max(1, n // 20))))
             return
         end = s(s.length) if s.length is not None else s(n)
-        peak = self.d.readout.facts.peak if self.d.readout.facts is not None else 0.1
+        peak = self.d.facts.peak if self.d.facts is not None else 0.1
         rate = end if end > 0 else peak
         self._propose(Form(form.stages + (new_stage(kind, rate, max(3, n // 10)),), form.warm))
 
