@@ -5,9 +5,16 @@ Two routes into training code:
 * ``to_python`` / ``to_torch`` write source that needs only the standard
   library (and torch for the snippet): paste it into training code that must
   not depend on schedwidget.
-* ``torch_factor`` returns a picklable object for ``LambdaLR`` that needs
-  schedwidget at training time; its state is the design's spec, so
-  ``scheduler.state_dict()`` and every checkpoint carry the design itself.
+* ``make_scheduler(optimizer, design, ...)`` builds a ``LambdaLR`` of
+  ``RateFactor`` objects (schedwidget needed at training time) after checking
+  every param group's starting lr against ``base_lr`` and its multiplier.  A
+  factor's state is the design's spec, so ``scheduler.state_dict()`` and every
+  checkpoint carry the design itself; a loaded state is checked field by field
+  and a checkpoint of another design is refused unless ``resume_with`` says
+  which design to continue on.  ``torch_factor`` returns the bare factors.
+
+torch is never imported here: ``make_scheduler`` finds it through the
+optimizer it is given (``sys.modules``), and the snippet is only text.
 """
 
 from __future__ import annotations
@@ -138,9 +145,15 @@ def _read_design(owner: str, text: Any) -> Schedule:
 
 
 def _build(owner: str, s: Schedule) -> Callable[[int], float]:
-    text, modules = function_source(s, "rate_at", doc=False)
+    """The generated function of a validated design (only validated numbers and names reach its source)."""
+    try:
+        text, modules = function_source(s, "rate_at", doc=False)
+        code = compile(text, "<schedwidget RateFactor>", "exec")
+    except (RecursionError, MemoryError, OverflowError, SyntaxError) as exc:  # a design too deep or wide to compile
+        raise complain(owner, "design", _brief(s), "a design Python can compile",
+                       f"{type(exc).__name__}: {exc}"[:200]) from None
     namespace: dict[str, Any] = {"__builtins__": builtins, **{m: __import__(m) for m in modules}}
-    exec(compile(text, "<schedwidget RateFactor>", "exec"), namespace)
+    exec(code, namespace)
     return namespace["rate_at"]
 
 
@@ -318,11 +331,11 @@ class RateFactor:
     def __call__(self, t: int) -> float:
         # The hot path (once per training step): one lookup and one dict comparison tell that the state is
         # the one last checked; a load (LambdaLR's __dict__.update) changes it and sends us through _check.
-        checked = _CHECKED.get(id(self))
         try:
-            stale = checked is None or checked[0] != self.__dict__
-        except Exception:  # noqa: BLE001 - a crafted value whose == misbehaves: check the state properly
-            stale = True
+            checked = _CHECKED[id(self)]
+            stale = checked[0] != self.__dict__
+        except Exception:  # noqa: BLE001 - never checked (made without __init__), or a crafted value whose ==
+            stale = True   # misbehaves: check the state properly
         if stale:
             checked = self._check()
         x = checked[1](t) * checked[2] / checked[3]
@@ -726,7 +739,9 @@ def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[f
     groups : one rate multiplier per param group, or None for the same rate in every group.
     steps : the budget the snippet is for, in ticks of ``unit``, or a ``Budget``; a design of
         another length is a ScheduleError (budget mismatch).
-    name : the function's name (a plain identifier).
+    name : the function's name: a plain identifier that the snippet does not use itself (not ``self``,
+        ``t``, ``torch``, ``BASE_LR``, ``make_scheduler``, ...) and not starting with ``_`` (the snippet's
+        factor class calls it, and Python renames ``__x`` inside a class).
     steps_per_epoch : adds the budget in epochs to the comments (unit "step").
 
     Examples
