@@ -117,6 +117,8 @@ class Budget:
 
     def describe(self, unit: str = "step") -> str:
         """The budget in words, e.g. ``90 epochs x 1,150 steps = 103,500 steps``."""
+        if unit not in ("step", "epoch"):
+            raise complain("Budget.describe", "unit", unit, "one of 'step', 'epoch'")
         if unit == "epoch":
             return f"{self.epochs:,} epochs"
         return (f"{self.epochs:,} epochs x {self.steps_per_epoch:,} steps = {self.steps:,} steps "

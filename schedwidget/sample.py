@@ -25,7 +25,7 @@ SEGMENTS = 1000
 MAX_POINTS = 2 ** 20
 
 
-def budget_of(s: Schedule, steps: int | None, owner: str) -> int:
+def budget_of(s: Schedule, steps: int | None, owner: str, name: str = "steps") -> int:
     """The budget to read ``s`` over: ``steps`` if given, else its length.
 
     ``steps`` is a whole number (int, numpy integer or integral float, not a bool) in ``[1, 2**53]``.
@@ -39,9 +39,9 @@ def budget_of(s: Schedule, steps: int | None, owner: str) -> int:
                             "(pass steps=the number of ticks to read)")
     w = as_whole(n)
     if w is None or w < 1:
-        raise complain(owner, "steps", n, "a whole number >= 1")
+        raise complain(owner, name, n, "a whole number >= 1")
     if w > MAX_TICKS:
-        raise complain(owner, "steps", n, "a whole number <= 2**53",
+        raise complain(owner, name, n, "a whole number <= 2**53",
                        "above that, ticks are no longer exact on a float64 clock")
     return w
 
@@ -63,7 +63,9 @@ def at_ticks(s: Schedule, t: np.ndarray) -> np.ndarray:
 
 def breaks(s: Schedule, n: int) -> np.ndarray:
     """Ticks in ``[1, n)`` where the rate jumps: a candidate edge whose step stands out from its neighbours."""
-    n = budget_of(s, n, "breaks")
+    if n is None:
+        raise complain("breaks", "n", n, "a whole number >= 1", "the number of ticks to look at")
+    n = budget_of(s, n, "breaks", "n")
     cand = np.unique(np.ceil(s._edges(float(n - 1))))
     cand = cand[(cand >= 1) & (cand <= n - 1)].astype(np.int64)
     if cand.size == 0:

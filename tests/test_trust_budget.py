@@ -130,6 +130,7 @@ class TestBoundedNumbers:
                                                                                   r"a whole number <= 2\*\*53"),
         (lambda: scale_for_batch(0.1, 128, 256), r"^scale_for_batch: s must be a Schedule"),
         (lambda: check_length(0.1, 10), r"^check_length: s must be a Schedule"),
+        (lambda: TestBoundedNumbers.B.describe("epochs"), r"^Budget.describe: unit must be one of 'step', 'epoch'"),
     ])
     def test_messages(self, call, pattern):
         with pytest.raises(ScheduleError, match=pattern):
