@@ -507,6 +507,25 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
     -------
     torch.optim.lr_scheduler.LambdaLR with one ``RateFactor`` per param group.
 
+    Raises
+    ------
+    ScheduleError
+        A param group whose starting lr and multiplier would both scale it, a group count other than
+        ``len(groups)``, an ambiguous or unmatched ``base_lr``, a bad ``start_tick``, a saved state that is
+        not what ``LambdaLR.state_dict()`` saves (each factor field checked like a fresh one), or a
+        checkpoint of another design without ``resume_with``.
+
+    Notes
+    -----
+    Resuming from a checkpoint (model, optimizer and scheduler state dicts)::
+
+        optimizer.load_state_dict(ckpt["optimizer"])           # first: it carries each group's starting lr
+        scheduler = make_scheduler(optimizer, design, groups=[1, 10], state=ckpt["scheduler"])
+        # the design changed since the checkpoint (a longer run): say which one to continue on
+        scheduler = make_scheduler(optimizer, longer, groups=[1, 10], state=ckpt["scheduler"], resume_with="new")
+
+    By tick alone: ``make_scheduler(optimizer, design, groups=[1, 10], start_tick=k)``, k the ticks done.
+
     Examples
     --------
     >>> import torch
@@ -526,7 +545,10 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
     lambda_lr = _lambda_lr(optimizer)
     from .spec import Design
 
-    s = _schedule("make_scheduler", design.schedule if isinstance(design, Design) else design)
+    s = design.schedule if isinstance(design, Design) else design
+    if not isinstance(s, Schedule):
+        raise complain("make_scheduler", "design", _brief(design),
+                       "a Schedule (built with cosine(), warmup(), ...) or a Design from load_design()")
     tick = _tick(start_tick)
     if resume_with is not None and resume_with not in RESUME_CHOICES:
         raise complain("make_scheduler", "resume_with", _brief(resume_with), "None, 'saved' or 'new'",

@@ -173,7 +173,7 @@ class TestGroups:
         with pytest.raises(ScheduleError, match=r"make_scheduler: optimizer must be a torch optimizer .*got a list"):
             make_scheduler([], OLD)
         _, optimizer = model_and_optimizer(torch)
-        with pytest.raises(ScheduleError, match=r"make_scheduler: s must be a Schedule"):
+        with pytest.raises(ScheduleError, match=r"make_scheduler: design must be a Schedule .*got 'cosine'"):
             make_scheduler(optimizer, "cosine")
 
     def test_start_tick_as_the_snippet(self, torch, tmp_path):
@@ -203,6 +203,13 @@ class TestGroups:
         out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
         assert out.returncode == 0, out.stderr
         assert out.stdout.startswith("make_scheduler: optimizer must be a torch optimizer")
+
+    def test_a_design_from_a_spec_file(self, torch, tmp_path):
+        """A Design (schedule and unit, from load_design) runs like its schedule."""
+        schedwidget.save(OLD, tmp_path / "run.json", unit="step")
+        _, optimizer = model_and_optimizer(torch)
+        scheduler = make_scheduler(optimizer, schedwidget.load_design(tmp_path / "run.json"))
+        assert scheduler.lr_lambdas[0] == torch_factor(OLD, BASE)
 
     def test_public(self):
         """make_scheduler is a public name of the package."""
