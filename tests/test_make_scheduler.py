@@ -308,6 +308,20 @@ class TestResumeOtherDesign:
                                                 r"got the checkpoint's 0\.5 x "):
             make_scheduler(optimizer, OLD, groups=[1, 0.25], state=ckpt["scheduler"])
 
+    def test_long_designs_are_shown_where_they_differ(self):
+        """Two long designs are cut to the part where they first differ, so the message stays short."""
+        from schedwidget import flat, stages
+
+        head = [flat(BASE, steps=10)] * 20
+        f = torch_factor(stages(*head, cosine(BASE, steps=200)), BASE)
+        f.__dict__.update(torch_factor(stages(*head, cosine(BASE, steps=100)), BASE).__dict__)
+        with pytest.raises(ScheduleError) as info:
+            f(1)
+        text = str(info.value)
+        assert re.search(r"built with, \.\.\..*steps=200\)\) \(base_lr 0\.01\), got the checkpoint's \.\.\..*"
+                         r"steps=100\)\) \(base_lr 0\.01\)", text), text
+        assert len(text) < 700
+
     def test_optimizer_state_first(self, torch, tmp_path):
         """make_scheduler(state=...) on an optimizer whose state was not loaded: refused (its lrs would be lost)."""
         _, ckpt = checkpoint(torch, tmp_path, OLD)
