@@ -456,3 +456,13 @@ class TestCorruptedStates:
         f.__dict__.update(dict(f.__dict__))
         f(4)
         assert set(f.__dict__) == {"design", "base_lr", "multiplier"} and not hasattr(type(f), "__slots__")
+
+    def test_records_go_with_the_factor(self):
+        """What a factor was built with is kept outside it and dropped with it (no growth over many factors)."""
+        import gc
+
+        before = len(export._BUILT)
+        for _ in range(200):
+            torch_factor(OLD, BASE)(3)
+        gc.collect()
+        assert len(export._BUILT) == len(export._CHECKED) <= before + 1
