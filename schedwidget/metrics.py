@@ -100,9 +100,10 @@ def values_of(owner: str, name: str, value: Any) -> np.ndarray:
         if isinstance(value, np.ma.MaskedArray):
             masked = np.flatnonzero(np.ma.getmaskarray(value))
             if masked.size:
+                count = f"{masked.size:,} masked entr{'y' if masked.size == 1 else 'ies'}"
                 raise complain(owner, f"{name}[{int(masked[0])}]", "a masked entry", "a number",
-                               f"{masked.size:,} masked entr{'y' if masked.size == 1 else 'ies'}; a masked entry is a missing evaluation: fill it "
-                               "(np.ma.filled(x, np.nan) keeps it as nan for the replay to report) or drop it")
+                               f"{count}; a masked entry is a missing evaluation: fill it (np.ma.filled(x, "
+                               "np.nan) keeps it as nan for the replay to report) or drop it")
             value = np.ma.getdata(value)
         if value.dtype.kind in "fiu":
             with np.errstate(over="ignore", invalid="ignore"):
