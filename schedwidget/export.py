@@ -338,7 +338,11 @@ class RateFactor:
             stale = True   # misbehaves: check the state properly
         if stale:
             checked = self._check()
-        x = checked[1](t) * checked[2] / checked[3]
+        try:
+            x = checked[1](t) * checked[2] / checked[3]
+        except (ValueError, OverflowError) as exc:  # the generated function refuses a negative or fractional t
+            raise complain("RateFactor", "t", _brief(t), "a whole number of ticks >= 0",
+                           f"{type(exc).__name__}: {exc}"[:160]) from None
         try:
             if 0.0 <= x < _INF:
                 return x

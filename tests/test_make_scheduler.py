@@ -466,3 +466,18 @@ class TestCorruptedStates:
             torch_factor(OLD, BASE)(3)
         gc.collect()
         assert len(export._BUILT) == len(export._CHECKED) <= before + 1
+
+    @pytest.mark.parametrize("t", [-1, 1.5, "3", None])
+    def test_bad_tick(self, t):
+        """A tick that is not a whole number >= 0 is a ScheduleError naming t."""
+        with pytest.raises(ScheduleError, match=r"RateFactor: t must be a whole number of ticks >= 0"):
+            torch_factor(OLD, BASE)(t)
+
+    @pytest.mark.parametrize("value", [math.nan, -1e-3, math.inf, complex(0.1, 0.0)])
+    def test_no_unusable_factor_is_returned(self, value):
+        """Whatever the function behind a factor gives, a NaN, negative, infinite or complex value is refused."""
+        f = torch_factor(OLD, BASE)
+        seen, _, m, b = export._CHECKED[id(f)]
+        export._CHECKED[id(f)] = (seen, lambda t: value, m, b)   # stands in for a numerics bug in a design
+        with pytest.raises(ScheduleError, match=r"RateFactor: the factor at t=7 must be a finite number >= 0"):
+            f(7)
