@@ -116,6 +116,8 @@ class CurvePanel(Panel, W.VBox):
         self._ghosts: dict[int, tuple] = {}         # slot -> (pin, its trace): traced once per pin
         self._ghost_keys: dict[int, tuple] = {}     # slot -> what its mark shows now
         self.ghost_traces = 0
+        self._spots: dict[int, tuple] = {}          # line -> where its name was put last
+        self._ends: dict[object, tuple] = {}        # "current" or slot -> (last x, last y, lowest y, highest y, name)
         super().__init__([self.figure, W.HBox([self.rate_axis, self.x_choice]), self.hover_label])
         g = designer.guarded
         self.rate_axis.observe(g(self._axes_changed), names="value")
@@ -162,9 +164,7 @@ class CurvePanel(Panel, W.VBox):
             if self.y_axis.tick_values is not None:
                 self.y_axis.tick_values = None
             return
-        shown = [np.asarray(m.y) for m in (self.curve, *self.ghosts) if m is self.curve or m.visible]
-        lo = min(float(np.min(v)) for v in shown if v.size)
-        hi = max(float(np.max(v)) for v in shown if v.size)
+        lo, hi = self._span()
         a, b = math.floor(math.log10(max(lo, 1e-300))), math.ceil(math.log10(max(hi, 1e-300)))
         every = max(1, math.ceil((b - a + 1) / 8))
         ticks = 10.0 ** np.arange(a, b + 1, every)
@@ -183,7 +183,8 @@ class CurvePanel(Panel, W.VBox):
         f = clock.factor
         with self.curve.hold_sync():
             self.curve.x = tr.x * f
-            self.curve.y = self._y(tr.y)
+            self.curve.y = y = self._y(tr.y)
+        self._ends["current"] = self._end_of(self.curve.x, y, "current")
         self._tops["current"] = max(tr.steps - 1, 1) * f
         self._fit_x()
         self._log_ticks()
@@ -207,6 +208,7 @@ class CurvePanel(Panel, W.VBox):
         """Draw pin ``i`` (None hides it): traced once per pin, its ticks mapped with its own clock."""
         m = self.ghosts[i]
         if pin is None:
+            self._ends.pop(i, None)
             self._ghosts.pop(i, None)
             self._ghost_keys.pop(i, None)
             self._tops.pop(i, None)
@@ -225,12 +227,13 @@ class CurvePanel(Panel, W.VBox):
         tr = self._ghosts[i][1]
         f = clock.factor
         with m.hold_sync():
-            m.x = tr.x * f
-            m.y = self._own_y(tr.y)
+            m.x = x = tr.x * f
+            m.y = y = self._own_y(tr.y)
             m.labels = [pin.name]
             m.visible = True
             if m.scales.get("y") is not self.rate_scale:
                 m.scales = {"x": self.xs, "y": self.rate_scale}
+        self._ends[i] = self._end_of(x, y, pin.name)
         self._ghost_keys[i] = key
         self._tops[i] = max(tr.steps - 1, 1) * f
 
@@ -244,37 +247,48 @@ class CurvePanel(Panel, W.VBox):
         bottom = max(float(positive.min()) / 10.0 if positive.size else 1e-6, peak * LOG_FLOOR if peak > 0 else 0.0)
         return np.maximum(np.where(y > 0, y, bottom), peak * LOG_FLOOR)
 
+    @staticmethod
+    def _end_of(x: np.ndarray, y: np.ndarray, name: str) -> tuple:
+        """What the legend and the log axis need of a drawn line, computed once when it is drawn."""
+        if not y.size:
+            return (0.0, 0.0, math.inf, -math.inf, name)
+        return (float(x[-1]), float(y[-1]), float(np.min(y)), float(np.max(y)), name)
+
+    def _span(self) -> tuple[float, float]:
+        """The lowest and highest rate drawn (current curve and visible ghosts)."""
+        ends = self._ends.values()
+        return min(e[2] for e in ends), max(e[3] for e in ends)
+
     def _legend(self) -> None:
         """Name each line at its right end, in the margin (only when there are pins); names that would
-        overlap are pushed apart vertically.  Only what moved is sent."""
-        lines = [self.curve, *self.ghosts]
-        pinned = any(g.visible for g in self.ghosts)
-        shown = [(i, m) for i, m in enumerate(lines) if pinned and (m is self.curve or m.visible) and m.y.size]
+        overlap are pushed apart vertically.  Only names that moved are sent."""
+        keys = ["current", *range(len(self.ghosts))]
+        pinned = len(self._ends) > 1
         for i, name in enumerate(self.names):
-            if name.visible and i not in {k for k, _ in shown}:
+            if name.visible and not (pinned and keys[i] in self._ends):
                 name.visible = False
-        if not shown:
+        if not pinned:
             return
-        lo = min(float(np.min(m.y)) for _, m in shown)
-        hi = max(float(np.max(m.y)) for _, m in shown)
-        ends = sorted((self._height(float(m.y[-1]), lo, hi), i) for i, m in shown)
+        lo, hi = self._span()
+        ends = sorted((self._height(self._ends[k][1], lo, hi), i) for i, k in enumerate(keys) if k in self._ends)
         placed: list[float] = []
         for h, i in ends:
             px = h * 250.0  # about the plot's height in pixels
             while any(abs(px - q) < 13 for q in placed):
                 px += 13
             placed.append(px)
-            m, name = lines[i], self.names[i]
-            want = {"x": np.array([float(m.x[-1])]), "y": np.array([float(m.y[-1])]),
-                    "text": [m.labels[0] if m.labels else ""], "y_offset": -int(round(px - h * 250.0)),
-                    "scales": {"x": self.xs, "y": self.rate_scale}, "visible": True}
+            x, y, _lo, _hi, label = self._ends[keys[i]]
+            name = self.names[i]
+            spot = (x, y, label, -int(round(px - h * 250.0)), self.rate_scale)
+            if name.visible and self._spots.get(i) == spot:
+                continue  # this name did not move
             with name.hold_sync():
-                for trait, value in want.items():
-                    now = getattr(name, trait)
-                    same = np.array_equal(now, value) if trait in ("x", "y") else (
-                        now.get("y") is value["y"] if trait == "scales" else now == value)
-                    if not same:
-                        setattr(name, trait, value)
+                name.x, name.y, name.text = np.array([x]), np.array([y]), [label]
+                name.y_offset = spot[3]
+                if name.scales.get("y") is not spot[4]:
+                    name.scales = {"x": self.xs, "y": spot[4]}
+                name.visible = True
+            self._spots[i] = spot
 
     def _height(self, y: float, lo: float, hi: float) -> float:
         """Where ``y`` sits on the rate axis, 0 (bottom) .. 1 (top), for lines spanning ``lo`` .. ``hi``."""

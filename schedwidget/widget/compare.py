@@ -22,7 +22,7 @@ import ipywidgets as W
 import numpy as np
 
 from ..facts import Facts, facts
-from ..sample import breaks
+from ..sample import Trace, breaks
 from ..schedule import Schedule, complain
 from .guard import Panel
 from .theme import cell
@@ -60,6 +60,25 @@ def near(jumps: Sequence[int] | np.ndarray) -> np.ndarray:
     return np.concatenate([j, np.maximum(j - 1, 0)])
 
 
+def cells(f: Facts) -> list[str]:
+    """The escaped table cells of a design's facts: peak, where, final, area, under 10 %, budget."""
+    return [html.escape(c) for c in (number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
+                                     at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s")]
+
+
+def ticks_of(tr: Trace | None, n: int) -> np.ndarray | None:
+    """The rate at every tick ``0 .. n-1`` from a trace that read every tick (None if it did not).
+
+    An exact trace holds each tick once, plus one extra point before each jump (the jump's vertical
+    edge: the same x twice, the first with the rate before the jump), which is dropped.
+    """
+    if tr is None or not tr.exact or tr.steps != n:
+        return None
+    keep = np.ones(tr.x.size, dtype=bool)
+    keep[:-1] = tr.x[1:] != tr.x[:-1]
+    return tr.y[keep]
+
+
 def biggest(t: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[float, int]:
     """``max |a - b|`` over the ticks ``t`` (any order, repeats allowed) and the first tick where it is reached."""
     d = np.abs(a - b)
@@ -82,6 +101,8 @@ def largest_difference(a: Schedule, b: Schedule, steps: int) -> tuple[float, int
 
 
 NO_PINS = "<i>No pins yet: name the current design under the curve and press Pin.</i>"
+ROWS = ("peak rate", "peak at", "final rate", "area (sum of per-tick rates)", "under 10 % of the peak from", "budget",
+        "largest |rate difference| vs current", "area / current area")
 
 
 def number(x: float) -> str:
@@ -106,9 +127,10 @@ class ComparePanel(Panel, W.VBox):
 
     def __init__(self, designer: ScheduleDesigner, tab: int | None = None) -> None:
         g = designer.guarded
-        self._facts: dict[Pin, Facts] = {}
-        self._values: dict[tuple, np.ndarray] = {}  # (pin, n) -> its values at _ticks(n); ("ticks", n) -> those
-        self._current: dict = {}                   # per change: n -> the design at _ticks(n); "jumps" -> its own
+        # caches keyed by id(pin) (a pin's hash walks its whole design); each entry keeps its pin alive
+        self._facts: dict[int, tuple[Pin, Facts, list[str]]] = {}  # -> (pin, its facts, its escaped cells)
+        self._values: dict[tuple, tuple] = {}  # (id(pin), n) -> (design's jumps, pin's values there); ("ticks", n)
+        self._current: dict = {}              # per change: n -> (ticks read, the design's values there)
         self.name = W.Text(placeholder="name of this design", description="pin as",
                            tooltip="pin the current design under this name (up to five)",
                            style={"description_width": "4em"}, layout={"width": "18em"})
@@ -179,14 +201,15 @@ class ComparePanel(Panel, W.VBox):
             self.choice.options = names
             self.choice.value = keep
         kept = set(change["new"])
-        self._facts = {p: f for p, f in self._facts.items() if p in kept}
+        self._facts = {k: v for k, v in self._facts.items() if v[0] in kept}
         self._values = {}  # the ticks read hold every pin's jumps: read the pins again
 
     # ------------------------------------------------------------- drawing
     def _facts_of(self, p: Pin) -> Facts:
-        if p not in self._facts:
-            self._facts[p] = facts(p.schedule, p.steps, p.steps_per_epoch, p.unit, exact_up_to=2 ** 16)
-        return self._facts[p]
+        if id(p) not in self._facts:
+            f = facts(p.schedule, p.steps, p.steps_per_epoch, p.unit, exact_up_to=2 ** 16)
+            self._facts[id(p)] = (p, f, cells(f))
+        return self._facts[id(p)][1]
 
     def _ticks(self, n: int) -> np.ndarray:
         """The grid over ``n`` ticks and every pin's jumps (and the tick before each): fixed while the pins are."""
@@ -198,27 +221,22 @@ class ComparePanel(Panel, W.VBox):
     def difference(self, p: Pin) -> tuple[float, int]:
         """The largest |rate difference| between pin ``p`` and the design, and its first tick (same clock).
 
-        Read at the grid, at every pin's jumps and at the design's jumps: the pin's values at the first two are
-        computed once per pin; per change the design is evaluated once for all pins, and each pin only at the
-        design's jumps.
+        Read at the grid, at every pin's jumps and at the design's jumps: the pin's values there are computed
+        once per pin (again only when the design's jumps move); per change the design is evaluated once for
+        all pins.
         """
         d, s = self.d, self.d.schedule
         n = max(p.steps, d.steps)
-        t = self._ticks(n)
-        if (p, n) not in self._values:
-            self._values[(p, n)] = p.schedule(t)
+        jumps = d.facts.breaks
         if n not in self._current:
-            self._current[n] = s(t)
-        if "jumps" not in self._current:
-            jc = near(d.facts.breaks)
-            self._current["jumps"] = (jc, s(jc))
-        jc, at_jc = self._current["jumps"]
-        seen = self._values.get((p, "jumps"))
-        if seen is None or seen[0] != d.facts.breaks:  # the design's jumps stay put while a rate is moved
-            seen = self._values[(p, "jumps")] = (d.facts.breaks, p.schedule(jc) if jc.size else jc.astype(float))
-        pin_jc = seen[1]
-        return biggest(np.concatenate([t, jc]), np.concatenate([self._current[n], at_jc]),
-                       np.concatenate([self._values[(p, n)], pin_jc]))
+            t = np.concatenate([self._ticks(n), near(jumps)])
+            every = ticks_of(d.canvas.current, n)  # the curve's own trace, when it read every tick
+            self._current[n] = (t, every[t] if every is not None else s(t))
+        t, a = self._current[n]
+        seen = self._values.get((id(p), n))
+        if seen is None or seen[0] != jumps:  # the design's jumps stay put while a rate is moved
+            seen = self._values[(id(p), n)] = (jumps, p.schedule(t), p)
+        return biggest(t, a, seen[1])
 
     def shows(self) -> tuple:
         d = self.d
@@ -236,14 +254,7 @@ class ComparePanel(Panel, W.VBox):
         cur = d.facts
         e = html.escape
         right, left = cell("right"), cell("left")
-        cols: list[tuple[str, list[str]]] = []
-
-        def column(name: str, f: Facts, diff: str, ratio: str) -> tuple[str, list[str]]:
-            return name, [number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
-                          at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s", diff, ratio]
-
-        if cur is not None:
-            cols.append(column("current", cur, "—", number(1.0)))
+        names, cols = ["current"], [cells(cur) + ["—", number(1.0)]]
         for p in d.pinned:
             f = self._facts_of(p)
             if p.unit != d.unit:
@@ -251,11 +262,10 @@ class ComparePanel(Panel, W.VBox):
             else:
                 v, t = self.difference(p)
                 diff = f"{number(v)} at {at(t, d.unit)}"
-                ratio = number(f.area / cur.area) if cur is not None and cur.area > 0 else "—"
-            cols.append(column(p.name, f, diff, ratio))
-        rows = ["peak rate", "peak at", "final rate", "area (sum of per-tick rates)", "under 10 % of the peak from",
-                "budget", "largest |rate difference| vs current", "area / current area"]
-        head = f"<tr><th {left}></th>" + "".join(f"<th {right}>{e(n)}</th>" for n, _ in cols) + "</tr>"
-        body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{e(v[i])}</td>" for _, v in cols)
-                       + "</tr>" for i, r in enumerate(rows))
+                ratio = number(f.area / cur.area) if cur.area > 0 else "—"
+            names.append(e(p.name))
+            cols.append(self._facts[id(p)][2] + [e(diff), e(ratio)])
+        head = f"<tr><th {left}></th>" + "".join(f"<th {right}>{n}</th>" for n in names) + "</tr>"
+        body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{c[i]}</td>" for c in cols) + "</tr>"
+                       for i, r in enumerate(ROWS))
         return f"<table>{head}{body}</table>"
