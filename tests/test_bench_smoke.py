@@ -9,7 +9,7 @@ import warnings
 import pytest
 
 from tests.bench import __main__ as bench
-from tests.bench import bench_eval, bench_redraw, bench_spec, bench_step
+from tests.bench import bench_designer, bench_eval, bench_redraw, bench_spec, bench_step
 from tests.bench.harness import FIELDS, Result, Target, table
 
 
@@ -50,6 +50,20 @@ class TestRedrawCase:
             assert f"{path}: mark update bytes" in names
             assert any(n.startswith(f"{path}: to new marks") for n in names)
         assert all(r.value > 0 for r in rows if r.unit == "KB"), "a redraw sent no mark data"
+
+
+class TestDesignerCase:
+    """Case 6 (one change of the whole designer) runs at a budget of 1e3 with 0 and 5 pins."""
+
+    def test_runs_and_reports_every_figure(self):
+        """Both pin counts and their ratio are reported, each against its target."""
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DeprecationWarning)  # bqplot's trait declarations on import
+            rows = bench_designer.run(quick=True)
+        _check_rows(rows, bench_designer.CASE)
+        assert [r.name for r in rows] == ["one change, 0 pins (median of 5)", "one change, 5 pins (median of 5)",
+                                          "5 pins / 0 pins"]
+        assert all(r.target for r in rows) and all(r.value > 0 for r in rows)
 
 
 class TestStepCase:

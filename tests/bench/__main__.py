@@ -13,11 +13,11 @@ import time
 import warnings
 from pathlib import Path
 
-from . import bench_eval, bench_import, bench_redraw, bench_spec, bench_step
+from . import bench_designer, bench_eval, bench_import, bench_redraw, bench_spec, bench_step
 from .design import Sizing
 from .harness import Result, load, machine, table, write_json
 
-CASES = {"1": bench_eval, "2": bench_redraw, "3": bench_step, "4": bench_spec, "5": bench_import}
+CASES = {"1": bench_eval, "2": bench_redraw, "3": bench_step, "4": bench_spec, "5": bench_import, "6": bench_designer}
 DEFAULT_OUT = Path("bench-results") / "latest.json"
 DESIGN = ("warmup(restarts(cosine(0.1, 0.0, steps=L0), cycles=5, growth=2.0), steps=W).clip(low=1e-4), "
           "unit step, sized to each budget n: L0 = (95 * n // 100) // 31, W = n - 31 * L0 "
