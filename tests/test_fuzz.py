@@ -48,6 +48,7 @@ def test_no_failure(report, generator):
                       [o for c, o in zip(report.cases, report.outcomes) if c.generator == generator],
                       report.seconds, report.seed)
     fails = sub.failures()
-    assert not fails, (f"{sum(f.count for f in fails)} of {len(sub.cases)} {generator} cases failed "
-                       f"(limit {LIMIT:g} s CPU per case), {len(fails)} classes; each repro assumes\n{PRELUDE}\n"
-                       + sub.text_failures(limit=1200))
+    if fails:
+        pytest.fail(f"{sum(f.count for f in fails)} of {len(sub.cases)} {generator} cases failed "
+                    f"(limit {LIMIT:g} s CPU per case), {len(fails)} classes; each repro assumes\n{PRELUDE}\n"
+                    + sub.text_failures(limit=1200), pytrace=False)

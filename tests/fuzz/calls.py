@@ -240,7 +240,8 @@ def factor_states(rng: random.Random, n: int) -> list[Case]:
         corrupt: dict[str, Any] = {}
         lines = []
         fields = [k for k in state] + ["extra"]
-        for key in rng.sample(fields, rng.choice([1, 1, 2])):
+        benign = rng.random() < 0.2  # the ordinary resume: the same state loaded back, maybe respelled
+        for key in [] if benign else rng.sample(fields, rng.choice([1, 1, 2])):
             if key == "design":
                 corrupt[key], text = _corrupt_design(rng, state, other)
             elif key == "extra":
@@ -250,6 +251,11 @@ def factor_states(rng: random.Random, n: int) -> list[Case]:
                 a = rng.choice(atoms.NUMBERS + atoms.WRONG_TYPES[:8])
                 corrupt[key], text = a(), a.source
             lines.append(f"state[{key!r}] = {text}")
+        if benign and rng.random() < 0.5 and isinstance(state.get("design"), str):
+            import json
+
+            corrupt["design"] = json.dumps(json.loads(state["design"]), indent=1)  # same design, other spacing
+            lines.append("state['design'] = json.dumps(json.loads(state['design']), indent=1)")
         swap = "design" in corrupt and isinstance(corrupt["design"], str) and corrupt["design"] != state["design"] \
             and _loads_as_other(corrupt["design"], state["design"])
 
@@ -278,10 +284,10 @@ def _loads_as_other(text: str, mine: str) -> bool:
     import json
 
     try:
-        sw.from_spec(json.loads(text))
+        theirs = sw.from_spec(json.loads(text))
     except Exception:  # noqa: BLE001 - only a loadable, different design counts as a swap
         return False
-    return text != mine
+    return theirs != sw.from_spec(json.loads(mine))
 
 
 # ------------------------------------------------------------------ metrics
@@ -373,3 +379,74 @@ def metrics(rng: random.Random, n: int, folder: Path) -> list[Case]:
 
 # keep flake-style linters quiet about names used only in generated repros
 _ = (math, os, MAX_TICKS)
+
+
+# ------------------------------------------------------------------ corpus
+#: Inputs that broke a promise once (issue 10 and this suite's own findings): kept so they stay fixed.
+CORPUS = [
+    "poly(0.1, steps=10**12, power=0.5).stretch(100000006)",
+    "ramp(0.1, 0.0, steps=10**12).stretch(100000006)",
+    "scale_for_batch(poly(0.1, steps=100_000_001, power=0.9), 128, 96)",
+    "flat(1e308) + flat(1e308)",
+    "flat(1e308, steps=10) * flat(1e308)",
+    "ramp(1.7e308, 0.0, steps=10, curve='cosine')",
+    "ramp(0.0, 1.7e308, steps=10, curve='cosine')",
+    "one_cycle(1.7e308, steps=100, curve='cosine')",
+    "one_cycle(1e308, steps=3, low=1e308, final=1e308)",
+    "warmup(cosine(1.7976931348623157e308, steps=10), steps=5)",
+    "flat(1e308, steps=10) * 1e10",
+    "facts(inv_sqrt(0.1, warmup=1000, steps=2**53 - 1))",
+    "facts(poly(0.1, steps=2**53, power=100.0))",
+    "to_python(flat(0.1, steps=2**52 + 1) >> flat(0.01))",
+    "flat(0.1, steps=2**52 + 1) >> flat(0.01)",
+    "facts(0.1)",
+    "to_spec(None)",
+    "from_spec(None)",
+    "flat(0.1)(np.array(5))",
+    "flat(0.1)([[1, 2], [3]])",
+    "flat(0.1)(np.ma.masked_array([1, 2], mask=[False, True]))",
+    "load(3)",
+    "save(flat(0.1), 3)",
+    "restarts(cosine(0.1, steps=10), cycles=2**53)",
+    "restarts(cosine(0.1, steps=1), cycles=2**53 - 1, growth=1.0)",
+    "restarts(cosine(0.1, steps=1), growth=0.5)",
+    "restarts(restarts(restarts(restarts(restarts(restarts(restarts(restarts(restarts(restarts("
+    "cosine(0.1, steps=10), cycles=1), cycles=1), cycles=1), cycles=1), cycles=1), cycles=1), cycles=1), "
+    "cycles=1), cycles=1), cycles=1)",
+    "stages(*[flat(0.1, steps=1)] * 3000)",
+    "facts(stages(*[flat(0.1, steps=1)] * 3000))",
+    "triangle(0.0, 0.1, half_period=1, shrink=5e-324)",
+    "exp_decay(1e308, 0.5, steps=2**53)",
+    "inv_sqrt(1e308, warmup=1)",
+    "knots([(0, 1e308), (2**53, 1e308)])",
+    "knots([(0, 1e308), (1, 0.0)], interp='hold')",
+    "drops(1e308, at=[1, 2**53 - 1], factor=5e-324)",
+    "scale_for_batch(flat(0.1), 256, 1024)",
+    "scale_for_batch(flat(0.1, steps=10), 1, 2**53)",
+    "scale_for_batch(flat(1e308, steps=10), 1, 10**6)",
+    "torch_factor(flat(0.1), 0.1, groups=[1.0, 10.0])",
+    "torch_factor(flat(1e308), 5e-324)",
+    "to_torch(flat(0.1), 0.1, name='self')",
+    "to_torch(flat(0.1), 0.1, name='t')",
+    "to_python(flat(0.1), name='__x')",
+    "plateau_source(0.1, name='_x')",
+    "replay_plateau([0.5] * 10, 10**400)",
+    "replay_plateau([0.5] * 10, 0.1, factor=10**400)",
+    "replay_plateau(np.ma.masked_array([0.5, 0.6], mask=[False, True]), 0.1)",
+    "read_metric(b'a\\n' + b'9' * 5000 + b'\\n')",
+    "read_metric(b'a\\n\"' + b'x' * 200000 + b'\"\\n')",
+    "read_metric(np.ma.masked_array([0.5], mask=[True]))",
+    "read_metric([10**400])",
+    "check_length(flat(0.1, steps=10), 10**400)",
+    "Budget(samples=10**400, batch=1, epochs=1)",
+    "Budget(samples=2**53, batch=1, epochs=2**53)",
+]
+
+
+def corpus(rng: random.Random, n: int) -> list[Case]:
+    """The fixed corpus above (every entry, then random repeats are not needed: ``n`` is ignored past it)."""
+    from .atoms import _namespace
+
+    ns = _namespace()
+    return [Case("corpus", (lambda text=text: eval(text, ns)), text)  # noqa: S307 - our own constant text
+            for text in CORPUS]

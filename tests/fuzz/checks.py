@@ -23,11 +23,11 @@ ARRAY_TICKS = 4001
 
 
 #: What the running case is doing (read by the runner to name a timeout): the call itself or a check's route.
-PHASE = ["the call"]
+PHASE = ["the call", ""]
 
 
-def phase(name: str) -> None:
-    PHASE[0] = name
+def phase(name: str, detail: str = "") -> None:
+    PHASE[0], PHASE[1] = name, detail
 
 
 class Broken(Exception):
@@ -99,7 +99,7 @@ def check_schedule(s: Schedule, facts: bool = False) -> None:
         text = None
     if text is not None:
         ns: dict[str, Any] = {}
-        phase("compiling the generated source")
+        phase("compiling the generated source", f"{len(text):,} characters of to_python(s)")
         try:
             code = compile(text, "<generated lr_at>", "exec")
         except (SyntaxError, RecursionError, MemoryError, ValueError) as exc:
@@ -173,6 +173,8 @@ def check(result: Any) -> None:
     elif isinstance(result, str) and "def " in result:
         # to_python / to_torch / plateau_source text: it must compile (running it is check_schedule's job)
         compile(result, "<generated>", "exec")
+    elif isinstance(result, float):  # a rate: s(t) at one tick
+        rate("s(t)", result, "the tick given")
     elif isinstance(result, (Path, int, str, dict)) or result is None:
         return
     elif isinstance(result, sw.Budget):

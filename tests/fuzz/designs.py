@@ -100,7 +100,8 @@ def design(rng: random.Random, depth: int = 2, extreme: float = 0.05, kind: str 
 
     ``finite=True`` insists on a length (children of most combinators need one).
     Construction of each draw is bounded by a short alarm, so a constructor that
-    hangs on an extreme draw cannot hang the generator (the draw is dropped).
+    hangs or crashes on an extreme draw cannot stop the generator (the draw is
+    dropped; ``drawn_specs`` makes such draws into cases).
     """
     for _ in range(200):
         k = kind or (rng.choice(COMBINATORS) if depth > 0 and rng.random() < 0.55 else rng.choice(LEAVES))
@@ -116,6 +117,8 @@ def design(rng: random.Random, depth: int = 2, extreme: float = 0.05, kind: str 
         try:
             s = cls(**kwargs)
         except (ScheduleError, _Slow):
+            continue
+        except Exception:  # noqa: BLE001 - a constructor that crashes: drawn_specs finds it in a case; draw again
             continue
         finally:
             signal.setitimer(signal.ITIMER_REAL, 0)

@@ -122,7 +122,7 @@ def run_one(i: int, case: Case) -> Outcome:
         # the public function that was running names the class; the frame the alarm hit goes in the message
         outcome = "failure"
         klass = f"timeout > {LIMIT:g} s CPU in {PHASE[0]}: {where(exc.__traceback__, outermost=True)}"
-        message = f"interrupted in {where(exc.__traceback__)}"
+        message = f"interrupted in {where(exc.__traceback__)}" + (f"; {PHASE[1]}" if PHASE[1] else "")
     except ScheduleError:
         outcome, klass, message = "ScheduleError", "", ""
     except Broken as exc:
@@ -312,19 +312,22 @@ class Report:
         return sorted(found.values(), key=lambda f: -f.count)
 
     def text_table(self) -> str:
-        lines = [f"{'generator':<16}{'cases':>7}{'value':>8}{'ScheduleError':>15}{'failure':>9}{'max CPU s':>11}"]
+        lines = [f"{'generator':<16}{'cases':>7}{'value':>8}{'ScheduleError':>15}{'failure':>9}"
+                 f"{'CPU s':>8}{'max CPU s':>11}"]
         tot = Counter()
         slow = self.slowest()
+        cpu: Counter = Counter()
+        for c, o in zip(self.cases, self.outcomes):
+            cpu[c.generator] += o.cpu
         for gen, cnt in self.table().items():
             n = sum(cnt.values())
             tot.update(cnt)
             lines.append(f"{gen:<16}{n:>7}{cnt['value']:>8}{cnt['ScheduleError']:>15}{cnt['failure']:>9}"
-                         f"{slow[gen]:>11.3f}")
+                         f"{cpu[gen]:>8.1f}{slow[gen]:>11.3f}")
         lines.append(f"{'total':<16}{sum(tot.values()):>7}{tot['value']:>8}{tot['ScheduleError']:>15}"
-                     f"{tot['failure']:>9}{max(slow.values(), default=0):>11.3f}")
-        cpu = sum(o.cpu for o in self.outcomes)
-        lines.append(f"seed {self.seed}, {self.seconds:.1f} s in all (wall clock, with the cases' generation); "
-                     f"the cases took {cpu:.1f} s CPU")
+                     f"{tot['failure']:>9}{sum(cpu.values()):>8.1f}{max(slow.values(), default=0):>11.3f}")
+        lines.append(f"seed {self.seed}; {self.seconds:.1f} s wall clock in all, generation included "
+                     "(CPU s: the cases' own CPU time; the 1 s limit per case is CPU time)")
         return "\n".join(lines)
 
     def text_failures(self, limit: int = 2000) -> str:
