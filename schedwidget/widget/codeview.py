@@ -10,18 +10,20 @@ through the atomic ``schedwidget.spec.save``.
 from __future__ import annotations
 
 import html
-from typing import TYPE_CHECKING
+import os
+from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
 
 from .. import export
+from .. import spec as specs
 from .guard import Panel
 from .theme import ERROR_RED, OK
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["ExportPanel", "code_for"]
+__all__ = ["ExportPanel", "FileMethods", "code_for"]
 
 
 def code_for(designer: ScheduleDesigner, language: str) -> str:
@@ -91,3 +93,40 @@ class ExportPanel(Panel, W.VBox):
 
     def _say(self, text: str, colour: str) -> None:
         self.message.value = f'<span style="color:{colour}">{html.escape(text)}</span>'
+
+
+class FileMethods:
+    """The designer's spec-file methods (the export panel's buttons call them; ``autosave`` after each change)."""
+
+    def to_spec(self) -> dict:
+        """The current design as a spec dict, with its unit and steps per epoch."""
+        return specs.to_spec(self.schedule, self.unit, self.steps_per_epoch)
+
+    def save(self, path: str | os.PathLike) -> os.PathLike:
+        """Write the current design to ``path`` atomically (``schedwidget.spec.save``)."""
+        return specs.save(self.schedule, path, unit=self.unit, steps_per_epoch=self.steps_per_epoch)
+
+    def load(self, path: str | os.PathLike) -> str:
+        """Read a spec file into the editor (validated; loading never runs code)."""
+        d = specs.load_design(path)
+        with self._one_redraw():
+            self.unit = d.unit
+            if d.steps_per_epoch is not None:
+                self.steps_per_epoch = d.steps_per_epoch
+            if d.schedule.length is not None:
+                self.steps = d.schedule.length
+            self.propose(d.schedule)
+        return os.fspath(path)
+
+    @classmethod
+    def from_file(cls, path: str | os.PathLike, **kwargs: Any) -> ScheduleDesigner:
+        """A designer opened on the spec file at ``path`` (e.g. an autosave file)."""
+        d = specs.load_design(path)
+        kwargs.setdefault("unit", d.unit)
+        kwargs.setdefault("steps_per_epoch", d.steps_per_epoch)
+        return cls(d.schedule, **kwargs)
+
+    def _autosave(self) -> None:
+        if self.autosave is not None and self.to_spec() != self._saved:
+            self.save(self.autosave)
+            self._saved = self.to_spec()

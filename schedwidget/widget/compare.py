@@ -30,7 +30,7 @@ from .theme import cell
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["Pin", "ComparePanel", "largest_difference", "MAX_PINS", "DIFF_GRID"]
+__all__ = ["Pin", "ComparePanel", "PinMethods", "largest_difference", "MAX_PINS", "DIFF_GRID"]
 
 MAX_PINS = 5
 DIFF_GRID = 4096  # budgets up to this are compared tick by tick; longer ones on this many ticks plus every jump
@@ -269,3 +269,17 @@ class ComparePanel(Panel, W.VBox):
         body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{c[i]}</td>" for c in cols) + "</tr>"
                        for i, r in enumerate(ROWS))
         return f"<table>{head}{body}</table>"
+
+
+class PinMethods:
+    """The designer's pin methods (the pins themselves are its ``pinned`` trait)."""
+
+    # ------------------------------------------------------------ pins, files
+    @property
+    def pins(self) -> list[Pin]:
+        """The pinned designs, oldest first."""
+        return list(self.pinned)
+
+    def pin(self, name: str | None = None) -> Pin:
+        """Pin the current design under ``name`` (drawn as a grey ghost; up to five)."""
+        return self.compare.pin(name)

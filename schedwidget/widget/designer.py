@@ -14,7 +14,6 @@ from __future__ import annotations
 import html
 import os
 from contextlib import contextmanager
-from numbers import Integral
 from time import perf_counter
 from typing import Any, Callable, Iterator
 
@@ -22,50 +21,27 @@ import ipywidgets as W
 from traitlets import Instance, Int, Tuple, Unicode, observe, validate
 
 from .. import spec as specs
-from ..combine import warmup
 from ..facts import Facts, facts
 from ..schedule import Schedule, complain
-from ..shapes import cosine
-from ..svg import render_svg
 from .canvas import Clock, CurvePanel
-from .codeview import ExportPanel
-from .compare import ComparePanel, Pin
-from .controls import ParamControl
-from .form import rescale
+from .codeview import ExportPanel, FileMethods
+from .compare import ComparePanel, PinMethods
+from .form import DEMO_BATCH, DEMO_STEPS_PER_EPOCH, demo_design, whole
 from .guard import explain, quietly
-from .readout import ReadoutPanel
+from .readout import DisplayMethods, ReadoutPanel
 from .replay import ReplayPanel
 from .rescale import RescalePanel
-from .stages import StagesPanel
+from .stages import BudgetMethods, StagesPanel
 from .theme import ERROR_RED, Tabs
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
 
 READOUT_EXACT = 2 ** 17  # every tick read up to this budget (the demo's 103,500 too); beyond it,
 READOUT_GRID = 2 ** 14   # a grid of about this many ticks plus every jump (bounded work per change)
-DEMO_STEPS_PER_EPOCH, DEMO_EPOCHS, DEMO_BATCH = 1150, 90, 128
 KEPT = "the last valid design is kept"
 
 
-def demo_design() -> Schedule:
-    """The demo scenario's starting point: 5 epochs of linear warmup to 0.1, then cosine to 0 (90 x 1,150 steps).
-
-    >>> demo_design().length
-    103500
-    """
-    spe = DEMO_STEPS_PER_EPOCH
-    return warmup(cosine(0.1, 0.0, steps=(DEMO_EPOCHS - 5) * spe), steps=5 * spe)
-
-
-def _whole(owner: str, name: str, value: Any, optional: bool) -> int | None:
-    if value is None and optional:
-        return None
-    if isinstance(value, bool) or not isinstance(value, Integral) or value < 1:
-        raise complain(owner, name, value, "a whole number >= 1" + (" or None" if optional else ""))
-    return int(value)
-
-
-class ScheduleDesigner(W.VBox):
+class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W.VBox):
     """An ipywidgets box to shape a learning-rate schedule and read it exactly.
 
     Parameters: ``schedule`` (None: the demo scenario, :func:`demo_design`, 1,150 steps per
@@ -142,7 +118,7 @@ class ScheduleDesigner(W.VBox):
     @validate("steps", "steps_per_epoch", "batch")
     def _check_whole(self, proposal: dict) -> int | None:
         name = proposal["trait"].name
-        return _whole("ScheduleDesigner", name, proposal["value"], name != "steps")
+        return whole("ScheduleDesigner", name, proposal["value"], name != "steps")
 
     # ------------------------------------------------------------ one change, one redraw
     @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned")
@@ -199,12 +175,7 @@ class ScheduleDesigner(W.VBox):
             self._good = None
             with self._one_redraw():
                 self.schedule, self.steps, self.unit, self.steps_per_epoch, self.batch, self.pinned = good
-        self.error = explain(exc, KEPT)
-
-    def _autosave(self) -> None:
-        if self.autosave is not None and self.to_spec() != self._saved:
-            self.save(self.autosave)
-            self._saved = self.to_spec()
+        self._refuse(explain(exc, KEPT))
 
     # ------------------------------------------------------------ proposals
     def guarded(self, fn: Callable) -> Callable:
@@ -222,39 +193,6 @@ class ScheduleDesigner(W.VBox):
             self.error = ""
         self.schedule = s
 
-    def set_total(self, total: int) -> None:
-        """A new budget; the design's ticks are scaled in proportion (stage by stage, or ``stretch``)."""
-        total = _whole("designer", "total", total, False)
-        if total != self.steps:
-            new = rescale(self.schedule, self.steps, total)
-            with self._one_redraw():
-                self.steps = total
-                self.propose(new)
-
-    def set_unit(self, unit: str) -> None:
-        """Change the clock; with steps per epoch known the design is converted, otherwise relabelled."""
-        self._check_unit({"value": unit})
-        if unit == self.unit or not self.steps_per_epoch:
-            self.unit = unit
-            return
-        spe = self.steps_per_epoch
-        steps = self.steps * spe if unit == "step" else max(1, round(self.steps / spe))
-        new = rescale(self.schedule, self.steps, steps)
-        with self._one_redraw():
-            self.unit, self.steps = unit, steps
-            self.propose(new)
-            self.canvas.x_choice.value = "epochs" if unit == "epoch" else "steps"
-
-    def restore(self, s: Schedule, steps: int, unit: str, steps_per_epoch: int | None) -> None:
-        """Put a design back with its budget and clock (one redraw)."""
-        with self._one_redraw():
-            self.unit, self.steps_per_epoch, self.steps = unit, steps_per_epoch, steps
-            self.propose(s)
-
-    def control(self, stage: int | str, name: str) -> ParamControl:
-        """The control of parameter ``name`` of stage ``stage`` (0 = first stage; "warmup" = the warmup)."""
-        return self.stages.control(stage, name)
-
     @property
     def clock(self) -> Clock:
         """How the design's ticks map onto the x axis right now."""
@@ -263,44 +201,6 @@ class ScheduleDesigner(W.VBox):
     def clock_for(self, unit: str, steps_per_epoch: int | None) -> Clock:
         """The x-axis mapping for a design on another clock (used for pins)."""
         return Clock(unit, steps_per_epoch, self.canvas.x_choice.value)
-
-    # ------------------------------------------------------------ pins, files
-    @property
-    def pins(self) -> list[Pin]:
-        """The pinned designs, oldest first."""
-        return list(self.pinned)
-
-    def pin(self, name: str | None = None) -> Pin:
-        """Pin the current design under ``name`` (drawn as a grey ghost; up to five)."""
-        return self.compare.pin(name)
-
-    def to_spec(self) -> dict:
-        """The current design as a spec dict, with its unit and steps per epoch."""
-        return specs.to_spec(self.schedule, self.unit, self.steps_per_epoch)
-
-    def save(self, path: str | os.PathLike) -> os.PathLike:
-        """Write the current design to ``path`` atomically (``schedwidget.spec.save``)."""
-        return specs.save(self.schedule, path, unit=self.unit, steps_per_epoch=self.steps_per_epoch)
-
-    def load(self, path: str | os.PathLike) -> str:
-        """Read a spec file into the editor (validated; loading never runs code)."""
-        d = specs.load_design(path)
-        with self._one_redraw():
-            self.unit = d.unit
-            if d.steps_per_epoch is not None:
-                self.steps_per_epoch = d.steps_per_epoch
-            if d.schedule.length is not None:
-                self.steps = d.schedule.length
-            self.propose(d.schedule)
-        return os.fspath(path)
-
-    @classmethod
-    def from_file(cls, path: str | os.PathLike, **kwargs: Any) -> ScheduleDesigner:
-        """A designer opened on the spec file at ``path`` (e.g. an autosave file)."""
-        d = specs.load_design(path)
-        kwargs.setdefault("unit", d.unit)
-        kwargs.setdefault("steps_per_epoch", d.steps_per_epoch)
-        return cls(d.schedule, **kwargs)
 
     # ------------------------------------------------------------ tabs, display
     def _tab_changed(self, change: dict) -> None:
@@ -311,22 +211,3 @@ class ScheduleDesigner(W.VBox):
     def _show_error(self, change: dict) -> None:
         if hasattr(self, "error_line"):
             self.error_line.value = html.escape(change["new"])
-
-    def summary(self) -> str:
-        """One line: the budget and the readout's sentence."""
-        words = f"{self.steps:,} {self.unit}s"
-        if self.steps_per_epoch and self.unit == "step":
-            words += f" ({self.steps / self.steps_per_epoch:,.4g} epochs)"
-        f = self.facts
-        return f"ScheduleDesigner · {words} · {f.sentence if f is not None else repr(self.schedule)}"
-
-    def _repr_mimebundle_(self, **kwargs: Any) -> dict:
-        data = super()._repr_mimebundle_(**kwargs) or {}
-        data["text/plain"] = self.summary()
-        try:
-            data["image/svg+xml"] = render_svg(
-                self.schedule, steps=self.steps, log=self.canvas.rate_axis.value == "log", unit=self.unit,
-                steps_per_epoch=self.steps_per_epoch, ghosts=[(p.name, p.schedule) for p in self.pinned])
-        except Exception:  # the widget still shows; only the static picture is missing
-            pass
-        return data

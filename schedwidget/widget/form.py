@@ -19,13 +19,17 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from numbers import Integral
 from typing import Any
 
 from ..combine import Restarts, Stages, Warmup, restarts, stages, warmup
 from ..schedule import Param, Schedule, ScheduleError, complain
-from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle
+from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle, cosine
 
-__all__ = ["LEAVES", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale"]
+__all__ = ["LEAVES", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale", "demo_design",
+           "whole"]
+
+DEMO_STEPS_PER_EPOCH, DEMO_EPOCHS, DEMO_BATCH = 1150, 90, 128
 
 #: Leaf shapes a stage can be, by kind (the "add stage" menu, in this order).
 LEAVES: dict[str, type[Schedule]] = {c.kind: c for c in (
@@ -218,3 +222,24 @@ def rescale(s: Schedule, budget: int, new_budget: int) -> Schedule:
     if s.length is not None:
         return s.stretch(max(1, round(s.length * new_budget / budget)))
     return s
+
+
+def demo_design() -> Schedule:
+    """The demo scenario's starting point: 5 epochs of linear warmup to 0.1, then cosine to 0 (90 x 1,150 steps).
+
+    A place to start shaping from, not a recommendation.
+
+    >>> demo_design().length
+    103500
+    """
+    spe = DEMO_STEPS_PER_EPOCH
+    return warmup(cosine(0.1, 0.0, steps=(DEMO_EPOCHS - 5) * spe), steps=5 * spe)
+
+
+def whole(owner: str, name: str, value: Any, optional: bool) -> int | None:
+    """``value`` as an int >= 1 (or None when ``optional``), else a ScheduleError naming ``owner.name``."""
+    if value is None and optional:
+        return None
+    if isinstance(value, bool) or not isinstance(value, Integral) or value < 1:
+        raise complain(owner, name, value, "a whole number >= 1" + (" or None" if optional else ""))
+    return int(value)

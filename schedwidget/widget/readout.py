@@ -7,18 +7,19 @@ as HTML (escaped) for two HTML widgets: the readout and the cautions.
 from __future__ import annotations
 
 import html
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
 
 from ..facts import Facts
+from ..svg import render_svg
 from .guard import Panel
 from .theme import AMBER
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["ReadoutPanel", "AMBER", "facts_html", "cautions_html", "when"]
+__all__ = ["ReadoutPanel", "DisplayMethods", "AMBER", "facts_html", "cautions_html", "when"]
 
 
 def when(t: int | None, f: Facts) -> str:
@@ -103,3 +104,26 @@ class ReadoutPanel(Panel, W.VBox):
             self.text.value = text
         if self.cautions.value != warn:
             self.cautions.value = warn
+
+
+class DisplayMethods:
+    """The designer's text and static picture beside the widget (a saved notebook shows them)."""
+
+    def summary(self) -> str:
+        """One line: the budget and the readout's sentence."""
+        words = f"{self.steps:,} {self.unit}s"
+        if self.steps_per_epoch and self.unit == "step":
+            words += f" ({self.steps / self.steps_per_epoch:,.4g} epochs)"
+        f = self.facts
+        return f"ScheduleDesigner · {words} · {f.sentence if f is not None else repr(self.schedule)}"
+
+    def _repr_mimebundle_(self, **kwargs: Any) -> dict:
+        data = super()._repr_mimebundle_(**kwargs) or {}
+        data["text/plain"] = self.summary()
+        try:
+            data["image/svg+xml"] = render_svg(
+                self.schedule, steps=self.steps, log=self.canvas.rate_axis.value == "log", unit=self.unit,
+                steps_per_epoch=self.steps_per_epoch, ghosts=[(p.name, p.schedule) for p in self.pinned])
+        except Exception:  # the widget still shows; only the static picture is missing
+            pass
+        return data

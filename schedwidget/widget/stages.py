@@ -18,16 +18,16 @@ import ipywidgets as W
 import numpy as np
 
 from ..combine import Restarts
-from ..schedule import ScheduleError, as_whole, complain
+from ..schedule import Schedule, ScheduleError, as_whole, complain
 from .controls import LABEL, ParamControl, put
-from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form
+from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form, rescale, whole
 from .guard import Panel, close_tree
 from .theme import BORDER
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["StagesPanel"]
+__all__ = ["StagesPanel", "BudgetMethods"]
 
 BUTTON = {"width": "2.6em", "min_width": "2.6em", "flex": "0 0 auto"}
 BOX = {"width": "14em", "flex": "0 0 auto"}
@@ -334,3 +334,40 @@ def _known(name: str, text: str) -> int | None:
 def _owner(obj: Any, c: ParamControl) -> Any:
     """The object a control's parameter lives on: the stage, or the shape a repeated stage repeats."""
     return leaf_of(obj) if getattr(c, "part", "leaf") == "leaf" else obj
+
+
+class BudgetMethods:
+    """The designer's methods that change the budget or the clock with the design (the budget row calls them)."""
+
+    def set_total(self, total: int) -> None:
+        """A new budget; the design's ticks are scaled in proportion (stage by stage, or ``stretch``)."""
+        total = whole("designer", "total", total, False)
+        if total != self.steps:
+            new = rescale(self.schedule, self.steps, total)
+            with self._one_redraw():
+                self.steps = total
+                self.propose(new)
+
+    def set_unit(self, unit: str) -> None:
+        """Change the clock; with steps per epoch known the design is converted, otherwise relabelled."""
+        self._check_unit({"value": unit})
+        if unit == self.unit or not self.steps_per_epoch:
+            self.unit = unit
+            return
+        spe = self.steps_per_epoch
+        steps = self.steps * spe if unit == "step" else max(1, round(self.steps / spe))
+        new = rescale(self.schedule, self.steps, steps)
+        with self._one_redraw():
+            self.unit, self.steps = unit, steps
+            self.propose(new)
+            self.canvas.x_choice.value = "epochs" if unit == "epoch" else "steps"
+
+    def restore(self, s: Schedule, steps: int, unit: str, steps_per_epoch: int | None) -> None:
+        """Put a design back with its budget and clock (one redraw)."""
+        with self._one_redraw():
+            self.unit, self.steps_per_epoch, self.steps = unit, steps_per_epoch, steps
+            self.propose(s)
+
+    def control(self, stage: int | str, name: str) -> ParamControl:
+        """The control of parameter ``name`` of stage ``stage`` (0 = first stage; "warmup" = the warmup)."""
+        return self.stages.control(stage, name)
