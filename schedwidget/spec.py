@@ -237,16 +237,30 @@ def _validator(kind: str | None = None) -> jsonschema.Draft202012Validator:
     return _shallow(shipped_schema_cached(), kind)
 
 
-def _problems(d: dict[str, Any]) -> list[tuple[list, str, str]]:
-    """(path, message, validator) for every schema problem, node by node, without recursion."""
+def _problems(d: dict[str, Any], plain: bool = False) -> list[tuple[list, str, str]]:
+    """(path, message, validator) for every schema problem, node by node, without recursion.
+
+    For a plain document (``plain``), a subtree the predicates accept is skipped and
+    long lists are shortened first (``_compact``), so the cost of finding the messages
+    does not grow with the size of the valid parts; the first three bad items of a
+    list are reported.
+    """
     found = [(list(e.absolute_path), e.message, e.validator) for e in _validator().iter_errors(d)]
+    table = _table() if plain else {}
     todo = [(d.get("schedule"), ["schedule"])]
     while todo:
         node, path = todo.pop()
         kind = node.get("kind") if isinstance(node, dict) else None
         if not isinstance(kind, str) or kind not in KINDS:
             continue  # reported by the parent's check of the child's kind
-        found += [(path + list(e.absolute_path), e.message, e.validator) for e in _validator(kind).iter_errors(node)]
+        if plain and kind in table and table[kind](node):
+            continue  # this node and everything below it is valid
+        shown, remap = _compact(kind, node) if plain else (node, {})
+        for e in _validator(kind).iter_errors(shown):
+            where = list(e.absolute_path)
+            if len(where) > 1 and where[0] in remap and isinstance(where[1], int):
+                where[1] = remap[where[0]][where[1]]
+            found.append((path + where, e.message, e.validator))
         for name, p in KINDS[kind].params().items():
             child = node.get(name)
             if p.kind == "schedule":
@@ -301,12 +315,18 @@ def _compile(schema: Any, table: dict[str, _Check]) -> _Check:
     if not isinstance(schema, dict):
         return _never
     checks: list[_Check] = []
+    bounds = {k: schema[k] for k in _BOUNDS if k in schema}
+    if not all(type(b) in _NUMBER for b in bounds.values()):
+        return _never
+    numeric = schema.get("type") in ("number", "integer") and bounds
+    if numeric:  # one function for the type and its bounds (the hot path of long tables)
+        checks.append(_number(_TYPES[schema["type"]], **bounds))
     for key, val in schema.items():
-        if key in _IGNORED:
+        if key in _IGNORED or (numeric and (key == "type" or key in _BOUNDS)):
             continue
         if key == "type" and isinstance(val, str) and val in _TYPES:
             checks.append(_TYPES[val])
-        elif key in ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum") and type(val) in _NUMBER:
+        elif key in _BOUNDS:
             checks.append(_bound(key, val))
         elif key in ("enum", "const"):
             allowed = val if key == "enum" else [val]
@@ -339,7 +359,46 @@ def _compile(schema: Any, table: dict[str, _Check]) -> _Check:
             return _never
     if "prefixItems" in schema and "items" not in schema:
         return _never
-    return lambda v: all(f(v) for f in checks)
+    return _all_of(checks)
+
+
+_BOUNDS = ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum")
+
+
+def _all_of(checks: list[_Check]) -> _Check:
+    if not checks:
+        return lambda v: True
+    if len(checks) == 1:
+        return checks[0]
+    if len(checks) == 2:
+        a, b = checks
+        return lambda v: a(v) and b(v)
+    if len(checks) == 3:
+        a, b, c = checks
+        return lambda v: a(v) and b(v) and c(v)
+
+    def every(v: Any) -> bool:
+        for f in checks:
+            if not f(v):
+                return False
+        return True
+    return every
+
+
+def _number(is_type: _Check, minimum: float | None = None, maximum: float | None = None,
+            exclusiveMinimum: float | None = None, exclusiveMaximum: float | None = None) -> _Check:  # noqa: N803
+    """The type test and the bounds in one function; a bound fails as in jsonschema (``v < minimum``)."""
+    def check(v: Any) -> bool:
+        if not is_type(v):
+            return False
+        if minimum is not None and v < minimum:
+            return False
+        if maximum is not None and v > maximum:
+            return False
+        if exclusiveMinimum is not None and v <= exclusiveMinimum:
+            return False
+        return exclusiveMaximum is None or v < exclusiveMaximum
+    return check
 
 
 def _bound(key: str, b: float) -> _Check:
@@ -370,6 +429,9 @@ def _properties(props: dict[str, _Check], closed: bool) -> _Check:
 
 
 def _items(prefix: list[_Check], rest: Any, table: dict[str, _Check]) -> _Check:
+    if rest is False and len(prefix) == 2:  # a (tick, rate) pair
+        p0, p1 = prefix
+        return lambda v: type(v) is not list or (len(v) <= 2 and (not v or p0(v[0])) and (len(v) < 2 or p1(v[1])))
     if rest is False:
         return lambda v: type(v) is not list or (len(v) <= len(prefix) and all(f(x) for f, x in zip(prefix, v)))
     each = _compile(rest, table)
@@ -385,8 +447,8 @@ def _node_form(kinds: list[str]) -> dict[str, Any]:
 
 
 @functools.lru_cache(maxsize=1)
-def _accepts() -> _Check:
-    """The predicate for a whole spec, compiled once from the shipped schema."""
+def _table() -> dict[str, _Check]:
+    """A predicate per definition of the shipped schema (``node`` dispatches on the kind), compiled once."""
     schema = shipped_schema_cached()
     defs = schema.get("$defs", {})
     table: dict[str, _Check] = {}
@@ -401,7 +463,58 @@ def _accepts() -> _Check:
             v["kind"] in chosen and chosen[v["kind"]](v))
     else:  # a node definition of another form: leave every spec to jsonschema
         table["node"] = _never
-    return _compile({k: v for k, v in schema.items() if k != "$defs"}, table)
+    return table
+
+
+@functools.lru_cache(maxsize=1)
+def _accepts() -> _Check:
+    """The predicate for a whole spec, compiled once from the shipped schema."""
+    return _compile({k: v for k, v in shipped_schema_cached().items() if k != "$defs"}, _table())
+
+
+@functools.lru_cache(maxsize=None)
+def _item_check(kind: str, name: str) -> _Check | None:
+    """The predicate for one item of a list parameter of ``kind`` (None when ``name`` is not such a list)."""
+    sub = shipped_schema_cached()["$defs"].get(kind, {}).get("properties", {}).get(name, {})
+    if not isinstance(sub, dict) or sub.get("type") != "array" or not isinstance(sub.get("items"), dict):
+        return None
+    if not all(isinstance(n, int) and n <= 2 for k, n in sub.items() if k == "minItems"):
+        return None
+    return _compile(sub["items"], _table())
+
+
+#: A list parameter longer than this is shortened before jsonschema reads it (see ``_compact``).
+_LONG = 16
+
+
+def _compact(kind: str, node: dict[str, Any]) -> tuple[dict[str, Any], dict[str, list[int]]]:
+    """A copy of a plain node whose long lists keep only what can produce a message, and the index maps back.
+
+    A long list whose items all pass keeps its first two (a prefix of a valid list is
+    valid: the lists' schemas have no keyword that looks at the whole list but
+    ``minItems`` <= 2); a long list with bad items keeps the first three of them (and
+    passing items up to two), and ``remap[name][j]`` is the original index of item j.
+    So jsonschema's work, and the time to a message, no longer grows with the tables.
+    """
+    out, remap = dict(node), {}
+    for name, v in node.items():
+        if type(v) is not list or len(v) <= _LONG:
+            continue
+        check = _item_check(kind, name)
+        if check is None:
+            continue
+        bad = []
+        for i, x in enumerate(v):
+            if not check(x):
+                bad.append(i)
+                if len(bad) == 3:
+                    break
+        good = [i for i in range(min(len(v), 5)) if i not in bad][:max(0, 2 - len(bad))]
+        keep = sorted(bad + good)
+        out[name] = [v[i] for i in keep]
+        if bad:
+            remap[name] = keep
+    return out, remap
 
 
 # ------------------------------------------------------------------- reading
@@ -426,7 +539,7 @@ def _parse_int(text: str) -> int | _LongInt:
     return _LongInt(digits) if digits > 310 else int(text)
 
 
-_PLAIN = frozenset((dict, list, str, int, float, bool, type(None)))
+_SCALARS = (str, float, bool, type(None))
 
 
 def _scan(d: Any) -> bool:
@@ -434,11 +547,13 @@ def _scan(d: Any) -> bool:
 
     At most MAX_DEPTH schedules (JSON objects below the top one) on any path and at
     most MAX_JSON_DEPTH nested containers, at most MAX_VALUES values, every integer
-    smaller than INT_LIMIT in magnitude.  A cycle or a shared sub-document counts as
-    the tree it unfolds to, so it ends at a limit.
+    smaller than INT_LIMIT in magnitude, object keys strings, and only JSON values
+    (dict, list, str, int, float, bool, None; subclasses of them are left to jsonschema,
+    so the result is False).  A cycle or a shared sub-document counts as the tree it
+    unfolds to, so it ends at a limit.
     """
     todo: list[tuple[Any, int, int, Any]] = [(d, 1, 0, None)]
-    seen, plain = 0, True
+    seen, plain = 1, True
 
     def path(link: Any) -> str:
         parts = []
@@ -448,35 +563,44 @@ def _scan(d: Any) -> bool:
         parts.reverse()
         return _where(parts) if len(parts) <= 12 else f"{_where(parts[:5])} ... {_where(parts[-5:])}"
 
+    def too_big(digits: str, link: Any) -> ScheduleError:
+        return ScheduleError(f"spec: {path(link)}: an integer must be smaller than 2**1024 (about 1.8e308, a "
+                             f"float's range) in magnitude, got one of {digits} digits")
+
     while todo:
         node, level, nodes, link = todo.pop()
-        seen += 1
+        is_dict = isinstance(node, dict)
+        if level > MAX_JSON_DEPTH or (is_dict and nodes > MAX_DEPTH):
+            raise ScheduleError(f"spec: nesting must be at most {MAX_DEPTH} schedules deep, got more at "
+                                f"{path(link)} (at most {MAX_JSON_DEPTH} levels of JSON objects and arrays; "
+                                "a design this deep is almost certainly generated by mistake)")
+        seen += len(node)
         if seen > MAX_VALUES:
             raise ScheduleError(f"spec: a spec must hold at most {MAX_VALUES:,} JSON values, got more "
                                 "(a design this large is almost certainly generated by mistake)")
-        t = type(node)
-        if t is dict or t is list:
-            if level > MAX_JSON_DEPTH or (t is dict and nodes > MAX_DEPTH):
-                raise ScheduleError(f"spec: nesting must be at most {MAX_DEPTH} schedules deep, got more at "
-                                    f"{path(link)} (at most {MAX_JSON_DEPTH} levels of JSON objects and arrays; "
-                                    "a design this deep is almost certainly generated by mistake)")
-            if t is dict:
-                for k, v in node.items():
-                    if type(k) is not str:
-                        plain = False
-                    todo.append((v, level + 1, nodes + 1, (link, k)))
-            else:
-                todo.extend((v, level + 1, nodes, (link, i)) for i, v in enumerate(node))
-        elif t is int:
-            if not -INT_LIMIT < node < INT_LIMIT:
-                digits = int(node.bit_length() * 0.30103) + 1
-                raise ScheduleError(f"spec: {path(link)}: an integer must be smaller than 2**1024 (about 1.8e308, "
-                                    f"a float's range) in magnitude, got one of about {digits:,} digits")
-        elif t is _LongInt:
-            raise ScheduleError(f"spec: {path(link)}: an integer must be smaller than 2**1024 (about 1.8e308, a "
-                                f"float's range) in magnitude, got one of {node.digits:,} digits")
-        elif t not in _PLAIN:
+        if type(node) is not dict and type(node) is not list:
             plain = False
+        below = nodes + 1 if is_dict else nodes
+        for key, v in (node.items() if is_dict else enumerate(node)):
+            t = type(v)
+            if t in _SCALARS:
+                pass
+            elif t is int:
+                if not -INT_LIMIT < v < INT_LIMIT:
+                    raise too_big(f"about {int(v.bit_length() * 0.30103) + 1:,}", (link, key))
+            elif isinstance(v, (dict, list)):
+                todo.append((v, level + 1, below, (link, key)))
+            elif t is _LongInt:
+                raise too_big(f"{v.digits:,}", (link, key))
+            elif isinstance(v, (str, float, int)) and not isinstance(v, bool):  # e.g. numpy.float64
+                plain = False
+                if isinstance(v, int) and not -INT_LIMIT < v < INT_LIMIT:
+                    raise too_big(f"about {int(int(v).bit_length() * 0.30103) + 1:,}", (link, key))
+            else:
+                raise ScheduleError(f"spec: {path((link, key))} must be a JSON value (an object, array, string, "
+                                    f"number, true, false or null), got a {type(v).__name__}")
+            if is_dict and type(key) is not str:
+                raise ScheduleError(f"spec: {path(link)}: object keys must be strings, got {key!r:.60}")
     return plain
 
 
@@ -491,7 +615,7 @@ def _check_schema(d: Any) -> None:
                             "(this file was written by a newer schedwidget; upgrade to read it)")
     if plain and _accepts()(d):
         return
-    errors = sorted(_problems(d), key=lambda e: (-len(e[0]), e[1]))
+    errors = sorted(_problems(d, plain), key=lambda e: (-len(e[0]), e[1]))
     useful = [e for e in errors if e[2] not in ("allOf", "if", "$ref")] or errors
     lines_all: list[str] = []
     for path, message, _ in useful:

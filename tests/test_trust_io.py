@@ -224,6 +224,53 @@ class TestValidationRoutes:
         assert from_spec(d) == cosine(0.1, steps=10)
 
 
+    def test_messages_for_long_tables_match_the_full_validation(self):
+        """Long lists are shortened before jsonschema reads them; the messages (paths, texts) stay the same."""
+        import random
+
+        rng = random.Random(90128)
+        bad_ticks = ["x", -1, 0, 1.5, None, 2 ** 60, True]
+        bad_pairs = [[1], [1, 2, 3], ["a", 0.1], [1, -0.5], 7, [1.5, 0.1]]
+        for _ in range(150):
+            at = list(range(1, rng.randint(17, 300)))
+            points = [[i * 3, 0.1] for i in range(rng.randint(17, 200))]
+            for _ in range(rng.randint(0, 3)):
+                at[rng.randrange(len(at))] = rng.choice(bad_ticks)
+                points[rng.randrange(len(points))] = json.loads(json.dumps(rng.choice(bad_pairs)))
+            node = {"kind": "stages", "parts": [{"kind": "drops", "peak": rng.choice([0.1, -1]), "at": at,
+                                                 "steps": 10 ** 6},
+                                                {"kind": "knots", "points": points, "interp": "linear"}]}
+            d = _spec(node)
+            full = sorted((tuple(p), m) for p, m, _ in spec_module._problems(d, plain=False))
+            short = sorted((tuple(p), m) for p, m, _ in spec_module._problems(d, plain=True))
+            assert short == full, (short, full)
+
+    def test_a_bad_item_in_a_long_table_is_found_fast(self):
+        """100,000 ticks and one bad one: the message names it without jsonschema reading every tick."""
+        at = list(range(1, 100_001))
+        at[76_543] = "x"
+        box = _finishes(lambda: from_spec(_spec({"kind": "drops", "peak": 0.1, "at": at, "steps": 200_000})), 30)
+        assert "schedule.at[76543]: 'x' is not of type 'integer'" in str(box.get("error")), box
+
+    @pytest.mark.parametrize("value,name", [(complex(1, 0), "complex"), (np.int64(5), "int64"), ((1, 2), "tuple"),
+                                            (np.bool_(True), "bool_?"), ({1, 2}, "set")])
+    def test_values_that_are_not_json(self, value, name):
+        """complex and Decimal made jsonschema raise TypeError / InvalidOperation; every non-JSON value is refused
+        with its path (numpy float64, a float subclass, is still read)."""
+        from decimal import Decimal
+
+        d = _spec({"kind": "poly", "peak": 0.1, "steps": value})
+        with pytest.raises(ScheduleError, match=rf"^spec: schedule.steps must be a JSON value \(an object, array, "
+                                                rf"string, number, true, false or null\), got a {name}$"):
+            from_spec(d)
+        with pytest.raises(ScheduleError, match=r"schedule.factor must be a JSON value .* got a Decimal"):
+            from_spec(_spec({"kind": "exp_decay", "peak": 0.1, "factor": Decimal("NaN")}))
+
+    def test_keys_must_be_strings(self):
+        with pytest.raises(ScheduleError, match=r"^spec: schedule: object keys must be strings, got 1$"):
+            from_spec(_spec({"kind": "flat", "lr": 0.1, 1: 2}))
+
+
 def _pick(rng, d):
     """A random (container, key) inside ``d``'s schedule tree."""
     holder, key = d, "schedule"
