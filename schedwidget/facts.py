@@ -127,6 +127,10 @@ def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tu
     so 2**53 ticks take at most 9 rounds.
     """
     a, b = grid[:-1], grid[1:]
+    _, top = s._span(np.array([0.0]), np.array([float(grid[-1])]))
+    if top[0] <= peak:  # nothing higher anywhere: only an equal peak before the grid's can be found
+        before = int(np.searchsorted(a, peak_at))
+        a, b = a[:before], b[:before]
     while a.size:
         wide = b - a > 1
         a, b = a[wide], b[wide]
