@@ -763,7 +763,12 @@ def _read(path: Any, owner: str = "load") -> Any:
 
 
 def load_design(path: str | os.PathLike) -> Design:
-    """Read a spec file into a Design (a regular file of at most MAX_SPEC_BYTES; see the module's limits)."""
+    """Read a spec file into a Design.
+
+    ``path`` is a ``str`` or ``os.PathLike`` naming a regular file of at most
+    MAX_SPEC_BYTES (16 MiB); bytes paths, file descriptors, pipes and devices are
+    refused with a ScheduleError, as is anything over the module's other limits.
+    """
     return read_design(_read(path, "load"))
 
 
