@@ -191,9 +191,11 @@ def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int,
         a, b = g[c:c + CHUNK], g[c + 1:c + CHUNK + 1]
         a = a[:b.size]
         yb = s(b)
-        low, _ = s._span(a.astype(float), b.astype(float))
+        firsts = {i: np.flatnonzero(yb <= bounds[i]) for i in todo}
+        reach = max(int(u[0]) if u.size else b.size for u in firsts.values())
+        low, _ = s._span(a[:reach].astype(float), b[:reach].astype(float))  # bounds only up to the grid hits
         for i in list(todo):
-            under = np.flatnonzero(yb <= bounds[i])
+            under = firsts[i]
             k = int(under[0]) if under.size else b.size
             got = None
             for j in np.flatnonzero((low[:k] <= bounds[i]) & (b[:k] - a[:k] > 1))[:REFINE_TRIES].tolist():
