@@ -29,7 +29,7 @@ from typing import Any, Callable
 
 import ipywidgets as W
 
-from ..schedule import Param, ScheduleError, as_whole, complain
+from ..schedule import Param, as_whole, complain
 
 __all__ = ["ParamControl", "parse_ticklist", "parse_points", "format_points"]
 
@@ -299,12 +299,3 @@ def put(widget: W.Widget, value: Any, trait: str = "value") -> None:
     """Assign only when different (so no change event goes out for nothing)."""
     if getattr(widget, trait) != value:
         setattr(widget, trait, value)
-
-
-def check_error(exc: BaseException) -> str:
-    """The words shown for a failed edit: the core's message, or the exception's type and text."""
-    if isinstance(exc, ScheduleError):
-        return str(exc)
-    if isinstance(exc, OSError):
-        return f"{type(exc).__name__}: {exc}"
-    return f"{type(exc).__name__}: {exc} (this is a bug in schedwidget; the last valid design is kept)"
