@@ -52,3 +52,16 @@ def test_no_failure(report, generator):
         pytest.fail(f"{sum(f.count for f in fails)} of {len(sub.cases)} {generator} cases failed "
                     f"(limit {LIMIT:g} s CPU per case), {len(fails)} classes; each repro assumes\n{PRELUDE}\n"
                     + sub.text_failures(limit=1200), pytrace=False)
+
+
+def test_generators_cover_every_kind():
+    """The design generator reads the registry: every registered kind, leaf or combinator, gets valid draws."""
+    import random
+
+    from schedwidget.spec import KINDS
+    from tests.fuzz.designs import COMBINATORS, LEAVES, design
+
+    assert sorted(COMBINATORS + LEAVES) == sorted(KINDS)
+    rng = random.Random(fuzz.SEED)
+    for kind in KINDS:
+        assert design(rng, depth=1, kind=kind).kind == kind

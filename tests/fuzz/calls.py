@@ -10,7 +10,6 @@ public function joins with a generic baseline.
 from __future__ import annotations
 
 import inspect
-import math
 import os
 import random
 from pathlib import Path
@@ -19,7 +18,7 @@ from typing import Any
 import numpy as np
 
 import schedwidget as sw
-from schedwidget.schedule import MAX_TICKS, Schedule
+from schedwidget.schedule import Schedule
 from schedwidget.spec import KINDS
 
 from . import atoms
@@ -62,7 +61,8 @@ def _baseline(rng: random.Random, name: str, fn: Any, folder: Path) -> tuple[lis
         ann = str(p.annotation)
         if pname in QUIET:
             continue
-        if pname in ("s", "target", "schedule") or (ann.startswith("Schedule") and p.default is inspect.Parameter.empty):
+        required = p.default is inspect.Parameter.empty
+        if pname in ("s", "target", "schedule") or (ann.startswith("Schedule") and required):
             kwargs[pname] = s
         elif pname == "base":
             kwargs[pname] = None if rng.random() < 0.6 else _valid_schedule(rng)
@@ -272,7 +272,8 @@ def factor_states(rng: random.Random, n: int) -> list[Case]:
 
         gsrc = "" if groups is None else f", groups={groups!r}"
         pick = "[0]" if groups else ""
-        repro = (f"s = {design_src(s)}\nfactor = torch_factor(s, {base_lr!r}{gsrc}){pick}\nstate = dict(factor.__dict__)\n"
+        repro = (f"s = {design_src(s)}\nfactor = torch_factor(s, {base_lr!r}{gsrc}){pick}\n"
+                 "state = dict(factor.__dict__)\n"
                  + "\n".join(lines) + "\nfactor.__dict__.update(state)  # LambdaLR.load_state_dict\n"
                  "[factor(t) for t in (0, 1, 10, 10**6, 2**53)]")
         out.append(Case("factor_states", call, repro))
@@ -376,9 +377,6 @@ def metrics(rng: random.Random, n: int, folder: Path) -> list[Case]:
                                        else f"plateau_source({src(start)}, {call})")))
     return out
 
-
-# keep flake-style linters quiet about names used only in generated repros
-_ = (math, os, MAX_TICKS)
 
 
 # ------------------------------------------------------------------ corpus

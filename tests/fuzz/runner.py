@@ -18,7 +18,6 @@ import signal
 import struct
 import sys
 import time
-import traceback
 import warnings
 from collections import Counter
 from dataclasses import dataclass, field
@@ -28,6 +27,10 @@ from schedwidget.schedule import ScheduleError
 
 from .atoms import PRELUDE
 from .checks import PHASE, Broken, check, phase
+
+#: What the checks of a returned schedule do, for repros of failures found by a check rather than by the call.
+CHECKED = ("s = the schedule; repr(s); s(t) for t in 0, 1, n-1, n, n+1, 2n, 2**53 and s(array of 4001 ticks "
+           "over [0, 2n]); exec(to_python(s)) and lr_at(t); torch_factor(s, 0.1)(t); facts(s); n = s.length")
 
 #: Seconds a case may take (the promise: every input gets its answer fast).
 LIMIT = 1.0
@@ -57,6 +60,7 @@ class Outcome:
     klass: str = ""
     message: str = ""
     cpu: float = 0.0
+    phase: str = "the call"
 
 
 class CaseTimeout(BaseException):
@@ -140,7 +144,7 @@ def run_one(i: int, case: Case) -> Outcome:
     if outcome != "failure" and cpu > LIMIT:
         outcome, klass = "failure", f"timeout > {LIMIT:g} s CPU in {PHASE[0]} (alarm not honoured)"
         message = f"{cpu:.2f} s CPU"
-    return Outcome(i, outcome, seconds, klass, message, cpu)
+    return Outcome(i, outcome, seconds, klass, message, cpu, PHASE[0])
 
 
 # ------------------------------------------------------------------ isolation
@@ -278,6 +282,7 @@ class FailureClass:
     generators: Counter = field(default_factory=Counter)
     repro: str = ""
     message: str = ""
+    phase: str = "the call"
 
 
 @dataclass
@@ -308,7 +313,7 @@ class Report:
             fc.count += 1
             fc.generators[c.generator] += 1
             if not fc.repro or len(c.repro) < len(fc.repro):
-                fc.repro, fc.message = c.repro, o.message
+                fc.repro, fc.message, fc.phase = c.repro, o.message, o.phase
         return sorted(found.values(), key=lambda f: -f.count)
 
     def text_table(self) -> str:
@@ -335,6 +340,8 @@ class Report:
         for fc in self.failures():
             gens = ", ".join(f"{g} x{n}" for g, n in fc.generators.most_common())
             repro = fc.repro if len(fc.repro) <= limit else fc.repro[:limit] + "\n# ... (cut)"
+            if fc.phase != "the call":
+                repro += f"\n# fails in the suite's check: {fc.phase} ({CHECKED})"
             parts.append(f"### {fc.klass}  ({fc.count} cases: {gens})\n"
                          + (f"{fc.message}\n" if fc.message else "") + f"```python\n{repro}\n```")
         return "\n\n".join(parts)

@@ -207,7 +207,8 @@ def m_deep(rng, spec):
     node = leaf
     for _ in range(depth):
         node = {**template, key: node}
-    repro = (f"d = {src(leaf)}\nfor _ in range({depth}):\n    d = {{**{src({k: v for k, v in template.items() if k != key})}, "
+    rest = src({k: v for k, v in template.items() if k != key})
+    repro = (f"d = {src(leaf)}\nfor _ in range({depth}):\n    d = {{**{rest}, "
              f"{key!r}: d}}\nfrom_spec({{'version': 1, 'schedule': d}})")
     return {"version": FORMAT_VERSION, "schedule": node}, repro
 
