@@ -103,6 +103,21 @@ class TestDeepAndLarge:
         assert isinstance(box.get("error"), ScheduleError), box
         assert f"a spec must hold at most {MAX_VALUES:,} JSON values" in str(box["error"])
 
+    def test_node_limit_is_the_same_for_writing_and_reading(self):
+        """MAX_NODES schedules: to_spec refuses one more, and so does the loader."""
+        from schedwidget.spec import MAX_NODES
+
+        part = {"kind": "flat", "lr": 0.1, "steps": 1}
+        d = _spec({"kind": "stages", "parts": [part] * MAX_NODES})
+        with pytest.raises(ScheduleError, match=r"^spec: a spec must hold at most 100,000 schedules, got more"):
+            from_spec(d)
+        shared = flat(0.1, steps=1)
+        for _ in range(20):  # 2**20 leaves from 21 objects: counted as the tree it writes
+            shared = shared + shared
+        with pytest.raises(ScheduleError, match=r"^to_spec: s must be at most 100,000 schedules \(the limit of spec "
+                                                r"files\), got 'a design of more than 100,000 schedules'"):
+            to_spec(shared)
+
     @pytest.mark.parametrize("digits", [400, 5000, 100_000])
     def test_huge_integer_in_a_file(self, tmp_path, digits):
         """5,000 digits exceeded Python's int conversion limit (ValueError); 400 overflowed a float."""
