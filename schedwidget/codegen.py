@@ -19,7 +19,7 @@ from typing import Callable
 import numpy as np
 
 from .combine import Stretch
-from .schedule import Schedule, ScheduleError, complain
+from .schedule import MAX_TICKS, Schedule, ScheduleError, complain
 
 __all__ = ["check_name", "function_source", "UNITS"]
 
@@ -377,7 +377,8 @@ def _peak(s: Schedule, n: int) -> tuple[float, int, bool]:
 
 def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
     n = s.length
-    span = n if n is not None else max([10_000] + [2 * c.length for c in s.walk() if c.length is not None])
+    # an open-ended design is described over twice its longest part (at most 2**53 ticks, the longest clock)
+    span = n if n is not None else min(MAX_TICKS, max([10_000] + [2 * c.length for c in s.walk() if c.length is not None]))
     peak, peak_at, exact = _peak(s, span)
     per = ("one tick is one optimizer update: call scheduler.step() after every optimizer.step()"
            if unit == "step" else "one tick is one epoch: call scheduler.step() once after each epoch")

@@ -121,8 +121,14 @@ class Stages(Schedule):
                 if cut[i + 1] > cut[i]:
                     flat_out[cut[i]:cut[i + 1]] = part._held(flat_u[cut[i]:cut[i + 1]] - starts[i])
             return out
-        # any order: group the ticks by stage once (a sort, not one mask per stage), then one call per stage
         idx = np.searchsorted(starts, flat_u, side="right") - 1
+        if len(self.parts) <= 8:  # a few stages: one mask each is cheaper than a sort
+            for i, part in enumerate(self.parts):
+                mask = idx == i
+                if mask.any():
+                    flat_out[mask] = part._held(flat_u[mask] - starts[i])
+            return out
+        # many stages: group the ticks by stage once (a sort, not one mask per stage), then one call per stage
         order = np.argsort(idx, kind="stable")
         cut = np.searchsorted(idx[order], np.arange(len(self.parts) + 1), side="left")
         for i in np.flatnonzero(cut[1:] > cut[:-1]):

@@ -148,6 +148,22 @@ class TestBoundedWork:
         assert self.leaf_calls(monkeypatch, s, [0.0], [float(s.length)]) <= 2 + 499
 
 
+class TestExportsOfLongDesigns:
+    """Valid designs near the 2**53 clock limit export, and their functions agree with the core."""
+
+    @pytest.mark.parametrize("s", [
+        sw.flat(0.1, steps=2**52 + 1) >> sw.flat(0.01),  # issue 10: refused (described over 2**53 + 2 ticks)
+        sw.restarts(sw.cosine(0.1, steps=2**52), growth=0.5),
+        sw.restarts(sw.cosine(0.1, steps=2**40), cycles=2**40, growth=0.99),
+        sw.restarts(sw.cosine(0.1, steps=1), growth=1.01),
+    ], ids=["two-stages", "shrinking-open", "shrinking-2**40", "growing-open"])
+    def test_exports(self, s):
+        fn = generated(s)
+        n = s.length or 2**53
+        for t in (0, n // 3, n - 1, n, 2**53):
+            assert rate_ok(fn(t)) and fn(t) == pytest.approx(s(t), rel=1e-12, abs=0)
+
+
 class TestCallInputs:
     """``s(t)`` gives a value or a ScheduleError for anything passed as ``t``, never another exception."""
 
@@ -175,3 +191,55 @@ class TestCallInputs:
 
     def test_an_unmasked_masked_array_reads_its_data(self):
         assert np.array_equal(self.s(np.ma.array([1, 12])), self.s(np.array([1, 12])))
+
+
+# ------------------------------------------------------------------ seeded random designs
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from tests.strategies import any_schedule, schedules  # noqa: E402
+
+SEEDED = settings(max_examples=120, deadline=None, derandomize=True, database=None,
+                  suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+HUGE = st.one_of(st.integers(1, 2**53), st.sampled_from([2**53, 2**53 - 1, 2**52 + 1, 10**12, 100000006, 133333335]))
+
+
+def probe_ticks(s) -> list[int]:
+    """The first tick, the last tick, the end, just past it and the largest tick."""
+    n = s.length
+    if n is None:
+        return [0, 1, 10**6, 2**52 + 1, 2**53]
+    return sorted({0, max(n - 1, 0), n, n + 1, min(2 * n + 7, 2**53), 2**53})
+
+
+def assert_rates(s, ticks) -> None:
+    """Core and generated function give finite rates >= 0, and agree to a few ulps (power/cos may differ by one)."""
+    core = s(np.array(ticks))
+    assert np.all(np.isfinite(core)) and np.all(core >= 0), (s, ticks, core)
+    fn = generated(s)
+    for t, c in zip(ticks, core):
+        y = fn(t)
+        assert rate_ok(y), (s, t, y)
+        assert y == pytest.approx(c, rel=1e-9, abs=1e-300), (s, t, y, c)
+
+
+@SEEDED
+@given(any_schedule)
+def test_random_designs_at_the_end_and_beyond(s):
+    assert_rates(s, probe_ticks(s))
+
+
+@SEEDED
+@given(schedules, HUGE)
+def test_random_designs_stretched_to_huge_budgets(s, steps):
+    big = s.stretch(steps)
+    assert_rates(big, probe_ticks(big))
+
+
+@SEEDED
+@given(schedules, HUGE, st.integers(1, 3))
+def test_random_designs_in_huge_stages_and_restarts(s, steps, cycles):
+    # a huge first stage moves every later clock far from 0; restarts read the design on a rescaled clock
+    head = sw.flat(0.01, steps=min(steps, 2**53 - (s.length or 0) - 1) or 1)
+    for design in (head >> s, sw.restarts(s.stretch(max(1, steps // 4)), cycles=cycles)):
+        assert_rates(design, probe_ticks(design))
