@@ -122,7 +122,7 @@ class Stages(Schedule):
                     flat_out[cut[i]:cut[i + 1]] = part._held(flat_u[cut[i]:cut[i + 1]] - starts[i])
             return out
         idx = np.searchsorted(starts, flat_u, side="right") - 1
-        if len(self.parts) <= 8:  # a few stages: one mask each is cheaper than a sort
+        if len(self.parts) <= 24:  # a few stages: one mask each is cheaper than a sort (they cross near 30)
             for i, part in enumerate(self.parts):
                 mask = idx == i
                 if mask.any():
