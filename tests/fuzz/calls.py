@@ -23,7 +23,7 @@ from schedwidget.spec import KINDS
 
 from . import atoms
 from .atoms import atom, design_src, src
-from .checks import Broken, check_factor, rate, rates
+from .checks import Broken, check, check_factor, rate, rates, run_source
 from .designs import design
 from .runner import Case
 
@@ -147,7 +147,12 @@ def factories(rng: random.Random, n: int, folder: Path) -> list[Case]:
         elif args and rng.random() < 0.5:
             args[rng.randrange(len(args))] = rng.choice(atoms.ANY)()
         call = ", ".join([src(a) for a in args] + [f"{k}={src(v)}" for k, v in kwargs.items()])
-        out.append(Case("factories", (lambda fn=fn, a=args, k=kwargs: fn(*a, **k)), f"{name}({call})"))
+        chk = check
+        if name == "to_python":  # the text must run and its function give clean rates, whatever the name
+            chk = run_source("function", kwargs.get("name", "lr_at"))
+        elif name == "plateau_source":
+            chk = run_source("plateau", kwargs.get("name", "PlateauRate"))
+        out.append(Case("factories", (lambda fn=fn, a=args, k=kwargs: fn(*a, **k)), f"{name}({call})", chk))
     return out
 
 
@@ -374,7 +379,8 @@ def metrics(rng: random.Random, n: int, folder: Path) -> list[Case]:
             out.append(Case("metrics", (lambda fn=fn, a=a, st=start, k=kwargs: fn(a(), st, **k) if fn is
                                         sw.replay_plateau else fn(st, **k)),
                             (f"replay_plateau({a.source}, {src(start)}, {call})" if route == 3
-                                       else f"plateau_source({src(start)}, {call})")))
+                             else f"plateau_source({src(start)}, {call})"),
+                            check if route == 3 else run_source("plateau", "PlateauRate")))
     return out
 
 

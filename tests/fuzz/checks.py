@@ -137,6 +137,30 @@ def check_factor(route: str, factor: Any, ticks=(0, 1, 10, 10 ** 6, MAX_TICKS)) 
         rate(route, factor(t), f"t={t}")
 
 
+def run_source(kind: str, name: str):
+    """A check for generated source: it compiles, runs, and what it defines gives clean rates.
+
+    ``kind`` is "function" (``to_python``: ``name(t)`` at a few ticks) or
+    "plateau" (``plateau_source``: ``name().update(metric)`` a few times).
+    """
+    def run(text: Any) -> None:
+        check(text)
+        if not isinstance(text, str):
+            return
+        phase(f"running the generated source of {kind}")
+        ns: dict[str, Any] = {}
+        exec(compile(text, "<generated>", "exec"), ns)
+        if kind == "function":
+            for t in (0, 1, 10, 10 ** 6):
+                rate(f"generated {kind} {name}(t)", ns[name](t), f"t={t}")
+        else:
+            rule = ns[name]()
+            rate(f"generated {name}().rate", rule.rate, "the start")
+            for i, m in enumerate((0.5, 0.5, 0.5, 0.5, 0.6, 0.4)):
+                rate(f"generated {name}().update(m)", rule.update(m), f"update {i}")
+    return run
+
+
 def check_with_facts(result: Any) -> None:
     """``check``, and for a schedule also its readout (``facts``: describing a design is bounded too)."""
     if isinstance(result, Schedule):

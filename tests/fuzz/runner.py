@@ -172,6 +172,7 @@ def _child(cases: list[Case], start: int, fd: int, cwd) -> None:
 
 
 def _read_exact(fd: int, n: int, deadline: float) -> bytes | None:
+    """``n`` bytes from the pipe; ``None`` when the deadline passes, ``b""`` when the child is gone."""
     buf = b""
     while len(buf) < n:
         left = deadline - time.monotonic()
@@ -182,7 +183,7 @@ def _read_exact(fd: int, n: int, deadline: float) -> bytes | None:
             return None
         chunk = os.read(fd, n - len(buf))
         if not chunk:
-            return None
+            return b""
         buf += chunk
     return buf
 
@@ -245,12 +246,14 @@ def run_cases(cases: list[Case], isolate: bool = True, progress: Callable[[int],
             finally:
                 os._exit(code)
         os.close(w)
+        hung = False
         try:
             while start < len(cases):
                 head = _read_exact(r, 4, time.monotonic() + HARD_LIMIT)
-                body = None if head is None else _read_exact(r, struct.unpack("<I", head)[0],
-                                                               time.monotonic() + HARD_LIMIT)
-                if body is None:
+                body = head if not head else _read_exact(r, struct.unpack("<I", head)[0],
+                                                         time.monotonic() + HARD_LIMIT)
+                if not body:
+                    hung = body is None
                     break
                 out = pickle.loads(body)
                 results.append(out)
@@ -265,9 +268,11 @@ def run_cases(cases: list[Case], isolate: bool = True, progress: Callable[[int],
                 pass
             _, status = os.waitpid(pid, 0)
         if start < len(cases):  # the case in flight hung past the alarm or killed its process
-            why = (f"killed by signal {os.WTERMSIG(status)}" if os.WIFSIGNALED(status) and
-                   os.WTERMSIG(status) != signal.SIGKILL else f"no answer in {HARD_LIMIT:g} s (alarm not honoured)")
-            if os.WIFEXITED(status):
+            if hung:
+                why = f"no answer in {HARD_LIMIT:g} s wall clock (waiting without computing, or stuck in C code)"
+            elif os.WIFSIGNALED(status):
+                why = f"the process was killed by signal {os.WTERMSIG(status)}"
+            else:
                 why = f"the process exited with status {os.WEXITSTATUS(status)}"
             results.append(Outcome(start, "failure", HARD_LIMIT, f"hang or crash: {why}", ""))
             start += 1
