@@ -131,7 +131,8 @@ class _Writer:
         if n is None or (bound is not None and bound <= n):
             return u, bound
         v = self.fresh("u")
-        self.put(ind, f"{v} = min({u}, {_f(n)})")
+        # a conditional costs less than a min() call, and the factor runs once per training step
+        self.put(ind, f"{v} = {u} if {u} < {_f(n)} else {_f(n)}")
         return v, float(n)
 
     def clock(self, expr: str, ind: int) -> str:
@@ -284,8 +285,13 @@ class _Writer:
         inner = s.target.target if isinstance(s.target, Stretch) else s.target
         Li = float(inner.length)
         local = self.clock(f"(({u} - {start}) * {_f(Li)}) / {ln}", ind)
-        # held as in the core: ((u - start) * Li) / span rounds twice and can pass Li by an ulp even inside the cycle
-        v, pb = self.held(inner, local, None, ind)
+        # Held as in the core, unless it provably cannot pass Li: inside a cycle u - start <= span, and when
+        # span * Li is exact (<= 2**53) rounding is monotone, so ((u - start) * Li) / span <= (span * Li) / span = Li.
+        # Otherwise the two roundings can pass Li by an ulp (a poly there gives a complex number).
+        within = s.cycles is None or (bound is not None and s.length is not None and bound <= s.length)
+        widest = L if s.growth <= 1.0 else (math.inf if s.length is None else float(s.length))
+        exact = widest * Li <= MAX_TICKS
+        v, pb = self.held(inner, local, Li if within and exact else None, ind)
         e = self.value(inner, v, pb, ind)
         self.put(ind, sink(e if s.peak_decay == 1.0 else f"{e} * {_f(s.peak_decay)} ** {k}"))
 
