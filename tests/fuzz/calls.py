@@ -454,3 +454,59 @@ def corpus(rng: random.Random, n: int) -> list[Case]:
     ns = _namespace()
     return [Case("corpus", (lambda text=text: eval(text, ns)), text)  # noqa: S307 - our own constant text
             for text in CORPUS]
+
+
+# ------------------------------------------------------------------ command line
+def _cli_call(argv: list[str]):
+    """Run ``python -m schedwidget`` in-process; exit 1 with one clean line counts as a refusal (ScheduleError)."""
+    def call():
+        import contextlib
+        import io
+
+        from schedwidget.__main__ import main
+
+        out, err = io.StringIO(), io.StringIO()
+        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+            code = main(argv)
+        text = err.getvalue()
+        if "Traceback" in text or "internal error" in text:
+            raise Broken("python -m schedwidget", "traceback or internal error on stderr", text.strip()[-200:])
+        if code == 1:
+            if text.count("\n") != 1:
+                raise Broken("python -m schedwidget", "exit 1 without exactly one line on stderr", repr(text[-200:]))
+            raise sw.ScheduleError(text.strip())  # the command's refusal: one line, exit code 1
+        if code != 0:
+            raise Broken("python -m schedwidget", f"exit code {code}", text.strip()[-200:])
+        return None
+    return call
+
+
+def cli(rng: random.Random, n: int, folder: Path) -> list[Case]:
+    """The command line on hostile spec files, devices, pipes and arguments; never a traceback."""
+    if not (folder / "fifo").exists():
+        os.mkfifo(folder / "fifo")
+    good = folder / "cli_good.json"
+    sw.save(design(rng, depth=1), good)
+    files = sorted(str(p) for p in folder.glob("spec_*.json"))[:60] + [str(good)] * 10 + [
+        str(folder / "fifo"), "/dev/zero", "/dev/null", str(folder), str(folder / "missing.json"), "-", ""]
+    out = []
+    for _ in range(n):
+        spec = rng.choice(files)
+        command = rng.choice(["show", "check", "export python", "export torch", "schema", "bogus"])
+        argv = command.split()[:1] + ([] if command == "schema" else [spec])
+        if command.startswith("export"):
+            argv += ["--to", command.split()[1]]
+            if rng.random() < 0.5:
+                argv += ["--name", rng.choice(["lr_at", "self", "t", "__x", "_x", "class", "x" * 5000, "é", ""])]
+            if rng.random() < 0.5:
+                argv += ["--base-lr", rng.choice(["0.1", "nan", "inf", "-1", "1e400", "0", "x", "1" * 5000])]
+            if rng.random() < 0.3:
+                argv += ["--groups", rng.choice(["1,0.1", "nan,1", ",", "1e400", "-1", "1" * 5000])]
+            if rng.random() < 0.3:
+                argv += ["-o", rng.choice(["out.py", "missing/out.py", ".", "x" * 300])]
+        if command == "check" and rng.random() < 0.7:
+            argv += ["--steps", rng.choice(["100", "0", "-1", "2**53", "9" * 25, "1_000", "nan", "9007199254740993"])]
+        if rng.random() < 0.05:
+            argv += [rng.choice(["--help", "--bogus", "-o"])]
+        out.append(Case("cli", _cli_call(argv), f"from schedwidget.__main__ import main\nmain({argv!r})"))
+    return out
