@@ -34,6 +34,13 @@ TAKEN = frozenset({"math", "bisect", "t", "u"}) | frozenset(dir(builtins))
 CHAIN_MAX = 8
 #: Most restart cycles written out as a table for an unbounded clock (later cycles are found by a loop).
 CYCLE_TABLE_MAX = 1024
+#: Most entries in one table of generated source (knots points, drops ticks): its compile time grows with it
+#: (65,536 knots: about 0.2 s to write and 0.4 s to compile here).  Shrinking restarts tables stay far below
+#: (a cycle table ends where cycles reach one tick: at most about 3,700 cycles with growth >= 0.5 and <= 0.99).
+TABLE_MAX = 2 ** 16
+TABLE_OWNERS = {"at": ("drops", "at"), "level": ("drops", "at"), "xs": ("knots", "points"),
+                "ys": ("knots", "points"), "slope": ("knots", "points"), "starts": ("restarts", "cycles"),
+                "spans": ("restarts", "cycles")}
 UNITS = ("step", "epoch")
 
 
@@ -97,6 +104,12 @@ class _Writer:
         self.lines.append("    " * ind + text)
 
     def table(self, ind: int, stem: str, values) -> str:
+        if len(values) > TABLE_MAX:
+            owner, what = TABLE_OWNERS[stem]
+            raise complain(owner, what, f"{len(values):,} entries", f"at most {TABLE_MAX:,} entries to be written "
+                           "as source (to_python, torch_factor, to_torch)",
+                           "generated code keeps them in one table, compiled on every import; the design itself "
+                           "evaluates any length in schedwidget")
         name = self.fresh(stem)
         body = ", ".join(_f(v) for v in values) + ("," if len(values) == 1 else "")
         wrapped = textwrap.wrap(body, 96 - 4 * ind, break_on_hyphens=False)
@@ -143,15 +156,29 @@ class _Writer:
         return v
 
     def chain(self, u: str, ind: int, cuts, branch: Callable[[int, int], None]) -> None:
-        """``if u < cuts[0]: branch 0 / elif u < cuts[1]: branch 1 ... / else: branch len(cuts)``."""
-        if not cuts:
-            branch(0, ind)
-            return
-        for i, c in enumerate(cuts):
-            self.put(ind, f"{'if' if i == 0 else 'elif'} {u} < {_f(c)}:")
-            branch(i, ind + 1)
-        self.put(ind, "else:")
-        branch(len(cuts), ind + 1)
+        """``if u < cuts[0]: branch 0 / elif u < cuts[1]: branch 1 ... / else: branch len(cuts)``.
+
+        Past CHAIN_MAX cuts the chain becomes a balanced tree of ``if``/``else`` halves (an ``elif`` chain of
+        thousands of stages nests too deep for Python's compiler), so a branch is found in log2(len(cuts)) tests.
+        """
+        def tree(lo: int, hi: int, j: int) -> None:  # branches lo..hi, separated by cuts[lo:hi]
+            if hi - lo <= CHAIN_MAX:
+                if hi == lo:
+                    branch(lo, j)
+                    return
+                for i in range(lo, hi):
+                    self.put(j, f"{'if' if i == lo else 'elif'} {u} < {_f(cuts[i])}:")
+                    branch(i, j + 1)
+                self.put(j, "else:")
+                branch(hi, j + 1)
+                return
+            mid = (lo + hi + 1) // 2  # the first branch of the upper half
+            self.put(j, f"if {u} < {_f(cuts[mid - 1])}:")
+            tree(lo, mid - 1, j + 1)
+            self.put(j, "else:")
+            tree(mid, hi, j + 1)
+
+        tree(0, len(cuts), ind)
 
     # ---------------------------------------------------------------- leaves
     def _flat(self, s, u, bound, ind, sink):

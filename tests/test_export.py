@@ -378,3 +378,22 @@ class TestReviewedRestartRounding:
         exec(to_python(s), ns)  # noqa: S102 - our own generated source
         t = np.arange(0, 5000)
         np.testing.assert_allclose([ns["lr_at"](int(k)) for k in t], s(t), rtol=1e-12, atol=1e-15)
+
+
+class TestBoundedSource:
+    """Generated source compiles for wide designs, and its tables have a stated limit (issue 10)."""
+
+    @pytest.mark.parametrize("count", [9, 10, 17, 3000])
+    def test_wide_stages_compile_and_agree(self, count):
+        """Thousands of stages: a balanced tree of halves, not an elif chain too deep for Python's compiler."""
+        from schedwidget import cosine, flat, stages
+        s = stages(*[flat(0.1 + i * 1e-4, steps=1 + i % 3) for i in range(count)], cosine(0.1, steps=5))
+        fn, _ = compile_fresh(to_python(s))
+        t = np.arange(s.length + 3)
+        assert [fn(int(k)) for k in t] == s(t).tolist()
+
+    def test_a_table_past_the_limit_is_refused_with_it(self):
+        """A knots table of 70,000 points would take seconds to compile: refused, naming the limit."""
+        from schedwidget import knots
+        with pytest.raises(ScheduleError, match=r"knots: points must be at most 65,536 entries to be written as source"):
+            to_python(knots([(i, 0.1) for i in range(70_000)]))
