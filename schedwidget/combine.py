@@ -411,7 +411,8 @@ class Restarts(Schedule):
         # whole cycles strictly between: their full range, largest at ka+1, smallest at kb-1
         full_lo, full_hi = los[-1:], his[-1:]
         between = kb - ka >= 2
-        lo = np.where(between, np.minimum(lo, full_lo[0] * np.power(self.peak_decay, kb - 1)), lo)
+        # kb - 1 >= 0 only where between: keep it >= 0 everywhere (peak_decay ** -1 overflows for a tiny decay)
+        lo = np.where(between, np.minimum(lo, full_lo[0] * np.power(self.peak_decay, np.maximum(kb - 1, 0))), lo)
         hi = np.where(between, np.maximum(hi, full_hi[0] * np.power(self.peak_decay, ka + 1)), hi)
         return lo.reshape(shape), hi.reshape(shape)
 

@@ -243,3 +243,13 @@ def test_random_designs_in_huge_stages_and_restarts(s, steps, cycles):
     head = sw.flat(0.01, steps=min(steps, 2**53 - (s.length or 0) - 1) or 1)
     for design in (head >> s, sw.restarts(s.stretch(max(1, steps // 4)), cycles=cycles)):
         assert_rates(design, probe_ticks(design))
+
+
+def test_a_tiny_peak_decay_has_finite_bounds():
+    """Fuzz finding: peak_decay 5e-324 overflowed in the bounds (peak_decay ** -1 where no cycle lies between)."""
+    s = sw.restarts(sw.stages(sw.flat(0.0877, steps=64665), sw.inv_sqrt(6.88e-05, warmup=18, steps=21)),
+                    cycles=16, growth=1.6089051344438061, peak_decay=5e-324)
+    a = np.linspace(0.0, float(s.length), 50)
+    lo, hi = s._span(a[:-1], a[1:])
+    assert np.all(np.isfinite(lo)) and np.all(np.isfinite(hi)) and np.all(lo <= hi)
+    assert rate_ok(generated(s)(s.length))
