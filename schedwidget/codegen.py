@@ -446,7 +446,13 @@ def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch:
     w.put(1, "if t < 0:")
     first = "the first update" if unit == "step" else "the first epoch"
     w.put(2, f"raise ValueError(f'{name}: t must be >= 0 (t = 0 is {first}), got {{t!r}}')")
-    w.put(1, "u = float(t)" if n is None else f"u = float(t) if t < {int(n)} else {_f(n)}  # past the end the rate holds")
+    if n is None:  # as the core: above 2**53 ticks are not exact on a float clock (and 10**400 is no float at all)
+        w.put(1, f"if t > {MAX_TICKS}:")
+        w.put(2, f"raise ValueError(f'{name}: t must be <= 2**53 (above that, ticks are not exact on a float clock), "
+                 "got {t!r}')")
+        w.put(1, "u = float(t)")
+    else:
+        w.put(1, f"u = float(t) if t < {int(n)} else {_f(n)}  # past the end the rate holds")
     w.emit(s, "u", None if n is None else float(n), 1, lambda e: f"return {e}")
     head = [f"def {name}(t):"]
     if doc:

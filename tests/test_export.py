@@ -397,3 +397,13 @@ class TestBoundedSource:
         from schedwidget import knots
         with pytest.raises(ScheduleError, match=r"knots: points must be at most 65,536 entries to be written as source"):
             to_python(knots([(i, 0.1) for i in range(70_000)]))
+
+    def test_an_open_ended_function_refuses_ticks_past_2_53(self):
+        """Like the core: float(10**400) would raise OverflowError, and past 2**53 ticks are not exact."""
+        from schedwidget import cosine, flat
+        s = cosine(0.1, steps=10) >> flat(0.01)
+        fn, _ = compile_fresh(to_python(s))
+        assert fn(2**53) == s(2**53) == 0.01
+        for t in (2**53 + 1, 10**400):
+            with pytest.raises(ValueError, match=r"lr_at: t must be <= 2\*\*53"):
+                fn(t)
