@@ -175,3 +175,57 @@ class TestScaleForBatch:
         with pytest.raises(ScheduleError, match=r"an open-ended design has no budget to rescale; use keep='steps'"):
             scale_for_batch(exp_decay(0.1, 0.9), 128, 1024)
         assert scale_for_batch(exp_decay(0.1, 0.9), 128, 1024, keep="steps")(0) == pytest.approx(0.8)
+
+
+class TestTypedLengthsAndRates:
+    """Lengths and rates as a person types them (issue 13): documented results, or a message naming the box."""
+
+    def test_epochs_steps_and_shares(self):
+        from schedwidget.budget import parse_length
+        assert parse_length("3 ep", "step", 1150) == 3450
+        assert parse_length("3 epochs", "step", 1150, 103_500) == 3450
+        assert parse_length("6 %", "step", 1150, 103_500) == 6210
+        assert parse_length("6%", "epoch", None, 90) == 6            # 5.4 epochs round up
+        assert parse_length("0.5 ep", "step", 1151) == 576            # 575.5 rounds up
+        assert parse_length("3,450", "step") == 3450 and parse_length(3450, "step") == 3450
+        assert parse_length("1725 steps", "epoch", 1150) == 2         # 1.5 epochs round up
+        assert parse_length("3 ep", "epoch") == 3
+
+    @pytest.mark.parametrize("text", ["3 epochs", "garbage", "0.06", "-3", "3 parsecs", "", "1e400", "x" * 500])
+    def test_refusals_name_the_box_and_the_forms(self, text):
+        from schedwidget.budget import parse_length
+        with pytest.raises(ScheduleError) as err:
+            parse_length(text, "step", None, None, owner="warmup", name="steps")
+        msg = str(err.value)
+        assert msg.startswith("warmup: steps must be")
+        assert "epochs" in msg or "share" in msg or "steps" in msg
+
+    def test_epochs_without_steps_per_epoch_are_refused_not_coerced(self):
+        from schedwidget.budget import parse_length
+        with pytest.raises(ScheduleError, match="steps per epoch are unknown"):
+            parse_length("3 epochs", "step", None)
+        with pytest.raises(ScheduleError, match="share needs"):
+            parse_length("6 %", "step", 1150, None)
+        with pytest.raises(ScheduleError, match="between 0 % and 100 %"):
+            parse_length("150 %", "step", 1150, 1000)
+
+    def test_rates_as_share_of_peak(self):
+        from schedwidget.budget import parse_rate
+        assert parse_rate("1 %", 3e-4) == pytest.approx(3e-6, rel=1e-12)
+        assert parse_rate("1 % of peak", 3e-4) == pytest.approx(3e-6, rel=1e-12)
+        assert parse_rate("3e-4") == 3e-4 and parse_rate(0.1) == 0.1
+        for bad in ("fast", "1 %%", "e"):
+            with pytest.raises(ScheduleError, match="share of the peak"):
+                parse_rate(bad, 0.1, owner="cosine", name="floor")
+
+    def test_absorb_keeps_the_total(self):
+        from schedwidget.budget import absorb
+        assert absorb([1000, 500, 98_000], 103_500, 2) == [1000, 500, 102_000]
+        with pytest.raises(ScheduleError, match="fills the rest"):
+            absorb([103_500, 10], 103_500, 1)
+
+    def test_length_words(self):
+        from schedwidget.budget import length_words
+        assert length_words(3450, "step", 1150, 103_500) == "= 3 epochs · 3.3 % of the run"
+        assert length_words(3, "epoch", 1150, 90) == "= 3,450 steps · 3.3 % of the run"
+        assert length_words(7, "step") == ""
