@@ -65,3 +65,34 @@ def test_generators_cover_every_kind():
     rng = random.Random(fuzz.SEED)
     for kind in KINDS:
         assert design(rng, depth=1, kind=kind).kind == kind
+
+
+def test_checks_can_fail(monkeypatch):
+    """The checks catch an export that disagrees with the core, and a NaN, negative or complex rate."""
+    import schedwidget as sw
+    from tests.fuzz.checks import Broken, check_schedule, rate
+
+    s = sw.cosine(0.1, steps=100)
+    check_schedule(s, facts=True)
+    monkeypatch.setattr(sw, "to_python", lambda s: "def lr_at(t):\n    return 0.1\n")
+    with pytest.raises(Broken, match="generated lr_at.*differs from the core"):
+        check_schedule(s)
+    for bad, what in ((float("nan"), "nan"), (-1e-17, "negative"), (1j, "returned complex"), (float("inf"), "inf")):
+        with pytest.raises(Broken, match=what):
+            rate("route", bad, "t=0")
+
+
+def test_runner_classifies_outcomes():
+    """A value, a ScheduleError, another exception and a CPU hog each get their own outcome."""
+    import schedwidget as sw
+    from tests.fuzz.runner import Case, run_cases
+
+    def hog():
+        while True:
+            pass
+
+    cases = [Case("t", lambda: sw.flat(0.1), "flat(0.1)"), Case("t", lambda: sw.flat(-1.0), "flat(-1.0)"),
+             Case("t", lambda: [][1], "[][1]"), Case("t", hog, "hog()")]
+    out = run_cases(cases)
+    assert [o.outcome for o in out] == ["value", "ScheduleError", "failure", "failure"]
+    assert out[2].klass.startswith("IndexError") and out[3].klass.startswith("timeout")

@@ -82,14 +82,23 @@ def rates(route: str, arr: Any, shape: tuple[int, ...] | None, where: str) -> No
         raise Broken(route, "negative", f"{arr.flat[i]!r} at entry {i} of {where}")
 
 
+#: Exports equal the core "up to the last bit of a library cos/exp/pow" (codegen's promise); this much is allowed.
+AGREE_RTOL = 1e-9
+
+
+def agree(route: str, v: float, core: float, t: int) -> None:
+    """An exported rate equals the core's rate at the same tick (a silent wrong rate is the worst failure)."""
+    if abs(v - core) > AGREE_RTOL * max(abs(v), abs(core)) and abs(v - core) > 1e-300:
+        raise Broken(route, "differs from the core s(t)", f"{v!r} vs s({t}) = {core!r}")
+
+
 def check_schedule(s: Schedule, facts: bool = False) -> None:
     """The core at scalar ticks and on a large array, the generated function, the factor (and the readout)."""
     phase("repr(s)")
     repr(s)  # a design always prints (as Python that rebuilds it)
     phase("core s(t)")
     scalars, arr = ticks_for(s)
-    for t in scalars:
-        rate("core s(t)", s(t), f"t={t}")
+    core = {t: rate("core s(t)", s(t), f"t={t}") for t in scalars}
     rates("core s(array)", s(arr), arr.shape, f"an array of {arr.size} ticks up to {int(arr[-1])}")
     rates("core s(array), unsorted", s(arr[::-37]), arr[::-37].shape, "ticks in falling order")
     phase("to_python(s)")
@@ -109,7 +118,7 @@ def check_schedule(s: Schedule, facts: bool = False) -> None:
         exec(code, ns)
         fn = ns["lr_at"]
         for t in scalars:
-            rate("generated lr_at(t)", fn(t), f"t={t}")
+            agree("generated lr_at(t)", rate("generated lr_at(t)", fn(t), f"t={t}"), core[t], t)
     phase("torch_factor(s, 0.1) and its calls")
     try:
         factor = sw.torch_factor(s, 0.1)
@@ -117,7 +126,8 @@ def check_schedule(s: Schedule, facts: bool = False) -> None:
         factor = None
     if factor is not None:
         for t in scalars:
-            rate("torch_factor(s, 0.1)(t)", factor(t), f"t={t}")
+            agree("torch_factor(s, 0.1)(t) * 0.1", rate("torch_factor(s, 0.1)(t)", factor(t), f"t={t}") * 0.1,
+                  core[t], t)
     if facts:
         phase("facts(s)")
         try:
