@@ -35,9 +35,9 @@ def test_enough_cases(report):
 def test_both_outcomes_seen(report):
     """Each generator of valid input yields values and each generator of bad input yields ScheduleErrors."""
     table = report.table()
-    for gen in ("valid_specs", "drawn_specs", "factories", "bad_ticks"):
+    for gen in ("valid_specs", "drawn_specs", "factories", "bad_ticks", "transforms", "cli"):
         assert table[gen]["value"] > 0, gen
-    for gen in ("mutated_specs", "spec_files", "factories", "bad_ticks", "factor_states", "metrics"):
+    for gen in ("mutated_specs", "spec_files", "factories", "bad_ticks", "factor_states", "metrics", "cli"):
         assert table[gen]["ScheduleError"] > 0, gen
 
 

@@ -17,6 +17,7 @@ Generators (each reusable on its own):
 * ``bad_ticks``     ``s(t)`` with 0-d, ragged, object, str, complex, bool, masked, huge and float ticks;
 * ``factor_states`` RateFactor states with corrupted fields, loaded the way LambdaLR does;
 * ``metrics``       read_metric / replay_plateau / plateau_source with hostile CSVs and histories;
+* ``transforms``    valid operations on valid designs (stretch to odd lengths, batch rescaling, +, *, >>, restarts);
 * ``cli``           ``python -m schedwidget`` on hostile files, pipes, devices and arguments (never a traceback);
 * ``corpus``        fixed inputs that broke a promise once (issue 10's examples), kept so they stay fixed.
 """
@@ -45,6 +46,7 @@ MIX = {
     "bad_ticks": 200,
     "factor_states": 160,
     "metrics": 260,
+    "transforms": 200,
     "cli": 120,
     "corpus": 0,  # every entry of calls.CORPUS, whatever the count
 }
@@ -63,6 +65,7 @@ def build(seed: int = SEED, mix: dict[str, int] | None = None, folder: Path | No
         "bad_ticks": lambda r, n: calls.bad_ticks(r, n),
         "factor_states": lambda r, n: calls.factor_states(r, n),
         "metrics": lambda r, n: calls.metrics(r, n, folder),
+        "transforms": lambda r, n: calls.transforms(r, n),
         "cli": lambda r, n: calls.cli(r, n, folder),
         "corpus": lambda r, n: calls.corpus(r, n),
     }

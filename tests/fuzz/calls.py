@@ -510,3 +510,46 @@ def cli(rng: random.Random, n: int, folder: Path) -> list[Case]:
             argv += [rng.choice(["--help", "--bogus", "-o"])]
         out.append(Case("cli", _cli_call(argv), f"from schedwidget.__main__ import main\nmain({argv!r})"))
     return out
+
+
+# ------------------------------------------------------------------ valid transforms
+def _odd_length(rng: random.Random) -> int:
+    return rng.choice([1, 2, 3, 7, 96, 97, 1000, 99_999_989, 100_000_001, 100_000_006, 2 ** 31 - 1, 2 ** 52 + 1,
+                       2 ** 53 - 1, 2 ** 53, rng.randint(1, 10 ** 6), rng.randint(1, 2 ** 53)])
+
+
+def transforms(rng: random.Random, n: int) -> list[Case]:
+    """Valid operations on valid designs: stretch to odd lengths, batch rescaling, sums, products, clips, stages.
+
+    Every result is a valid design (or a ScheduleError for a length or rate beyond the limits), so
+    every rate it gives must be finite, >= 0 and the same in the core and in the exports.
+    """
+    out = []
+    for _ in range(n):
+        a = _valid_schedule(rng, finite=True, extreme=0.15)
+        b = _valid_schedule(rng, extreme=0.15)
+        op = rng.randrange(7)
+        if op == 0:
+            k = _odd_length(rng)
+            text, call = f"a.stretch({k})", (lambda a=a, k=k: a.stretch(k))
+        elif op == 1:
+            f, t = rng.choice([1, 3, 96, 128, 256, 1000, 1024, 4096]), rng.choice([1, 3, 96, 128, 256, 1000, 1024, 4096])
+            rule, keep = rng.choice(["linear", "sqrt"]), rng.choice(["samples", "steps"])
+            text = f"scale_for_batch(a, {f}, {t}, rule={rule!r}, keep={keep!r})"
+            call = (lambda a=a, f=f, t=t, rule=rule, keep=keep: sw.scale_for_batch(a, f, t, rule=rule, keep=keep))
+        elif op == 2:
+            text, call = "a + b", (lambda a=a, b=b: a + b)
+        elif op == 3:
+            text, call = "a * b", (lambda a=a, b=b: a * b)
+        elif op == 4:
+            x = rng.choice([0.0, 1e-300, 0.5, 2.0, 1e10, 1e300, 1.7976931348623157e308])
+            text, call = f"a * {x!r}", (lambda a=a, x=x: a * x)
+        elif op == 5:
+            text, call = "a >> b", (lambda a=a, b=b: a >> b)
+        else:
+            c = rng.choice([1, 2, 3, 10, 1000, 10 ** 6])
+            g = rng.choice([1.0, 0.5, 0.99, 1.01, 2.0, 10.0])
+            text = f"restarts(a, cycles={c}, growth={g!r})"
+            call = (lambda a=a, c=c, g=g: sw.restarts(a, cycles=c, growth=g))
+        out.append(Case("transforms", call, f"a = {design_src(a)}\nb = {design_src(b)}\n{text}"))
+    return out
