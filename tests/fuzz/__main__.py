@@ -14,6 +14,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--scale", type=float, default=1.0, help="multiply every generator's case count")
     ap.add_argument("--only", nargs="*", help="run only these generators")
     ap.add_argument("--findings", help="write the Markdown report (counts, failure classes, repros) here")
+    ap.add_argument("--notes", help="a Markdown file appended to the findings (hand-written context)")
     args = ap.parse_args(argv)
     mix = {k: max(1, round(v * args.scale)) for k, v in MIX.items() if not args.only or k in args.only}
     report = run(args.seed, mix)
@@ -23,8 +24,12 @@ def main(argv: list[str] | None = None) -> int:
     for fc in fails:
         print(f"  {fc.count:>5}  {fc.klass}")
     if args.findings:
+        notes = ""
+        if args.notes:
+            with open(args.notes, encoding="utf-8") as fh:
+                notes = fh.read()
         with open(args.findings, "w", encoding="utf-8") as fh:
-            fh.write(report.markdown())
+            fh.write(report.markdown() + notes)
         print(f"findings written to {args.findings}")
     return 1 if fails else 0
 
