@@ -84,15 +84,16 @@ def run(seed: int = SEED, mix: dict[str, int] | None = None, isolate: bool = Tru
     that really takes over a second takes it twice.
     """
     t0 = time.perf_counter()
-    folder = Path(tempfile.mkdtemp(prefix="schedwidget-fuzz-"))
-    cases = build(seed, mix, folder)
-    outcomes = run_cases(cases, isolate=isolate, cwd=folder)
-    slow = [i for i, o in enumerate(outcomes) if o.outcome == "failure" and o.klass.startswith(("timeout", "hang"))]
-    if slow:
-        again = run_cases([cases[i] for i in slow], isolate=isolate, cwd=folder)
-        for i, o in zip(slow, again):
-            o.index = i
-            if o.outcome == "failure" and o.klass.startswith(("timeout", "hang")):
-                o.message = (o.message + "; " if o.message else "") + "timed out twice"
-            outcomes[i] = o
+    with tempfile.TemporaryDirectory(prefix="schedwidget-fuzz-") as name:  # spec files of up to 10 MB each
+        folder = Path(name)
+        cases = build(seed, mix, folder)
+        outcomes = run_cases(cases, isolate=isolate, cwd=folder)
+        slow = [i for i, o in enumerate(outcomes) if o.outcome == "failure" and o.klass.startswith(("timeout", "hang"))]
+        if slow:
+            again = run_cases([cases[i] for i in slow], isolate=isolate, cwd=folder)
+            for i, o in zip(slow, again):
+                o.index = i
+                if o.outcome == "failure" and o.klass.startswith(("timeout", "hang")):
+                    o.message = (o.message + "; " if o.message else "") + "timed out twice"
+                outcomes[i] = o
     return Report(cases, outcomes, time.perf_counter() - t0, seed)
