@@ -434,6 +434,9 @@ def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
 def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch: int | None = None,
                     doc: bool = True) -> tuple[str, set[str]]:
     """The function's source and the modules it imports (no import lines)."""
+    if steps_per_epoch is not None and (isinstance(steps_per_epoch, bool) or not isinstance(steps_per_epoch, int)
+                                        or not 1 <= steps_per_epoch <= MAX_TICKS):
+        raise complain("to_python", "steps_per_epoch", steps_per_epoch, "a whole number >= 1 and <= 2**53 or None")
     w = _Writer()
     n = s.length
     w.put(1, "if type(t) is not int:")

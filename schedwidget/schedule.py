@@ -150,10 +150,14 @@ def as_whole(value: Any) -> int | None:
 
 def check_ticklist(owner: str, name: str, value: Any, lo: int) -> tuple[int, ...]:
     """A strictly increasing tuple of whole ticks, each >= lo."""
-    if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
+    try:
+        items = iter(value) if not isinstance(value, (str, bytes)) else None
+    except TypeError:  # not iterable, or a 0-d array
+        items = None
+    if items is None:
         raise complain(owner, name, value, f"a list of whole ticks >= {lo}, strictly increasing")
     out: list[int] = []
-    for i, v in enumerate(value):
+    for i, v in enumerate(items):
         w = as_whole(v)
         if w is None or w < lo or w > MAX_TICKS:
             raise complain(owner, f"{name}[{i}]", v, f"a whole number >= {lo} and <= 2**53")

@@ -402,10 +402,14 @@ def _real(y) -> float:
 
 def _check_points(points) -> tuple[tuple[int, float], ...]:
     allowed = "a sequence of (tick, rate) pairs"
-    if isinstance(points, (str, bytes)) or not hasattr(points, "__iter__"):
+    try:
+        items = iter(points) if not isinstance(points, (str, bytes)) else None
+    except TypeError:  # not iterable, or a 0-d array
+        items = None
+    if items is None:
         raise complain("knots", "points", points, allowed)
     out: list[tuple[int, float]] = []
-    for i, pair in enumerate(points):
+    for i, pair in enumerate(items):
         try:
             t, y = pair
         except (TypeError, ValueError):

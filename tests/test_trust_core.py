@@ -253,3 +253,14 @@ def test_a_tiny_peak_decay_has_finite_bounds():
     lo, hi = s._span(a[:-1], a[1:])
     assert np.all(np.isfinite(lo)) and np.all(np.isfinite(hi)) and np.all(lo <= hi)
     assert rate_ok(generated(s)(s.length))
+
+
+@pytest.mark.parametrize("make, where", [  # fuzz findings: TypeError from iterating a 0-d array, and ValueError
+    (lambda: sw.drops(0.1, at=np.array(0.1)), r"drops: at must be a list of whole ticks >= 1"),
+    (lambda: sw.knots(np.array(3.0)), r"knots: points must be a sequence of \(tick, rate\) pairs"),
+    (lambda: to_python(sw.cosine(0.1, steps=10), steps_per_epoch=10**5000 - 1),
+     r"to_python: steps_per_epoch must be a whole number >= 1"),
+], ids=["drops-0d", "knots-0d", "huge-steps-per-epoch"])
+def test_odd_arguments_get_a_schedule_error(make, where):
+    with pytest.raises(ScheduleError, match=where):
+        make()
