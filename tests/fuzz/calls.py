@@ -444,6 +444,13 @@ CORPUS = [
     "check_length(flat(0.1, steps=10), 10**400)",
     "Budget(samples=10**400, batch=1, epochs=1)",
     "Budget(samples=2**53, batch=1, epochs=2**53)",
+    # found by `python -m tests.fuzz --seed 1 --scale 4` and --scale 3 (rarer than the default mix reaches)
+    "check_length(flat(0.1, steps=4), 4, unit=np.array([0.1, 0.2]))",
+    "to_spec(flat(0.1), unit=10**5000 - 1)",
+    "save(flat(0.1), 'x.json', unit=10**5000 - 1)",
+    "to_python(flat(0.1), unit=np.array(['step']))",
+    "facts(flat(0.1), steps=10, unit=np.array(['step']))",
+    "scale_for_batch(flat(0.1, steps=10), 1, 2, rule=np.array(['linear']))",
 ]
 
 

@@ -205,8 +205,12 @@ def check(result: Any) -> None:
         except (TypeError, ValueError) as exc:
             raise Broken("to_spec", "not plain JSON", str(exc)[:100]) from None
     elif isinstance(result, str) and "def " in result:
-        # to_python / to_torch / plateau_source text: it must compile (running it is check_schedule's job)
-        compile(result, "<generated>", "exec")
+        # to_python / to_torch / plateau_source text: it must compile (running it is run_source's job)
+        try:
+            compile(result, "<generated>", "exec")
+        except (SyntaxError, RecursionError, MemoryError, ValueError) as exc:
+            raise Broken("generated source", f"does not compile ({type(exc).__name__})",
+                         f"{len(result):,} characters: {exc}"[:200]) from None
     elif isinstance(result, float):  # a rate: s(t) at one tick
         rate("s(t)", result, "the tick given")
     elif isinstance(result, (Path, int, str, dict)) or result is None:

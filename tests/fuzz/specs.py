@@ -31,7 +31,7 @@ def nodes(spec: Any) -> list[dict]:
     out, todo = [], [spec.get("schedule") if isinstance(spec, dict) else None]
     while todo:
         n = todo.pop()
-        if not isinstance(n, dict) or n.get("kind") not in KINDS:
+        if not isinstance(n, dict) or not isinstance(n.get("kind"), str) or n["kind"] not in KINDS:
             continue
         out.append(n)
         for name, p in KINDS[n["kind"]].params().items():
@@ -103,7 +103,7 @@ def m_edge(rng, spec):
     lo = p.lo if p.lo is not None else 0.0
     hi = p.hi if p.hi is not None else float(MAX_TICKS)
     pool: list[Any] = [math.nextafter(lo, -math.inf), lo, math.nextafter(hi, math.inf), hi, hi * 10, -hi,
-                       MAX_TICKS + 1, float(MAX_TICKS), MAX_TICKS, 10.5, 10.0, str(n.get(name)), [n.get(name)]]
+                       MAX_TICKS + 1, float(MAX_TICKS), MAX_TICKS, 10.5, 10.0, repr(n.get(name))[:50], [n.get(name)]]
     if p.kind in ("ticks", "count"):
         pool += [int(lo) - 1, 2 ** 64, 10 ** 30, -(2 ** 63)]
     n[name] = rng.choice(pool)
@@ -271,7 +271,10 @@ def mutated_specs(rng: random.Random, n: int) -> list[Case]:
         for _ in range(rng.choice([1, 1, 1, 2, 3])):
             if not isinstance(spec, dict) or not isinstance(spec.get("schedule"), dict):
                 break
-            spec, repro = rng.choice(MUTATORS)(rng, spec)
+            try:
+                spec, repro = rng.choice(MUTATORS)(rng, copy.deepcopy(spec))
+            except Exception:  # noqa: BLE001 - a mutator that cannot apply to an earlier mutation's output
+                continue
             if repro is not None:
                 break
         out.append(_from_spec_case("mutated_specs", spec, repro))
