@@ -223,6 +223,9 @@ class TestTypedLengthsAndRates:
         assert absorb([1000, 500, 98_000], 103_500, 2) == [1000, 500, 102_000]
         with pytest.raises(ScheduleError, match="fills the rest"):
             absorb([103_500, 10], 103_500, 1)
+        with pytest.raises(ScheduleError, match=r"^warmup: steps must be at most 103,499 ticks in a run of 103,500, "
+                                                r"got 200000"):
+            absorb([200_000, 97_750], 103_500, 1, "warmup", "steps", 200_000)
 
     def test_length_words(self):
         from schedwidget.budget import length_words

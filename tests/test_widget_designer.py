@@ -81,7 +81,8 @@ class TestCurvePanel:
         assert np.allclose(y[at], [0.1, 0.01])
 
     def test_join_markers(self):
-        """Stage joins are dotted slate lines spanning the plot; one more stage, one more line."""
+        """Stage joins are dotted slate lines spanning the plot; one more stage, one more line (the cosine makes
+        room for the new stage, so the run keeps its 103,500 steps)."""
         d = ScheduleDesigner()
         j = d.canvas.joins
         assert j.visible and j.line_style == "dotted" and set(j.colors) == {"#64748b"}
@@ -89,7 +90,8 @@ class TestCurvePanel:
         assert np.array_equal(np.atleast_2d(j.y), [[0.0, 1.0]])
         d.stages.shape.value = "flat"
         d.stages.add.click()
-        assert np.array_equal(np.asarray(j.x)[:, 0], [5750, 103_500])
+        assert np.array_equal(np.asarray(j.x)[:, 0], [5750, 103_500 - 10_350])
+        assert d.schedule.length == d.steps == 103_500
 
     def test_x_axis_in_epochs(self):
         """The epochs toggle divides the ticks by steps per epoch; the design is unchanged."""
@@ -118,10 +120,21 @@ class TestCurvePanel:
         assert np.min(d.canvas.curve.y) == 0.0
 
     def test_hover_readout(self):
-        """Hovering at x reads the exact rate at that step, with the epoch."""
+        """Pointing at x reads the exact rate at that step, with the epoch; the reading follows a new design."""
         d = ScheduleDesigner()
-        d.canvas.hover.selected = np.array([5750.4])
+        d.canvas.hover_at(5750.4)
         assert d.canvas.hover_label.value == "step 5,750 · epoch 5.000 · rate 0.1"
+        d.control(0, "peak").text.value = 0.2
+        assert d.canvas.hover_label.value == "step 5,750 · epoch 5.000 · rate 0.2"
+
+    def test_hover_band_message(self):
+        """A hover message from a band of the plot (what the browser sends, no click) reads that band's step."""
+        d = ScheduleDesigner()
+        from schedwidget.widget.canvas import HOVER_BANDS
+        d.canvas._band_hovered(d.canvas.bands, {"event": "hover", "data": {"index": HOVER_BANDS // 2}})
+        x = (HOVER_BANDS // 2 + 0.5) / HOVER_BANDS * 103_499
+        assert d.canvas.hover_label.value.startswith(f"step {int(x + 0.5):,} · epoch")
+        assert np.allclose(d.canvas.hover_line.x, [[x, x]]) and d.canvas.hover_line.visible
 
     @pytest.mark.parametrize("n", [10**3, 10**6, 10**9])
     def test_sent_state_is_bounded(self, n):
@@ -166,11 +179,11 @@ class TestNeverBroken:
         before, y = d.schedule, np.array(d.canvas.curve.y)
         box = d.control("warmup", "steps").text
         box.value = 200_000
-        assert d.error.startswith("warmup: steps must be <= 97750 (the length of the schedule it leads into), "
-                                  "got 200000")
+        # the run is the frame (issue 13): the cosine fills the rest of the 103,500 steps, and cannot go below 1
+        assert d.error.startswith("warmup: steps must be at most 103,499 ticks in a run of 103,500, got 200000")
         assert d.error_line.value.startswith("warmup: steps must be") and "sw-error" in d.error_line._dom_classes
         assert d.schedule == before and np.array_equal(d.canvas.curve.y, y)
-        assert box.value == 5750
+        assert box.value == "5,750"
 
     def test_floor_above_peak(self):
         """A cosine floor above its peak is refused with the core's hint."""
@@ -191,7 +204,8 @@ class TestNeverBroken:
         c = d.control(0, "peak")
         c.text.value = 3.0
         assert d.schedule.target.peak == 3.0 and d.error == ""
-        assert c.slider.value == pytest.approx(1.0)
+        assert c.slider.value == pytest.approx(3.0)  # the slider is centred on the typed value
+        assert c.slider.min < np.log10(3.0) < c.slider.max
 
     def test_bad_tick_list_text(self):
         """Unreadable drop ticks say which item and how to write them."""

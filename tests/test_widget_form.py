@@ -88,20 +88,24 @@ class TestParamControl:
     """Controls are generated from the Param declarations."""
 
     def test_rate(self):
-        """A rate gets a log slider (sw-rate) over its soft range and an exact box (sw-value)."""
+        """A rate gets a log slider (sw-rate) 1.5 decades either side of its value and an exact box (sw-value)."""
         p = Cosine.params()["peak"]
         c = ParamControl("cosine", "peak", p, 0.1, 1000, lambda n, v: None)
-        assert isinstance(c.slider, W.FloatLogSlider) and isinstance(c.text, W.FloatText)
-        assert (c.slider.min, c.slider.max) == (-6, 0)
+        assert isinstance(c.slider, W.FloatLogSlider) and isinstance(c.text, W.Text) and c.text.value == "0.1"
+        assert (c.slider.min, c.slider.max) == (-2.5, 0.5)
         assert "sw-rate" in c.slider._dom_classes and "sw-value" in c.text._dom_classes
         assert c.slider.tooltip == p.doc
 
     def test_ticks_follow_the_budget(self):
-        """A length slider spans 1 .. budget; the box keeps the exact value."""
-        c = ParamControl("cosine", "steps", Cosine.params()["steps"], 500, 2000, lambda n, v: None)
-        assert isinstance(c.slider, W.IntSlider) and (c.slider.min, c.slider.max) == (1, 2000)
-        c.show(500, 10**9)
-        assert c.slider.max == 10**9
+        """A length is a box taking steps, epochs or a share of the run, with the other units beside it."""
+        got = []
+        c = ParamControl("cosine", "steps", Cosine.params()["steps"], 500, 2000, lambda n, v: got.append(v),
+                         context=lambda: ("step", 100, 2000, None))
+        assert c.slider is None and c.text.value == "500" and "5 epochs · 25 % of the run" in c.words.value
+        c.text.value = "3 ep"
+        c.text.value = "6 %"
+        c.text.value = "1,234"
+        assert got == [300, 120, 1234]
 
     def test_choice_flag_list_points(self):
         """Choices are dropdowns, flags checkboxes, tick lists and knots text boxes."""
@@ -117,7 +121,7 @@ class TestParamControl:
         """An open-ended length is a ticked 'open-ended' box and greyed-out slider and text."""
         got = []
         c = ParamControl("flat", "steps", flat(0.1).params()["steps"], None, 100, lambda n, v: got.append(v))
-        assert c.none.value is True and c.slider.disabled and c.text.disabled
+        assert c.none.value is True and c.text.disabled and c.text.value == ""
         c.none.value = False
         assert got == [100]  # unticking starts from the whole budget
 

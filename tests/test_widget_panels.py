@@ -18,28 +18,31 @@ class TestStagesPanel:
     """Stages are added, removed and reordered through the panel's buttons."""
 
     def test_add_remove_and_move(self):
-        """Add a flat stage, move it up, then remove it: the design follows each step."""
+        """Add a flat stage, move it up, then remove the cosine: the design follows each step and the run keeps
+        its length (the longest stage fills the rest)."""
         d = ScheduleDesigner()
         assert len(stage_boxes(d)) == 2  # warmup + cosine
         d.stages.shape.value = "flat"
         d.stages.add.click()
         assert [type(p).__name__ for p in d.schedule.target.parts] == ["Cosine", "Flat"]
-        assert len(stage_boxes(d)) == 3 and d.steps == d.schedule.length
+        assert len(stage_boxes(d)) == 3 and d.steps == d.schedule.length == 103_500
+        assert d.schedule.target.parts[1] == flat(0.1, steps=10_350)  # a tenth of the run, at the peak
         flat_box = stage_boxes(d)[2]
         next(b for b in flat_box.children[0].children if "sw-up" in b._dom_classes).click()
         assert [type(p).__name__ for p in d.schedule.target.parts] == ["Flat", "Cosine"]
         next(b for b in stage_boxes(d)[2].children[0].children if "sw-remove" in b._dom_classes).click()
-        assert d.schedule == warmup(flat(0.1, steps=10_350), steps=5750)
+        assert d.schedule == warmup(flat(0.1, steps=97_750), steps=5750)
         assert len(stage_boxes(d)) == 2
 
     def test_remove_the_warmup_and_add_it_back(self):
-        """The warmup is a removable first stage; a second one is refused."""
+        """The warmup is a removable first stage; a second one is refused; the run keeps its length throughout."""
         d = ScheduleDesigner()
         next(b for b in stage_boxes(d)[0].children[0].children if "sw-remove" in b._dom_classes).click()
-        assert d.schedule == cosine(0.1, steps=97_750)
+        assert d.schedule == cosine(0.1, steps=103_500)
         d.stages.shape.value = "warmup"
         d.stages.add.click()
-        assert d.schedule.kind == "warmup" and d.schedule.steps == 97_750 // 20
+        assert d.schedule.kind == "warmup" and d.schedule.steps == 103_500 // 20
+        assert d.schedule.length == 103_500
         d.stages.add.click()
         assert d.error.startswith("designer: a design has at most one warmup")
 
@@ -55,7 +58,8 @@ class TestStagesPanel:
         d = ScheduleDesigner(cosine(0.1, steps=100))
         rep = next(w for w in stage_boxes(d)[0].children[0].children if getattr(w, "description", "") == "repeat")
         rep.value = True
-        assert d.schedule.kind == "restarts" and d.schedule.cycles == 2 and d.steps == 200
+        assert d.schedule.kind == "restarts" and d.schedule.cycles == 2 and d.steps == 100
+        assert "200 steps long but the budget is 100" in d.readout.cautions.value  # the run stays; a caution
         d.control(0, "growth").text.value = 2.0
         assert d.schedule.length == 300
         rep.value = False
@@ -84,17 +88,18 @@ class TestStagesPanel:
         assert d.canvas.x_axis.label == "epoch"
 
     def test_tick_slider_spans_the_budget(self):
-        """A length slider reaches the budget; a rate floor of 0 leaves the log slider at its bottom."""
+        """A length box reads the whole run; a rate floor of 0 leaves the log slider at its bottom."""
         d = ScheduleDesigner()
-        assert d.control(0, "steps").slider.max == 103_500
+        assert d.control(0, "steps").text.value == "97,750"
+        assert "85 epochs · 94 % of the run" in d.control(0, "steps").words.value
         floor = d.control(0, "floor")
-        assert floor.text.value == 0.0 and floor.slider.value == pytest.approx(1e-6)
+        assert floor.text.value == "0.0" and floor.slider.value == pytest.approx(1e-6)
 
 
     def test_control_lookup(self):
         """control() finds a parameter's control, and says what exists when asked for something else."""
         d = ScheduleDesigner()
-        assert d.control("warmup", "steps").text.value == 5750
+        assert d.control("warmup", "steps").text.value == "5,750"
         with pytest.raises(ScheduleError, match=r"designer: stage must be 0 \.\. 0 or 'warmup' if there is one, got 1"):
             d.control(1, "peak")
         with pytest.raises(ScheduleError, match=r"designer: name must be one of peak, floor, steps, got 'top'"):
@@ -113,7 +118,8 @@ class TestComparePanel:
         d.compare.pin_button.click()
         g = d.canvas.ghosts[0]
         assert g.visible and g.labels == ["warmup + cosine"]
-        assert [n.text for n in d.canvas.names[:2] if n.visible] == [["current"], ["warmup + cosine"]]  # names in the margin
+        legend = d.canvas.legend.value   # names in the legend beside the plot, in drawing order
+        assert legend.count("sw-legend-item") == 2 and legend.index(">current<") < legend.index(">warmup + cosine<")
         assert g.colors[0] in ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")
         step = drops(0.1, at=(30 * 1150, 60 * 1150, 80 * 1150), factor=0.1, steps=103_500)
         d.propose(step)
@@ -282,7 +288,9 @@ class TestStageWords:
         """The first stage after the warmup is labelled 'stage 0', as in designer.control(0, ...)."""
         d = ScheduleDesigner()
         titles = [box.children[0].children[0].value for box in d.stages.list.children]
-        assert titles[0].startswith("warmup") and titles[1].startswith("stage 0: cosine")
+        assert titles[0].startswith("warmup") and titles[1].startswith("stage 0 · steps 5,750–103,500")
+        shape = next(w for w in d.stages.list.children[1].children[0].children if "sw-stage-shape" in w._dom_classes)
+        assert shape.value == "cosine" and shape.label == "cosine annealing"
         assert d.control(0, "floor").owner == "cosine"
 
     def test_unknown_steps_per_epoch_and_batch_are_blank(self):

@@ -38,7 +38,7 @@ def assert_agree(d: ScheduleDesigner, exact_slider: bool) -> None:
     """The design's peak is the box's value; the slider shows it (exactly, or within half a step after an echo)."""
     c = d.control(0, "peak")
     peak = d.schedule.target.target.peak
-    assert c.text.value == peak, (c.text.value, peak)
+    assert float(c.text.value) == peak, (c.text.value, peak)
     want = clamp(c.slider, peak)
     if exact_slider:
         assert c.slider.value == want, (c.slider.value, want)
@@ -71,7 +71,7 @@ class TestCodeDrivenSlider:
         c.slider.value = 0.0871
         assert d.schedule.target.target.peak == 0.0871
         c.slider.set_state({"value": 0.0872})  # a browser's snap of the shown value: an echo
-        assert d.schedule.target.target.peak == 0.0871 and c.text.value == 0.0871
+        assert d.schedule.target.target.peak == 0.0871 and float(c.text.value) == 0.0871
 
 
 # one operation: (who, what, number in 0..1)

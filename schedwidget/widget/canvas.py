@@ -18,14 +18,13 @@ import numpy as np
 with warnings.catch_warnings():
     # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
-    from bqplot import Axis, Figure, Label, LinearScale, Lines, LogScale
-    from bqplot.interacts import IndexSelector
+    from bqplot import Axis, Bars, Figure, LinearScale, Lines, LogScale, OrdinalScale
 
 from ..sample import Trace, trace
 from ..schedule import Schedule
 from ..svg import nice_ticks  # one tick rule for the live and static curves
 from .guard import Panel
-from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, LABEL_SIZE, figure_layout
+from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, RateAxes, figure_layout, legend_html, rate
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -34,6 +33,7 @@ __all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR
 
 MAX_JOIN_LINES = 200                                        # more joins than this are not drawn one by one
 LOG_FLOOR = 1e-12                                           # on the log axis nothing is drawn below peak * this
+HOVER_BANDS = 400                                           # hover reads the x axis in this many bands
 
 
 @dataclass(frozen=True)
@@ -73,8 +73,8 @@ class CurvePanel(Panel, W.VBox):
 
     def __init__(self, designer: ScheduleDesigner, axis: str = "steps") -> None:
         self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
-        self.ys_linear = LinearScale(min=0.0)
-        self.ys_log = LogScale()
+        self.rates = RateAxes()
+        self.ys_linear, self.ys_log = self.rates.linear_scale, self.rates.log_scale
         self.unit_scale = LinearScale(min=0.0, max=1.0)
         # unused ghosts sit on a scale of their own, so their placeholder data never reaches the rate axis
         self.parking = LinearScale(min=0.0, max=1.0)
@@ -88,25 +88,35 @@ class CurvePanel(Panel, W.VBox):
         self.joins = Lines(x=np.zeros((1, 2)), y=np.array([[0.0, 1.0]]),
                            scales={"x": self.xs, "y": self.unit_scale}, colors=[JOIN], line_style="dotted",
                            stroke_width=1, visible=False, labels=["stage joins"])
-        # names at the right end of each line, in the figure's right margin (a legend would sit on the curves)
-        self.names = [Label(x=[0.0], y=[0.0], text=[""], scales={"x": self.xs, "y": self.parking}, colors=[c],
-                            apply_clip=False, x_offset=6, y_offset=0, align="start", default_size=LABEL_SIZE,
-                            visible=False) for c in (CURVE, *GHOSTS)]
-        self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s", num_ticks=6)
-        self.y_axis = Axis(scale=self.ys_linear, side="left", label="rate", tick_format=".2~g")
-        self.hover = IndexSelector(scale=self.xs, marks=[self.curve], color=HOVER, line_width=1)
-        self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve, *self.names],
-                             axes=[self.x_axis, self.y_axis],
-                             interaction=self.hover, animation_duration=0, padding_y=0.05,
+        # hover: transparent full-height bands over the plot; entering one reads its x (no click needed)
+        self.band_scale = OrdinalScale()
+        self.bands = Bars(x=np.arange(HOVER_BANDS), y=np.ones(HOVER_BANDS), scales={"x": self.band_scale,
+                          "y": self.unit_scale}, padding=0.0, colors=["#ffffff"], opacities=[0.0], stroke=None,
+                          interactions={"hover": "tooltip"}, tooltip=None)
+        self.hover_line = Lines(x=np.zeros((1, 2)), y=np.array([[0.0, 1.0]]), scales={"x": self.xs,
+                                "y": self.unit_scale}, colors=[HOVER], stroke_width=1, visible=False)
+        self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s", num_ticks=6, label_offset="32px")
+        self.figure = Figure(marks=[self.joins, *self.ghosts, self.curve, self.hover_line, self.bands],
+                             axes=[self.x_axis, *self.rates.axes],
+                             animation_duration=0, padding_y=0.05,
                              fig_margin=CURVE_FIGURE[1], layout=W.Layout(**figure_layout(CURVE_FIGURE)))
         self.figure.add_class("sw-curve")
+        self.bands.on_hover(designer.guarded(self._band_hovered))
+        # the rate axis's title sits above the axis (a title beside it would cross long tick labels)
+        self.y_title = W.HTML("<span style=\"font-size:12px;color:#374151\">learning rate</span>",
+                              layout={"margin": "0 0 -14px 8px"})
+        self.y_title.add_class("sw-y-title")
+        # names of the lines: a compact legend beside the plot, never on the curves or outside the figure
+        self.legend = W.HTML("", layout={"width": "9.5em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
+        self.legend.add_class("sw-legend")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
                                          style={"button_width": "5em", "description_width": "5em"})
         self.x_choice = W.ToggleButtons(options=["steps", "epochs"], value=axis, description="x axis",
                                         tooltip="ticks of the x axis: optimizer steps or epochs",
                                         style={"button_width": "6em", "description_width": "4em"})
-        self.hover_label = W.Label("move the mouse over the curve to read a step", layout={"min_height": "1.6em"})
+        self.hover_label = W.Label("point at the curve to read the step, epoch and rate there",
+                                   layout={"min_height": "1.6em"})
         self.hover_label.add_class("sw-hover")
         self.current: Trace | None = None
         self._tops: dict[object, float] = {}  # right end of each drawn curve, in x-axis units
@@ -116,13 +126,15 @@ class CurvePanel(Panel, W.VBox):
         self._ghosts: dict[int, tuple] = {}         # slot -> (pin, its trace): traced once per pin
         self._ghost_keys: dict[int, tuple] = {}     # slot -> what its mark shows now
         self.ghost_traces = 0
-        self._spots: dict[int, tuple] = {}          # line -> where its name was put last
+        self._hover_x: float | None = None          # where the pointer was last (x-axis units)
         self._ends: dict[object, tuple] = {}        # "current" or slot -> (last x, last y, lowest y, highest y, name)
-        super().__init__([self.figure, W.HBox([self.rate_axis, self.x_choice]), self.hover_label])
+        plot = W.HBox([self.figure, self.legend], layout={"width": "100%", "align_items": "flex-start"})
+        self.figure.layout.flex = "1 1 auto"
+        super().__init__([self.y_title, plot, W.HBox([self.rate_axis, self.x_choice],
+                                                     layout={"flex_flow": "row wrap"}), self.hover_label])
         g = designer.guarded
         self.rate_axis.observe(g(self._axes_changed), names="value")
         self.x_choice.observe(g(lambda _c: self.redraw()), names="value")
-        self.hover.observe(g(self._hovered), names="selected")
         self.listen(designer)
 
     # ----------------------------------------------------------------- panel
@@ -135,15 +147,30 @@ class CurvePanel(Panel, W.VBox):
         for i in range(len(self.ghosts)):
             self.ghost(i, d.pinned[i] if i < len(d.pinned) else None)
         self.draw(d.schedule, d.steps, d.clock)
+        if self._hover_x is not None:
+            self.hover_at(min(self._hover_x, float(self.xs.max)))  # the hover line reads the new design
 
     def _axes_changed(self, change: dict) -> None:
         self.use_log(change["new"] == "log")
         self.redraw()
 
-    def _hovered(self, change: dict) -> None:
-        words = self.read(self.d.schedule, change["new"])
+    def _band_hovered(self, _mark: Any, event: dict) -> None:
+        data = event.get("data") or {}
+        i = data.get("index", data.get("x"))
+        if i is None:
+            return
+        self.hover_at((float(i) + 0.5) / HOVER_BANDS * float(self.xs.max or 1.0))
+
+    def hover_at(self, x: float | None) -> None:
+        """Read the design at the x-axis position ``x`` (what pointing at the plot does) and mark it."""
+        self._hover_x = x
+        words = self.read(self.d.schedule, None if x is None else [x])
         if words and self.hover_label.value != words:
             self.hover_label.value = words
+        if x is not None:
+            with self.hover_line.hold_sync():
+                self.hover_line.x = np.array([[x, x]])
+                self.hover_line.visible = True
 
     # ----------------------------------------------------------------- marks
     def _y(self, y: np.ndarray) -> np.ndarray:
@@ -161,18 +188,9 @@ class CurvePanel(Panel, W.VBox):
     def _log_ticks(self) -> None:
         """Powers of ten on the log axis (the axis picks its own ticks on the linear one)."""
         if self.rate_axis.value != "log":
-            if self.y_axis.tick_values is not None:
-                self.y_axis.tick_values = None
             return
         lo, hi = self._span()
-        a, b = math.floor(math.log10(max(lo, 1e-300))), math.ceil(math.log10(max(hi, 1e-300)))
-        every = max(1, math.ceil((b - a + 1) / 8))
-        ticks = 10.0 ** np.arange(a, b + 1, every)
-        # a little room below the lowest tick, so its label does not touch the x axis's first label
-        with self.ys_log.hold_sync():
-            self.ys_log.min, self.ys_log.max = float(10.0 ** (a - 0.3)), float(10.0 ** (b + 0.05))
-        if self.y_axis.tick_values is None or not np.array_equal(self.y_axis.tick_values, ticks):
-            self.y_axis.tick_values = ticks
+        self.rates.fit_log(lo, hi)
 
     def draw(self, s: Schedule, steps: int, clock: Clock) -> Trace:
         """Trace ``s`` over ``steps`` ticks and give the curve and join marks their new arrays."""
@@ -187,6 +205,7 @@ class CurvePanel(Panel, W.VBox):
         self._ends["current"] = self._end_of(self.curve.x, y, "current")
         self._tops["current"] = max(tr.steps - 1, 1) * f
         self._fit_x()
+        self._fit_y()
         self._log_ticks()
         joins = tr.joins[:MAX_JOIN_LINES] * f
         with self.joins.hold_sync():
@@ -260,43 +279,22 @@ class CurvePanel(Panel, W.VBox):
         return min(e[2] for e in ends), max(e[3] for e in ends)
 
     def _legend(self) -> None:
-        """Name each line at its right end, in the margin (only when there are pins); names that would
-        overlap are pushed apart vertically.  Only names that moved are sent."""
+        """Name each line in the legend beside the plot (only when there are pins): swatch, name, last rate."""
         keys = ["current", *range(len(self.ghosts))]
-        pinned = len(self._ends) > 1
-        for i, name in enumerate(self.names):
-            if name.visible and not (pinned and keys[i] in self._ends):
-                name.visible = False
-        if not pinned:
-            return
-        lo, hi = self._span()
-        ends = sorted((self._height(self._ends[k][1], lo, hi), i) for i, k in enumerate(keys) if k in self._ends)
-        placed: list[float] = []
-        for h, i in ends:
-            px = h * 250.0  # about the plot's height in pixels
-            while any(abs(px - q) < 13 for q in placed):
-                px += 13
-            placed.append(px)
-            x, y, _lo, _hi, label = self._ends[keys[i]]
-            name = self.names[i]
-            spot = (x, y, label, -int(round(px - h * 250.0)), self.rate_scale)
-            if name.visible and self._spots.get(i) == spot:
-                continue  # this name did not move
-            with name.hold_sync():
-                name.x, name.y, name.text = np.array([x]), np.array([y]), [label]
-                name.y_offset = spot[3]
-                if name.scales.get("y") is not spot[4]:
-                    name.scales = {"x": self.xs, "y": spot[4]}
-                name.visible = True
-            self._spots[i] = spot
-
-    def _height(self, y: float, lo: float, hi: float) -> float:
-        """Where ``y`` sits on the rate axis, 0 (bottom) .. 1 (top), for lines spanning ``lo`` .. ``hi``."""
-        if self.rate_axis.value == "log":
-            lo, hi, y = (math.log10(max(v, 1e-300)) for v in (lo, hi, y))
+        if len(self._ends) <= 1:
+            html = ""
         else:
-            lo = min(lo, 0.0)
-        return 0.0 if hi <= lo else (y - lo) / (hi - lo)
+            rows = [((CURVE, *GHOSTS)[i], self._ends[k][4], self._ends[k][1]) for i, k in enumerate(keys)
+                    if k in self._ends]
+            html = legend_html(rows)
+        if self.legend.value != html:
+            self.legend.value = html
+
+    def _fit_y(self) -> None:
+        """The linear rate axis spans 0 to a round number above the highest rate drawn; it moves only when the
+        curve leaves the upper two thirds of it, so a dragged rate visibly moves the curve."""
+        _lo, hi = self._span()
+        self.rates.fit_linear(hi)
 
     def _fit_x(self) -> None:
         """The x axis spans tick 0 to the last tick of the longest curve shown (no padding, no negative ticks)."""
@@ -315,19 +313,21 @@ class CurvePanel(Panel, W.VBox):
         """The rate scale in use (linear or log)."""
         return self.ys_log if self.rate_axis.value == "log" else self.ys_linear
 
+    @property
+    def y_axis(self) -> Axis:
+        """The rate axis shown now (a linear and a log axis are both in the figure; one is visible)."""
+        return self.rates.shown
+
     def use_log(self, log: bool) -> None:
-        """Swap the rate scale of every rate mark and of the axis (the figure itself stays)."""
+        """Put every rate mark on the log or the linear scale and show that scale's axis (the figure stays).
+
+        Each scale keeps an axis of its own: giving one axis another scale left the front end's ticks at the
+        old scale's positions (every log label at one spot, log-spaced ticks on the linear axis)."""
         scale = self.ys_log if log else self.ys_linear
         for m in (self.curve, *[g for g in self.ghosts if g.visible]):
             if m.scales.get("y") is not scale:
                 m.scales = {"x": self.xs, "y": scale}
-        for name in self.names:
-            if name.visible and name.scales.get("y") is not scale:
-                name.scales = {"x": self.xs, "y": scale}
-        if self.y_axis.scale is not scale:
-            with self.y_axis.hold_sync():
-                self.y_axis.scale = scale
-                self.y_axis.tick_format = ".0e" if log else ".2~g"
+        self.rates.show(log)
 
     # ----------------------------------------------------------------- hover
     def tick_at(self, x: float) -> int | None:
@@ -350,7 +350,7 @@ class CurvePanel(Panel, W.VBox):
             words.append(f"epoch {t / c.steps_per_epoch:,.3f}")
         elif c.steps_per_epoch:
             words.append(f"step {t * c.steps_per_epoch:,}")
-        words.append(f"rate {s(t):.6g}")
+        words.append(f"rate {rate(float(s(t)))}")
         return " · ".join(words)
 
 

@@ -1,8 +1,11 @@
 """One control per declared parameter, generated from its ``Param`` declaration.
 
-kind "rate" -> a log slider plus a text box for the exact value; "ticks"/"count" ->
-an integer slider plus an integer box (and an "open-ended" box when None is
-allowed); "ratio" -> a slider (log when declared so) plus a text box; "choice" ->
+kind "rate" -> a log slider over a range around the current value plus a text box
+for the exact value (a number, or a share of the stage's peak: ``1 %``); "ticks" ->
+a length box that takes ticks, epochs or a share of the run (``3 ep``, ``6 %``,
+read by the core's ``budget.parse_length``) with the length in the other units
+beside it; "count" -> an integer slider plus an integer box (and an "open-ended"
+box when None is allowed); "ratio" -> a slider (log when declared so) plus a text box; "choice" ->
 a dropdown; "flag" -> a checkbox; "ticklist" / "points" -> a text box.
 
 Sliders span the declared soft bounds (tick sliders: up to the budget) and
@@ -28,7 +31,10 @@ import math
 from typing import Any, Callable
 
 import ipywidgets as W
+from traitlets import Any as AnyTrait
+from traitlets import validate
 
+from ..budget import length_words, parse_length, parse_rate
 from ..schedule import Param, as_whole, complain
 
 __all__ = ["ParamControl", "parse_ticklist", "parse_points", "format_points"]
@@ -37,6 +43,39 @@ LABEL = {"description_width": "6.5em"}
 SLIDER_LAYOUT = {"width": "21em", "flex": "0 0 auto"}
 BOX_LAYOUT = {"width": "7em", "flex": "0 0 auto"}
 RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range starts at 0
+RATE_SPAN = 1.5    # a rate slider spans this many decades either side of the value it was centred on
+
+
+class Entry(W.Text):
+    """A text box that also takes a number assigned from code (shown as its text)."""
+
+    value = AnyTrait("", help="the text (a number assigned from code becomes its text)").tag(sync=True)
+
+    @validate("value")
+    def _as_text(self, proposal: dict) -> str:
+        v = proposal["value"]
+        return v if isinstance(v, str) else number_text(v)
+
+
+def number_text(v) -> str:
+    """The text a box shows for a value: whole numbers with thousands separators, rates exactly.
+
+    >>> number_text(3450), number_text(0.1003), number_text(3e-06)
+    ('3,450', '0.1003', '3e-06')
+    """
+    if isinstance(v, bool) or v is None:
+        return str(v)
+    if isinstance(v, int) or (isinstance(v, float) and v.is_integer() and abs(v) >= 1):
+        return f"{int(v):,}"
+    return repr(float(v))
+
+
+#: Words shown for parameter names (the name itself when absent).
+WORDS = {"steps": "length", "peak": "peak rate", "floor": "end rate", "start": "start rate", "end": "end rate",
+         "lr": "rate", "every": "every", "at": "drops at", "factor": "multiply by", "power": "power",
+         "warmup": "rise over", "low": "low rate", "high": "high rate", "final": "final rate",
+         "half_period": "half period", "curve": "curve", "cycles": "cycles", "growth": "growth",
+         "peak_decay": "peak decay", "points": "points", "up": "rising share"}
 
 
 def parse_ticklist(owner: str, name: str, text: str) -> tuple[int, ...]:
@@ -131,9 +170,13 @@ class ParamControl:
     def __init__(self, owner: str, name: str, p: Param, value: Any, budget: int,
                  on_commit: Callable[[str, Any], None],
                  guard: Callable[[Callable], Callable] = lambda fn: fn, label: str | None = None,
-                 label_width: str | None = None) -> None:
+                 label_width: str | None = None, context: Callable[[], tuple] | None = None) -> None:
         self.owner, self.name, self.p, self.on_commit = owner, name, p, on_commit
-        words = label or name
+        # context() -> (unit, steps per epoch, run total, peak to take shares of); lengths and rates read it
+        self.context = context or (lambda: ("step", None, budget, None))
+        self.value = value
+        self.words: W.HTML | None = None
+        words = label or WORDS.get(name, name)
         style = {"description_width": label_width} if label_width else LABEL
         self._quiet = 0
         self._shown: float | None = None  # the value the kernel last put into the slider
@@ -142,19 +185,34 @@ class ParamControl:
         self.none: W.Checkbox | None = None
         tip = p.doc
         k = p.kind
-        if k == "rate" or (k == "ratio" and p.log):
+        if k == "rate":
+            lo, hi = self._rate_range(value)
+            self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
+                                           readout=False, style=style, layout=SLIDER_LAYOUT)
+            self.slider.add_class("sw-rate")
+            self.text = Entry(tooltip=tip + "; a number, or a share of the peak such as 1 %",
+                              continuous_update=False, layout=BOX_LAYOUT)
+        elif k == "ratio" and p.log:
             lo, hi = _log_range(p)
             self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
                                            readout=False, style=style, layout=SLIDER_LAYOUT)
-            if k == "rate":
-                self.slider.add_class("sw-rate")
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
+        elif k == "ticks":
+            self.text = Entry(description=words, tooltip=tip + "; steps, epochs ('3 ep') or a share of the run "
+                              "('6 %'); a share or part of an epoch rounds up", continuous_update=False,
+                              style=style, layout={"width": "15em", "flex": "0 0 auto"})
+            self.text.add_class("sw-length")
+            self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})
+            self.words.add_class("sw-length-words")
+            if p.optional:
+                self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
+                                       layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
         elif k == "ratio":
             lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
             self.slider = W.FloatSlider(min=lo, max=hi, step=round_step(lo, hi), description=words, tooltip=tip,
                                         readout_format=".4g", style=style, layout=SLIDER_LAYOUT)
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
-        elif k in ("ticks", "count"):
+        elif k == "count":
             self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=words,
                                       tooltip=tip, style=style, layout=SLIDER_LAYOUT)
             self.text = W.IntText(tooltip=tip, layout=BOX_LAYOUT)
@@ -177,7 +235,8 @@ class ParamControl:
         parts = [w for w in (self.slider, self.text, self.none) if w is not None]
         for w in parts:
             w.observe(guard(self._edited), names="value")
-        self.box = W.HBox(parts)
+        self.box = W.HBox(parts + ([self.words] if self.words is not None else []),
+                          layout={"align_items": "center"})
 
     # ---------------------------------------------------------------- ranges
     def _int_lo(self) -> int:
@@ -191,6 +250,13 @@ class ParamControl:
         if isinstance(value, int):
             hi = max(hi, min(value, 10 ** 12)) if self.p.kind == "ticks" else hi
         return hi
+
+    def _rate_range(self, value: Any) -> tuple[float, float]:
+        """Exponents of a rate slider: RATE_SPAN decades either side of ``value`` (of the soft range when 0)."""
+        if isinstance(value, (int, float)) and value > 0 and math.isfinite(value):
+            c = math.log10(value)
+            return round(c - RATE_SPAN, 2), round(c + RATE_SPAN, 2)
+        return _log_range(self.p)
 
     def _slider_bounds(self) -> tuple[float, float]:
         s = self.slider
@@ -211,10 +277,31 @@ class ParamControl:
             if self.none is not None:
                 put(self.none, value is None)
                 for w in (self.slider, self.text):
-                    put(w, value is None, "disabled")
+                    if w is not None:
+                        put(w, value is None, "disabled")
+                if value is None and self.slider is None:
+                    self.value = value
+                    put(self.text, "")
+                    put(self.words, "")
+                    return
                 if value is None:  # park the slider where unticking "open-ended" should start from
                     put(self.slider, self.slider.max if k == "ticks" else min(self.slider.min + 1, self.slider.max))
                     return
+            self.value = value
+            if k == "ticks":
+                put(self.text, number_text(value))
+                unit, spe, total, _peak = self.context()
+                put(self.words, html_words(length_words(value, unit, spe, total)))
+                return
+            if k == "rate" and isinstance(value, (int, float)):
+                lo, hi = self.slider.min, self.slider.max
+                v = math.log10(value) if value > 0 else None
+                if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
+                    a, b = self._rate_range(value)
+                    if a > self.slider.max:
+                        self.slider.max, self.slider.min = b, a
+                    else:
+                        self.slider.min, self.slider.max = a, b
             if k == "ticklist":
                 put(self.text, ", ".join(str(t) for t in value))
             elif k == "points":
@@ -265,11 +352,19 @@ class ParamControl:
             self._shown = change["new"]  # later moves are whole steps from here
             return
         if w is self.none:
-            value = None if change["new"] else self.slider.value
+            if self.slider is None:  # a length: back to the whole run when open-ended is unticked
+                value = None if change["new"] else max(1, int(self.context()[2] or 1))
+            else:
+                value = None if change["new"] else self.slider.value
         elif self.p.kind == "ticklist":
             value = parse_ticklist(self.owner, self.name, change["new"])
         elif self.p.kind == "points":
             value = parse_points(self.owner, self.name, change["new"])
+        elif self.p.kind == "ticks" and w is self.text:
+            unit, spe, total, _peak = self.context()
+            value = parse_length(change["new"], unit, spe, total, self.owner, self.name, int(self.p.lo or 0))
+        elif self.p.kind == "rate" and w is self.text:
+            value = parse_rate(change["new"], self.context()[3], self.owner, self.name)
         elif w is self.slider:
             value = self._slider_value(change["new"])
         else:
@@ -278,11 +373,17 @@ class ParamControl:
         if w is self.slider and self.text is not None and self.none is None:
             # a moved slider shows what the design now holds, also when its value rounded to the design's
             # own (no redraw then, so nothing else would put it back)
-            self.show(self.text.value)
+            self.show(self.value)
+        elif w is self.text and self.p.kind in ("ticks", "rate"):
+            self.show(self.value)  # "3 ep" or "1 %" is shown as the value it became
 
     def widgets(self) -> list[W.Widget]:
         """Every widget of this row."""
         return [w for w in (self.slider, self.text, self.none) if w is not None]
+
+
+def html_words(text: str) -> str:
+    return f'<span style="color:#4b5563;font-size:12px">{text}</span>' if text else ""
 
 
 def from_browser(widget: W.Widget, trait: str) -> bool:

@@ -124,11 +124,7 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned")
     def _changed(self, change: dict) -> None:
         with self._one_redraw():
-            self._dirty = True
-            old, new = change["old"], change["new"]
-            if change["name"] == "schedule" and isinstance(old, Schedule) and old.length == self.steps \
-                    and new.length is not None:
-                self.steps = new.length  # the budget follows a design it was following
+            self._dirty = True  # the run's length (steps) never follows the design: a mismatch is a caution
 
     @contextmanager
     def _one_redraw(self) -> Iterator[None]:

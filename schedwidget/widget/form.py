@@ -26,14 +26,20 @@ from ..combine import Restarts, Stages, Warmup, restarts, stages, warmup
 from ..schedule import Param, Schedule, ScheduleError, complain
 from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle, cosine
 
-__all__ = ["LEAVES", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale", "demo_design",
-           "whole"]
+__all__ = ["LEAVES", "SHAPE_WORDS", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale",
+           "demo_design", "whole", "filler", "fit_run", "stage_span", "reshape"]
 
 DEMO_STEPS_PER_EPOCH, DEMO_EPOCHS, DEMO_BATCH = 1150, 90, 128
 
 #: Leaf shapes a stage can be, by kind (the "add stage" menu, in this order).
 LEAVES: dict[str, type[Schedule]] = {c.kind: c for c in (
     Cosine, Ramp, Flat, ExpDecay, Drops, Poly, InvSqrt, Triangle, OneCycle, Knots)}
+
+#: The shapes in words, as the menus show them (published methods keep their usual names).
+SHAPE_WORDS: dict[str, str] = {
+    "cosine": "cosine annealing", "ramp": "straight line", "flat": "constant", "exp_decay": "exponential decay",
+    "drops": "step drops", "poly": "polynomial decay", "inv_sqrt": "inverse square root",
+    "triangle": "triangle (cyclical)", "one_cycle": "one-cycle", "knots": "rates at chosen points"}
 
 
 @dataclass(frozen=True)
@@ -134,6 +140,79 @@ def new_stage(kind: str, rate: float, length: int) -> Schedule:
     if kind not in made:
         raise complain("designer", "shape", kind, "one of " + ", ".join(repr(k) for k in LEAVES))
     return made[kind]()
+
+
+# ------------------------------------------------------------------ the run as the frame
+def _fixed_length(stage: Schedule) -> bool:
+    """Whether a stage's length is its own ``steps`` parameter (so it can fill the rest of the run)."""
+    return type(stage) in LEAVES.values() and "steps" in type(stage).params() and stage.steps is not None
+
+
+def filler(form: Form, chosen: int | None = None) -> int | None:
+    """The stage that fills the rest of the run: ``chosen`` when it can, else the longest stage with a length
+    of its own (the main decay stage in the usual designs), else None.
+
+    >>> from schedwidget import cosine, flat
+    >>> filler(Form((flat(0.1, steps=10), cosine(0.1, steps=90))))
+    1
+    """
+    if chosen is not None and 0 <= chosen < len(form.stages) and _fixed_length(form.stages[chosen]):
+        return chosen
+    best = None
+    for i, st in enumerate(form.stages):
+        if _fixed_length(st) and (best is None or st.steps > form.stages[best].steps):
+            best = i
+    return best
+
+
+def fit_run(form: Form, total: int, chosen: int | None = None, keep: int | None = None,
+            edited: tuple[str, str, Any] | None = None) -> Form:
+    """``form`` with its filling stage lengthened or shortened so the design is exactly ``total`` ticks long.
+
+    Nothing changes when the design is open-ended, has no stage that can fill, or the filling stage is
+    ``keep`` (the stage whose length the person just typed: then the design may differ from the run, and
+    the readout says so).  The arithmetic is the core's ``budget.absorb``.
+
+    >>> from schedwidget import cosine
+    >>> fit_run(Form((cosine(0.1, steps=95),), Warm(20)), 100).build().length
+    100
+    """
+    from ..budget import absorb
+
+    i = filler(form, chosen)
+    if i is None or i == keep or any(st.length is None for st in form.stages):
+        return form
+    lengths = [st.length for st in form.stages] + ([form.warm.steps] if form.warm is not None else [])
+    new = absorb(lengths, total, i, *(edited or ()))[i]
+    if new == form.stages[i].steps:
+        return form
+    stages_ = list(form.stages)
+    stages_[i] = dataclasses.replace(stages_[i], steps=new)
+    return Form(tuple(stages_), form.warm)
+
+
+def stage_span(form: Form, i: int) -> tuple[int, int | None]:
+    """Where stage ``i`` starts on the run's clock and its length (None: open-ended)."""
+    start = form.warm.steps if form.warm is not None else 0
+    for st in form.stages[:i]:
+        start += st.length or 0
+    return start, form.stages[i].length
+
+
+def reshape(stage: Schedule, kind: str) -> Schedule:
+    """``stage`` as a stage of shape ``kind`` over the same span, starting at the same rate.
+
+    >>> from schedwidget import cosine
+    >>> reshape(cosine(0.1, steps=100), "exp_decay").length, reshape(cosine(0.1, steps=100), "flat")(0)
+    (100, 0.1)
+    """
+    leaf = leaf_of(stage)
+    n = leaf.length if leaf.length is not None else 100
+    start = float(leaf(0))
+    new = new_stage(kind, start, n)
+    if kind == "knots":
+        new = Knots(points=((0, start), (n - 1, start / 10)), steps=n) if "steps" in Knots.params() else new
+    return new
 
 
 # ------------------------------------------------------------------ proportions

@@ -20,7 +20,9 @@ import numpy as np
 from ..combine import Restarts
 from ..schedule import Schedule, ScheduleError, as_whole, complain
 from .controls import LABEL, ParamControl, put
-from .form import LEAVES, Form, Warm, leaf_of, new_stage, read_form, rescale, whole
+from ..budget import ROUNDING
+from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, rescale, \
+    reshape, stage_span, whole
 from .guard import Panel, close_tree
 from .theme import BORDER
 
@@ -41,27 +43,33 @@ class StagesPanel(Panel, W.VBox):
     def __init__(self, designer: ScheduleDesigner) -> None:
         d = self.d = designer
         g = d.guarded
-        self.unit = W.Dropdown(options=[("steps", "step"), ("epochs", "epoch")], description="clock",
-                               tooltip="the unit of the design's clock: optimizer steps or epochs; changing it "
+        self.unit = W.Dropdown(options=[("steps", "step"), ("epochs", "epoch")], description="count in",
+                               tooltip="what the design counts: optimizer steps or epochs; changing it "
                                        "converts the design with steps per epoch when known", style=LABEL,
                                layout=BOX)
         self.spe = W.Text(description="steps/epoch", placeholder="unknown", continuous_update=False,
                           tooltip="optimizer steps per epoch (blank: unknown)", style=LABEL, layout=BOX)
-        self.total = W.IntText(description="total", tooltip="the budget in ticks of the clock; changing it "
-                                                          "scales every stage's ticks in proportion",
+        self.total = W.IntText(description="run length", tooltip="the whole run, in the unit counted; it stays "
+                               "as set while stages change (one stage fills the rest); changing it scales every "
+                               "stage in proportion",
                                style=LABEL, layout=BOX)
         self.total.add_class("sw-total")
         self.batch = W.Text(description="batch", placeholder="unknown", continuous_update=False,
                             tooltip="batch size per update (blank: unknown); used for cautions and Rescale",
                             style=LABEL, layout=BOX)
-        self.total_words = W.Label("")
-        self.shape = W.Dropdown(options=list(LEAVES) + ["warmup"], value="cosine", description="shape",
-                                tooltip="the shape of the stage to add at the end ('warmup' goes first)",
-                                style=LABEL, layout=BOX)
+        self.total_words = W.HTML("")
+        self.total_words.add_class("sw-run-words")
+        self.shape = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES] + [("warmup", "warmup")],
+                                value="cosine", description="new stage",
+                                tooltip="the shape of the stage to add at the end, or after a stage with its + "
+                                        "button ('warmup' goes first)", style=LABEL, layout=BOX)
         self.shape.add_class("sw-add-shape")
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
         self.note = W.HTML("")
+        self.rule = W.HTML(f'<span style="color:#4b5563;font-size:12px">Lengths: steps, epochs (3 ep) or a share '
+                           f'of the run (6 %); {ROUNDING}. Rates: a number or a share of the peak (1 %).</span>')
+        self.fill: int | None = None  # the stage chosen to fill the rest of the run (None: the longest)
         self.list = W.VBox([])
         self.controls: list[list[ParamControl]] = []
         self.signature: tuple | None = None
@@ -71,8 +79,10 @@ class StagesPanel(Panel, W.VBox):
         self.total.observe(g(self._total_edited), names="value")
         self.batch.observe(g(self._batch_edited), names="value")
         self.add.on_click(g(self._add))
-        super().__init__([W.HBox([self.unit, self.spe]), W.HBox([self.total, self.batch]), self.total_words,
-                          W.HBox([self.shape, self.add]), self.note, self.list])
+        wrap = {"flex_flow": "row wrap"}
+        super().__init__([W.HBox([self.total, self.unit], layout=wrap), W.HBox([self.spe, self.batch], layout=wrap),
+                          self.total_words, self.rule, self.note, self.list,
+                          W.HBox([self.shape, self.add], layout=wrap)])
         d.observe(self._refused, names="error")
         self.listen(d)
 
@@ -102,15 +112,17 @@ class StagesPanel(Panel, W.VBox):
             put(self.spe, f"{d.steps_per_epoch}" if d.steps_per_epoch else "")
             put(self.total, d.steps)
             put(self.batch, f"{d.batch}" if d.batch else "")
-            words = f"{d.steps:,} {d.unit}s"
+            words = f"the run: {d.steps:,} {d.unit}s"
             if d.steps_per_epoch and d.unit == "step":
                 words += f" = {d.steps / d.steps_per_epoch:,.4g} epochs of {d.steps_per_epoch:,} steps"
             elif d.steps_per_epoch:
                 words += f" = {d.steps * d.steps_per_epoch:,} steps"
             if d.schedule.length is None:
-                words += " (open-ended design: this is the budget read and drawn)"
+                words += " (the design has no end: this much is drawn and read)"
             elif d.schedule.length != d.steps:
-                words += f" (the design itself is {d.schedule.length:,} {d.unit}s long)"
+                gap = d.schedule.length - d.steps
+                words += (f' <span style="color:#b45309">&#9888; the design is {d.schedule.length:,} {d.unit}s, '
+                          f'{abs(gap):,} {"more" if gap > 0 else "fewer"} than the run</span>')
             put(self.total_words, words)
             form = self.form
             put(self.note, "" if form is not None else f"<i>{NOT_EDITABLE}</i>")
@@ -137,9 +149,12 @@ class StagesPanel(Panel, W.VBox):
 
     def _show(self, form: Form) -> None:
         budget = self.d.steps
+        fill = filler(form, self.fill)
         for (where, obj), (box, rows) in zip(self._items(form), zip(self.list.children, self.controls)):
             header = box.children[0].children[0]
             put(header, html.escape(self._title(form, where)))
+            if where != "warm":
+                put(box.children[0].children[1], int(where) == fill)
             for c in rows:
                 c.show(getattr(_owner(obj, c), c.name), budget)
 
@@ -147,14 +162,14 @@ class StagesPanel(Panel, W.VBox):
     def _title(self, form: Form, where: str) -> str:
         starts = np.concatenate([[0], np.cumsum([s.length or 0 for s in form.stages])])
         w = form.warm.steps if form.warm is not None else 0
+        u = self.d.unit
         if where == "warm":
-            return f"warmup · {self.d.unit}s 0–{w:,}"
+            return f"warmup · {u}s 0–{w:,}"
         i = int(where)
         s = form.stages[i]
-        kind = leaf_of(s).kind + (" (repeated)" if isinstance(s, Restarts) else "")
         a = w + int(starts[i])
-        span = f"from {self.d.unit} {a:,}" if s.length is None else f"{self.d.unit}s {a:,}–{a + s.length:,}"
-        return f"stage {i}: {kind} · {span}"  # the number designer.control(i, ...) takes
+        span = f"from {u} {a:,}" if s.length is None else f"{u}s {a:,}–{a + s.length:,}"
+        return f"stage {i}{' (repeated)' if isinstance(s, Restarts) else ''} · {span}"  # as designer.control(i, ...)
 
     def _rebuild(self, form: Form) -> None:
         boxes, self.controls = [], []
@@ -175,11 +190,26 @@ class StagesPanel(Panel, W.VBox):
             down.on_click(self.d.guarded(lambda _b, w=where: self._move(w, +1)))
             head = [title, up, down, remove]
             if where != "warm":
+                fills = W.Checkbox(value=int(where) == filler(form, self.fill), description="fills the rest",
+                                   indent=False, tooltip="this stage grows or shrinks so the design keeps the run's "
+                                   "length when other stages change", layout={"width": "8em", "flex": "0 0 auto"})
+                fills.add_class("sw-fills")
+                fills.observe(self.d.guarded(lambda ch, w=where: self._fills(w, ch["new"])), names="value")
+                kind = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES], value=leaf_of(obj).kind,
+                                  tooltip="change this stage's shape: same span, same starting rate",
+                                  layout={"width": "11em", "flex": "0 0 auto"})
+                kind.add_class("sw-stage-shape")
+                kind.observe(self.d.guarded(lambda ch, w=where: self._reshape(w, ch["new"])), names="value")
                 rep = W.Checkbox(value=isinstance(obj, Restarts), description="repeat", indent=False,
-                                 tooltip="repeat this stage as warm restarts",
+                                 tooltip="repeat this stage (warm restarts)",
                                  layout={"width": "5.5em", "min_width": "5.5em", "flex": "0 0 auto"})
                 rep.observe(self.d.guarded(lambda ch, w=where: self._repeat(w, ch["new"])), names="value")
-                head.insert(1, rep)
+                insert = W.Button(description="+", tooltip="insert a stage of the 'new stage' shape after this one",
+                                  layout=BUTTON)
+                insert.add_class("sw-insert")
+                insert.on_click(self.d.guarded(lambda _b, w=where: self._insert(int(w) + 1)))
+                title.layout.flex = "1 1 100%"
+                head = [title, fills, kind, rep, up, down, insert, remove]
             parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if isinstance(obj, Restarts) else ["leaf"])
             for part in parts:
                 target = obj if part != "leaf" else leaf_of(obj)
@@ -201,8 +231,20 @@ class StagesPanel(Panel, W.VBox):
 
     def _control(self, where: str, part: str, target: Any, name: str, p) -> ParamControl:
         owner = "warmup" if part == "warm" else target.kind
+        d = self.d
+
+        def context(w: str = where) -> tuple:
+            form = self.form
+            peak = None
+            if form is not None and w != "warm" and int(w) < len(form.stages):
+                peak = getattr(leaf_of(form.stages[int(w)]), "peak", None)
+            if peak is None and d.facts is not None:
+                peak = d.facts.peak
+            return d.unit, d.steps_per_epoch, d.steps, peak
+
         c = ParamControl(owner, name, p, getattr(target, name), self.d.steps,
-                         lambda n, v, w=where, pt=part: self._edit(w, pt, n, v), guard=self.d.guarded)
+                         lambda n, v, w=where, pt=part: self._edit(w, pt, n, v), guard=self.d.guarded,
+                         context=context)
         c.part = part  # type: ignore[attr-defined]
         return c
 
@@ -227,7 +269,11 @@ class StagesPanel(Panel, W.VBox):
         raise complain("designer", "name", name, f"one of {names}")
 
     # -------------------------------------------------------------- editing
-    def _propose(self, form: Form) -> None:
+    def _propose(self, form: Form, keep: int | None = None, edited: tuple | None = None) -> None:
+        """Make ``form`` the design; the stage that fills the rest keeps the run's length (not when it is ``keep``,
+        the stage whose own length was typed)."""
+        if self.d.schedule.length == self.d.steps or self.d.schedule.length is None:
+            form = fit_run(form, self.d.steps, self.fill, keep, edited)
         self.d.propose(form.build())
 
     def _edit(self, where: str, part: str, name: str, value: Any) -> None:
@@ -235,8 +281,13 @@ class StagesPanel(Panel, W.VBox):
             return
         form = self.form
         if where == "warm":
-            self._propose(Form(form.stages, dataclasses.replace(form.warm, **{name: value})))
+            self._propose(Form(form.stages, dataclasses.replace(form.warm, **{name: value})),
+                          edited=("warmup", name, value))
             return
+        if name == "steps" and part != "repeat" and int(where) == filler(form, self.fill):
+            keep = int(where)
+        else:
+            keep = None
         i = int(where)
         stages_ = list(form.stages)
         s = stages_[i]
@@ -246,6 +297,48 @@ class StagesPanel(Panel, W.VBox):
             stages_[i] = dataclasses.replace(s, target=dataclasses.replace(s.target, **{name: value}))
         else:
             stages_[i] = dataclasses.replace(s, **{name: value})
+        edited = (leaf_of(s).kind, name, value) if name == "steps" and part != "repeat" else None
+        self._propose(Form(tuple(stages_), form.warm), keep, edited)
+
+    def _fills(self, where: str, on: bool) -> None:
+        """Choose the stage that fills the rest of the run (unticking goes back to the longest stage)."""
+        if self._quiet:
+            return
+        self.fill = int(where) if on else None
+        self.redraw()
+
+    def _reshape(self, where: str, kind: str) -> None:
+        """Give stage ``where`` another shape, keeping its span and its starting rate."""
+        if self._quiet:
+            return
+        form = self.form
+        i = int(where)
+        stages_ = list(form.stages)
+        s = stages_[i]
+        new = reshape(s, kind)
+        stages_[i] = dataclasses.replace(s, target=new) if isinstance(s, Restarts) else new
+        self._propose(Form(tuple(stages_), form.warm))
+
+    def _insert(self, at: int) -> None:
+        """Insert a stage of the chosen shape at position ``at``: it starts at the rate where the stage before it
+        ends and lasts a tenth of the run (taken from the stage that fills the rest)."""
+        form = self.form
+        kind = self.shape.value
+        if form is None or kind == "warmup":
+            return self._add()
+        if at > 0:
+            before = leaf_of(form.stages[at - 1])
+            n = before.length
+            rate = float(before(n - 1)) if n else float(before(0))
+        else:
+            rate = float(leaf_of(form.stages[0])(0))
+        peak = self.d.facts.peak if self.d.facts is not None else 0.0
+        if not rate > peak * 1e-6:  # a stage before that ends at (about) 0: start the new one at the peak
+            rate = self.d.facts.peak if self.d.facts is not None and self.d.facts.peak > 0 else 0.1
+        stages_ = list(form.stages)
+        stages_.insert(at, new_stage(kind, rate, max(3, self.d.steps // 10)))
+        if self.fill is not None and self.fill >= at:
+            self.fill += 1
         self._propose(Form(tuple(stages_), form.warm))
 
     def _repeat(self, where: str, on: bool) -> None:
@@ -267,7 +360,10 @@ class StagesPanel(Panel, W.VBox):
             self._propose(Form(form.stages, None))
             return
         stages_ = list(form.stages)
-        del stages_[int(where)]
+        i = int(where)
+        del stages_[i]
+        if self.fill is not None:
+            self.fill = None if self.fill == i else self.fill - (self.fill > i)
         self._propose(Form(tuple(stages_), form.warm))
 
     def _move(self, where: str, by: int) -> None:
@@ -278,6 +374,8 @@ class StagesPanel(Panel, W.VBox):
         if where == "warm" or not 0 <= j < len(stages_):
             return
         stages_[i], stages_[j] = stages_[j], stages_[i]
+        if self.fill in (i, j):
+            self.fill = j if self.fill == i else i
         self._propose(Form(tuple(stages_), form.warm))
 
     def _add(self, _button: Any = None) -> None:
@@ -285,7 +383,6 @@ class StagesPanel(Panel, W.VBox):
         form = self.form
         if form is None:
             return
-        s = self.d.schedule
         n = self.d.steps
         kind = self.shape.value
         if kind == "warmup":
@@ -294,10 +391,7 @@ class StagesPanel(Panel, W.VBox):
                                     "(edit the warmup at the top, or remove it first)")
             self._propose(Form(form.stages, Warm(steps=max(1, n // 20))))
             return
-        end = s(s.length) if s.length is not None else s(n)
-        peak = self.d.facts.peak if self.d.facts is not None else 0.1
-        rate = end if end > 0 else peak
-        self._propose(Form(form.stages + (new_stage(kind, rate, max(3, n // 10)),), form.warm))
+        self._insert(len(form.stages))
 
     # --------------------------------------------------------------- budget
     def _unit_edited(self, change: dict) -> None:

@@ -7,13 +7,24 @@ greys, stage joins thin dotted slate, cautions amber; no dark theme.
 
 from __future__ import annotations
 
+import html
+import math
+import warnings
+
 import ipywidgets as W
+import numpy as np
 from traitlets import Int, observe
 
 from ..svg import CURVE, GHOSTS, JOIN
 
+with warnings.catch_warnings():
+    # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
+    warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
+    from bqplot import Axis, LinearScale, LogScale
+
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER",
-           "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs"]
+           "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
+           "rate", "count", "share", "RateAxes", "legend_html", "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
 AMBER = "#b45309"      # cautions
@@ -89,3 +100,116 @@ class Tabs(W.VBox):
     def fill(self, i: int, panel: W.Widget) -> None:
         """Put ``panel`` into pane ``i``."""
         self.children[i].children = (panel,)
+
+
+# ------------------------------------------------------------------ one number format for the whole widget
+TINY = 1e-9  # a rate this small relative to nothing else is shown as ~0 (the exact value goes in a tooltip)
+
+
+def rate(x: float) -> str:
+    """A rate to 3 significant digits; a tiny positive value as ``~0``.
+
+    >>> rate(0.1), rate(3e-4), rate(2.58e-11), rate(0.0), rate(0.099982)
+    ('0.1', '0.0003', '~0', '0', '0.1')
+    """
+    if x == 0 or not math.isfinite(x):
+        return f"{x:g}"
+    if abs(x) < TINY:
+        return "~0"
+    return f"{x:.3g}"
+
+
+def count(n: float) -> str:
+    """A whole count with thousands separators: ``103,500``."""
+    return f"{int(n):,}"
+
+
+def share(x: float) -> str:
+    """A share as a percentage with a space: ``3.3 %``."""
+    return f"{100 * x:.2g} %"
+
+
+def nice_ceiling(x: float) -> float:
+    """The smallest of 1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6, 8 x 10^k at or above ``x`` (> 0).
+
+    >>> nice_ceiling(0.103), nice_ceiling(3e-4), nice_ceiling(0.26)
+    (0.12, 0.0003, 0.3)
+    """
+    if not x > 0 or not math.isfinite(x):
+        return 1.0
+    k = math.floor(math.log10(x))
+    for m in (1, 1.2, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10):
+        v = float(f"{m * 10.0 ** k:.12g}")
+        if v >= x * (1 - 1e-12):
+            return v
+    return float(f"{10.0 ** (k + 1):.12g}")  # pragma: no cover
+
+
+class RateAxes:
+    """A rate axis that is linear or logarithmic: two scales, each with an axis of its own, one shown.
+
+    The front end keeps an axis's tick positions when the axis is given another scale (the log labels
+    all at one spot, log-spaced ticks back on the linear axis, NaN transforms); so the axes are never
+    given another scale: ``show(log)`` only switches which one is visible.
+    """
+
+    def __init__(self, colour: str | None = None) -> None:
+        self.linear_scale = LinearScale(min=0.0, max=1.0)
+        self.log_scale = LogScale(min=1e-6, max=1.0)
+        extra = {"color": colour} if colour else {}
+        self.linear = Axis(scale=self.linear_scale, side="left", tick_format=".2~g",
+                           label="", **extra)
+        self.log = Axis(scale=self.log_scale, side="left", tick_format=".0e", label="",
+                        visible=False, tick_values=np.array([1e-6, 1e-3, 1.0]), **extra)
+        self.axes = [self.linear, self.log]
+
+    @property
+    def is_log(self) -> bool:
+        return bool(self.log.visible)
+
+    @property
+    def shown(self) -> Axis:
+        return self.log if self.is_log else self.linear
+
+    def show(self, log: bool) -> None:
+        if self.log.visible != log:
+            self.log.visible = log
+            self.linear.visible = not log
+
+    def fit_linear(self, hi: float) -> None:
+        """0 .. a round number above ``hi``, kept while ``hi`` stays above 40 % of it."""
+        top = self.linear_scale.max
+        if not (hi > 0 and math.isfinite(hi)):
+            hi = 1.0
+        if top is None or not (hi <= top <= 2.5 * hi):
+            new = nice_ceiling(hi * 1.02)
+            if self.linear_scale.max != new or self.linear_scale.min != 0.0:
+                with self.linear_scale.hold_sync():
+                    self.linear_scale.min, self.linear_scale.max = 0.0, new
+
+    def fit_log(self, lo: float, hi: float) -> None:
+        """Powers of ten from under ``lo`` to over ``hi`` (at most 8 labels)."""
+        lo, hi = max(lo, 1e-300), max(hi, 1e-300)
+        a, b = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
+        if b <= a:
+            b = a + 1
+        every = max(1, math.ceil((b - a + 1) / 8))
+        ticks = 10.0 ** np.arange(a, b + 1, every)
+        # a little room below the lowest tick, so its label does not touch the x axis's first label
+        lo_s, hi_s = float(10.0 ** (a - 0.3)), float(10.0 ** (b + 0.05))
+        if (self.log_scale.min, self.log_scale.max) != (lo_s, hi_s):
+            with self.log_scale.hold_sync():
+                self.log_scale.min, self.log_scale.max = lo_s, hi_s
+        if self.log.tick_values is None or not np.array_equal(self.log.tick_values, ticks):
+            self.log.tick_values = ticks
+
+
+def legend_html(rows: list[tuple[str, str, float]]) -> str:
+    """A compact legend: one line per (colour, name, last rate), the colour as a short bar."""
+    out = []
+    for colour, name, last in rows:
+        out.append(f'<div class="sw-legend-item" style="display:flex;align-items:center;gap:6px;'
+                   f'font-size:12px;line-height:1.5;white-space:nowrap;overflow:hidden;text-overflow:ellipsis">'
+                   f'<span style="display:inline-block;width:18px;height:3px;background:{colour};flex:0 0 auto">'
+                   f'</span><span title="{html.escape(name)} (last rate {rate(last)})">{html.escape(name)}</span></div>')
+    return "".join(out)
