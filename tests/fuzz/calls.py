@@ -451,6 +451,14 @@ CORPUS = [
     "to_python(flat(0.1), unit=np.array(['step']))",
     "facts(flat(0.1), steps=10, unit=np.array(['step']))",
     "scale_for_batch(flat(0.1, steps=10), 1, 2, rule=np.array(['linear']))",
+    "read_metric(10**5000 - 1)",  # --seed 2 --scale 4
+    # --seed 2 --scale 4: a valid design whose export took 1.2 s CPU (nested shrinking restarts, huge cycle counts)
+    "restarts(restarts(stages(ramp(3.5216220173827844e-06, 0.20764738050137269, steps=53), "
+    "restarts(ramp(1.3618848887976135e-06, 0.0027048402837452114, steps=46962, curve='cosine'), cycles=1, "
+    "growth=1.938750461951282, peak_decay=0.4865088876768176), flat(0.005094960999786323, steps=197), "
+    "exp_decay(0.021849418901487987, 0.745153686955058, every=9, steps=61) * 3.219811257689282), "
+    "cycles=10**12, growth=0.5, peak_decay=0.5630318302335382), cycles=4503599627370497, growth=0.5, "
+    "peak_decay=0.5000001)",
 ]
 
 
