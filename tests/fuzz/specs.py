@@ -271,8 +271,8 @@ def mutated_specs(rng: random.Random, n: int) -> list[Case]:
         for _ in range(rng.choice([1, 1, 1, 2, 3])):
             if not isinstance(spec, dict) or not isinstance(spec.get("schedule"), dict):
                 break
-            try:
-                spec, repro = rng.choice(MUTATORS)(rng, copy.deepcopy(spec))
+            try:  # in place, so values made by atoms keep their short source for the repro
+                spec, repro = rng.choice(MUTATORS)(rng, spec)
             except Exception:  # noqa: BLE001 - a mutator that cannot apply to an earlier mutation's output
                 continue
             if repro is not None:
