@@ -157,7 +157,9 @@ class TestReadoutPanel:
         html = d.readout.text.value
         assert "0.2 at step 5,750 (epoch 5.00)" in html
         assert f.sentence in html
-        assert "join 1: first tick after" in html and "held after the budget" in html
+        # the core's boundary labels in plain words (issue 13: no "tick", "join", "budget" on screen)
+        assert "stage change 1: first step after" in html and "after the run" in html
+        assert "tick" not in html.replace(f.sentence, "") and "join" not in html
         assert "sw-readout" in d.readout.text._dom_classes
 
     def test_cautions_in_amber(self):

@@ -114,7 +114,7 @@ class TestHiddenTabs:
         """Code is generated only when the Export tab is shown, once, for the latest design."""
         made = []
         real = codeview.code_for
-        monkeypatch.setattr(codeview, "code_for", lambda d, lang: made.append(d.schedule) or real(d, lang))
+        monkeypatch.setattr(codeview, "code_for", lambda d, *a: made.append(d.schedule) or real(d, *a))
         d = ScheduleDesigner(cosine(0.1, steps=1000))
         assert made == [] and d.export.stale
         for k in range(5):

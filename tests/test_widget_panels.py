@@ -256,7 +256,7 @@ class TestOtherPanels:
     def test_tabs_start_on_first_opening(self):
         """Four tabs in order; the Replay tab holds one panel (or a note) once it is selected."""
         d = ScheduleDesigner()
-        assert d.tabs.titles == ("Compare", "Export", "Replay", "Rescale")
+        assert d.tabs.titles == ("Compare", "Export", "Replay", "Rescale", "Numbers")
         assert d.tabs.children[2].children == ()
         d.tabs.selected_index = 2
         (panel,) = d.tabs.children[2].children
@@ -303,3 +303,37 @@ class TestStageWords:
         assert d.batch is None
         d.stages.spe.value = "abc"
         assert "designer: steps/epoch must be a whole number >= 1, or blank for unknown, got 'abc'" in d.error
+
+
+class TestExportReady:
+    """Export is usable at once (issue 13): base rate, param-group multipliers, highlighted code, a file written."""
+
+    def test_torch_with_base_rate_and_groups_written_to_a_file(self, tmp_path):
+        d = ScheduleDesigner()
+        d.tabs.selected_index = 1
+        e = d.export
+        e.language.value = "torch"
+        e.base.value = "3e-4"
+        e.groups.value = "1, 0.1"
+        assert "BASE_LR = 0.0003 " in e.code.value and "GROUP_MULTIPLIERS = (1.0, 0.1) " in e.code.value
+        assert 'style="' in e.view.value and "<span" in e.view.value  # coloured by pygments
+        target = tmp_path / "sched.py"
+        e.code_path.value = str(target)
+        e.write_button.click()
+        assert target.read_text("utf-8") == e.code.value and "code written to" in e.message.value
+        compile(target.read_text("utf-8"), str(target), "exec")
+
+    def test_bad_group_text_names_the_box(self):
+        d = ScheduleDesigner()
+        d.tabs.selected_index = 1
+        d.export.language.value = "torch"
+        d.export.groups.value = "1, fast"
+        assert "export: param group multipliers[1] must be a number > 0, got 'fast'" in d.error
+
+    def test_export_cautions_a_design_that_does_not_fit_the_run(self):
+        d = ScheduleDesigner()
+        d.tabs.selected_index = 1
+        d.control(0, "steps").text.value = "80 ep"     # the filling stage itself: the run stays 103,500
+        assert d.steps == 103_500 and d.schedule.length == 5750 + 92_000
+        assert "5,750 fewer than the run of 103,500" in d.export.caution.value
+        assert "97,750 steps long but the budget is 103,500" in d.readout.cautions.value

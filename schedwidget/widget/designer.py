@@ -87,23 +87,28 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.unit, self.steps_per_epoch, self.batch = unit, steps_per_epoch, batch
         self.steps = schedule.length if steps is None else steps
         self.schedule = schedule
-        self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale"))
+        self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale", "Numbers"))
         self.canvas = CurvePanel(self, "epochs" if unit == "epoch" else "steps")  # observes first: marks first
         self.observe(self._derive, names="revision")  # then the facts every other panel reads
         self.readout, self.stages = ReadoutPanel(self), StagesPanel(self)
         self.compare, self.export = ComparePanel(self, tab=0), ExportPanel(self, tab=1)
         self.error_line = W.HTML("", style={"text_color": ERROR_RED})
         self.error_line.add_class("sw-error")
-        self.stages.list.layout = W.Layout(max_height="560px", overflow="auto")
-        left = W.VBox([W.HTML("<b>Stages</b>"), self.stages, self.error_line],
-                      layout={"width": "430px", "flex": "0 0 auto", "padding": "0 8px 0 0"})
-        right = W.VBox([self.canvas, self.compare.pin_row, self.readout],
-                       layout={"flex": "1 1 auto", "min_width": "0", "width": "auto"})
+        self.stages.list.layout = W.Layout(max_height="380px", overflow="auto")
+        left = W.VBox([self.stages, self.error_line],
+                      layout={"width": "440px", "flex": "0 0 440px", "padding": "0 8px 0 0"})
+        right = W.VBox([self.canvas, self.readout, self.compare.pin_row],
+                       layout={"flex": "1 1 620px", "min_width": "0", "width": "auto"})
+        left.add_class("sw-left")
+        right.add_class("sw-right")
         self.tabs.fill(0, self.compare)
         self.tabs.fill(1, self.export)
+        self.tabs.fill(4, self.readout.text)
         self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}  # started when first shown
         self.tabs.observe(self.guarded(self._tab_changed), names="selected_index")
-        self.children = [W.HBox([left, right]), self.tabs.bar, self.tabs]
+        # side by side when there is room (440 + 620 px), one above the other below that
+        self.children = [W.Box([left, right], layout={"flex_flow": "row wrap", "width": "100%"}), self.tabs.bar,
+                         self.tabs]
         self.add_class("sw-designer")
         self._hold = 0
         self._refresh()

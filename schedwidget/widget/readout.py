@@ -14,7 +14,7 @@ import ipywidgets as W
 from ..facts import Facts
 from ..svg import render_svg
 from .guard import Panel
-from .theme import AMBER
+from .theme import AMBER, rate
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -33,34 +33,58 @@ def when(t: int | None, f: Facts) -> str:
 
 
 def _g(x: float) -> str:
-    return f"{x:.4g}"
+    return rate(x)
+
+
+def _length(n: float, f: Facts) -> str:
+    """A length in the clock's unit, with epochs when they are known: ``15,540 steps (13.5 epochs)``."""
+    words = f"{n:,.0f} {f.unit}s"
+    if f.steps_per_epoch and f.unit == "step":
+        words += f" ({n / f.steps_per_epoch:,.3g} epochs)"
+    return words
+
+
+#: The core's boundary labels in plain words.
+BOUNDARY_WORDS = (("last tick before", "last {u} before"), ("first tick after", "first {u} after"),
+                  ("first tick", "start"), ("last tick", "end"), ("join", "stage change"),
+                  ("held after the budget", "after the run"))
+
+
+def _plain(label: str, unit: str) -> str:
+    for a, b in BOUNDARY_WORDS:
+        label = label.replace(a, b.format(u=unit))
+    return label
 
 
 def facts_html(f: Facts) -> str:
     """The readout as HTML: sentence, a table of numbers, the boundary table."""
     e = html.escape
     unit = f.unit
-    half = "—" if f.half_life is None else f"{f.half_life:,.4g} {unit}s"
+    half = "—" if f.half_life is None else _length(f.half_life, f)
     rows = [
         ("peak", f"{_g(f.peak)} at {when(f.peak_at, f)}"),
-        ("final", f"{_g(f.final)} at {when(f.steps - 1, f)}; {_g(f.after)} after the budget"),
+        ("final", f"{_g(f.final)} at {when(f.steps - 1, f)}; {_g(f.after)} after the run"),
         ("minimum", f"{_g(f.minimum)} at {when(f.minimum_at, f)}"),
-        ("area", f"{f.area:,.6g} (sum of the rates; mean {_g(f.mean)})"),
+        ("sum of rates", f"{f.area:,.4g} over the run (mean rate {_g(f.mean)})"),
         ("half-life", half),
         ("under 10 % of peak", f"from {when(f.under_10, f)}" if f.under_10 is not None else "never"),
         ("under 1 % of peak", f"from {when(f.under_1, f)}" if f.under_1 is not None else "never"),
-        ("jumps", f"{len(f.breaks):,}" + (f" (first at {when(f.breaks[0], f)})" if f.breaks else "")),
+        ("sudden drops or jumps", f"{len(f.breaks):,}" + (f" (first at {when(f.breaks[0], f)})"
+                                                          if f.breaks else "")),
     ]
     if not f.exact:
-        rows.append(("read from", "an even grid of ticks plus every jump and join (the budget is long)"))
+        rows.append(("read from", f"an even grid of {unit}s plus every jump and stage change (the run is long)"))
     cell = 'style="text-align:left;padding:0 10px 0 0;line-height:1.5"'
     num = f"<table>{''.join(f'<tr><th {cell}>{e(k)}</th><td {cell}>{e(v)}</td></tr>' for k, v in rows)}</table>"
-    head = "".join(f"<th {cell}>{e(h)}</th>" for h in ("joins and ends", unit, "epoch" if f.steps_per_epoch else "",
+    head = "".join(f"<th {cell}>{e(h)}</th>" for h in ("where stages change", unit,
+                                                       "epoch" if f.steps_per_epoch and unit == "step" else "",
                                                        "rate"))
     body = []
     for label, t, r in f.boundary:
-        ep = f"{t / f.steps_per_epoch:,.3f}" if f.steps_per_epoch else ""
-        body.append("<tr>" + "".join(f"<td {cell}>{e(c)}</td>" for c in (label, f"{t:,}", ep, f"{r:.6g}")) + "</tr>")
+        ep = f"{t / f.steps_per_epoch:,.3f}" if f.steps_per_epoch and unit == "step" else ""
+        shown = f'<span title="{r!r}">{e(_g(r))}</span>'
+        body.append("<tr>" + "".join(f"<td {cell}>{c}</td>" for c in (e(_plain(label, unit)), f"{t:,}", ep, shown))
+                    + "</tr>")
     boundary = f"<table><tr>{head}</tr>{''.join(body)}</table>"
     return (f"<div style=\"margin:0 0 4px 0;line-height:1.4\">{e(f.sentence)}</div>"
             f"<div style=\"display:flex;flex-wrap:wrap;gap:4px 24px;align-items:flex-start\">{num}{boundary}</div>")
@@ -72,7 +96,8 @@ def cautions_html(f: Facts) -> str:
 
 
 class ReadoutPanel(Panel, W.VBox):
-    """The readout HTML (class ``sw-readout``) and the amber cautions HTML (class ``sw-caution``).
+    """The readout: the amber cautions (class ``sw-caution``) and the sentence (``sentence``) under the curve,
+    and the full readout (``text``, class ``sw-readout``: sentence and tables) for the Numbers tab.
 
     It shows the designer's ``facts`` (computed once per change by the designer, never here).
     """
@@ -82,7 +107,9 @@ class ReadoutPanel(Panel, W.VBox):
         self.text.add_class("sw-readout")
         self.cautions = W.HTML("", style={"text_color": AMBER})
         self.cautions.add_class("sw-caution")
-        super().__init__([self.cautions, self.text])
+        self.sentence = W.HTML("")
+        self.sentence.add_class("sw-sentence")
+        super().__init__([self.cautions, self.sentence])
         self.listen(designer)
 
     @property
@@ -102,6 +129,9 @@ class ReadoutPanel(Panel, W.VBox):
         text, warn = facts_html(f), cautions_html(f)
         if self.text.value != text:
             self.text.value = text
+        said = f'<div style="line-height:1.4;color:#374151">{html.escape(f.sentence)}</div>'
+        if self.sentence.value != said:
+            self.sentence.value = said
         if self.cautions.value != warn:
             self.cautions.value = warn
 
