@@ -70,10 +70,12 @@ class TestReplayPanel:
     """ReplayPanel shows the replay of the loaded history under the rule set in its controls."""
 
     def test_starts_on_demo_a(self):
-        """The first demo history is replayed with the default rule and drawn."""
+        """The first demo history is replayed with the rule's defaults and the opening lowest rate (1e-3 x the
+        start rate: at most three drops by 10x, common practice, no source), and drawn."""
         p = ReplayPanel(epoch_design())
         values = read_metric(demo_path("a"))
-        ref = replay_plateau(values, 0.1)
+        ref = replay_plateau(values, 0.1, floor=1e-4)
+        assert p.rule["floor"] == 1e-4 and len(ref.drops) == 3 and min(ref.rates[5:]) == pytest.approx(1e-4)
         x, y = step_line(ref.rates, ref.next_rate)
         assert np.array_equal(p.rate_line.x, x) and np.array_equal(p.rate_line.y, y)
         assert np.array_equal(p.metric_line.y, values)
@@ -104,7 +106,7 @@ class TestReplayPanel:
         lines = p.what_if_text().splitlines()
         assert len(lines) == 8
         for k, line in enumerate(lines, start=1):
-            epochs = replay_plateau(values, 0.1, patience=k, wait_after_drop=2).drop_epochs
+            epochs = replay_plateau(values, 0.1, patience=k, wait_after_drop=2, floor=1e-4).drop_epochs
             words = [str(e) if e < 90 else f"{e} (after the run)" for e in epochs]  # 90 evaluations
             assert line == f"patience {k}: " + (", ".join(words) or "none")
         assert f"<td {NUM}><b>3</b></td>" in p.whatif.value  # the current patience is the bold row
@@ -156,7 +158,7 @@ class TestReplayPanel:
         p.follow.value = True
         assert p.start.disabled
         values = read_metric(demo_path("a"))
-        ref = replay_plateau(values, None, base=d.schedule)
+        ref = replay_plateau(values, None, base=d.schedule, floor=1e-4)
         assert p.replay.rates[:5].tolist() == d.schedule(np.arange(5)).tolist()
         assert np.array_equal(p.replay.rates, ref.rates)
         d.schedule = warmup(flat(0.2), 10)  # the panel follows the design
@@ -216,6 +218,7 @@ class TestReplayReading:
     def test_tiny_rate_caution_and_what_if_title(self):
         """Floor 0 and many drops: an amber caution; the what-if strip names the history and the floor."""
         p = ReplayPanel(epoch_design())
+        p.controls["floor"].text.value = 0.0
         p.controls["patience"].text.value = 1
         assert min(p.replay.rates) < 1e-6 * 0.1  # demo a at patience 1 drops often enough
         assert "below 1e-06 x the start rate" in html.unescape(p.caution.value)
@@ -382,3 +385,12 @@ class TestMountedInDesigner:
             layout = d.tabs.children[i].layout
             assert layout.display is None and layout.width is None
             assert (layout.height, layout.visibility) == ("0px", "hidden")
+
+
+def test_rule_labels_say_what_the_numbers_do():
+    """No label is a framework's argument name (issue 13): each says what its number does."""
+    p = ReplayPanel(epoch_design())
+    shown = {c.slider.description if c.slider is not None else getattr(c.text, "description", "")
+             for c in p.controls.values()}
+    assert {"multiply rate by", "evaluations to wait", "lowest rate", "pause after a drop"} <= shown
+    assert not shown & {"factor", "patience", "mode", "threshold", "cooldown", "min_lr", "floor"}

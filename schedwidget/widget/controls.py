@@ -65,8 +65,8 @@ def number_text(v) -> str:
     """
     if isinstance(v, bool) or v is None:
         return str(v)
-    if isinstance(v, int) or (isinstance(v, float) and v.is_integer() and abs(v) >= 1):
-        return f"{int(v):,}"
+    if isinstance(v, int):
+        return f"{v:,}"
     return repr(float(v))
 
 

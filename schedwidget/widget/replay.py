@@ -31,7 +31,7 @@ from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
 from .guard import Panel, quietly
-from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, figure_layout
+from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, RateAxes, figure_layout
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -41,8 +41,14 @@ __all__ = ["ReplayPanel", "epoch_base", "step_line", "WHAT_IF_PATIENCE"]
 
 WHAT_IF_PATIENCE = tuple(range(1, 9))
 RULE_DEFAULTS = {name: getattr(PlateauRule(), name) for name in PlateauRule.params()}
-LABELS = {"goal": "goal", "relative": "relative tolerance", "factor": "factor", "patience": "patience",
-          "tolerance": "tolerance", "wait_after_drop": "wait after drop", "floor": "floor"}
+#: What each number does, in words (not a framework's argument names).
+LABELS = {"goal": "better is", "relative": "margin is a share of the best", "factor": "multiply rate by",
+          "patience": "evaluations to wait", "tolerance": "better by at least", "wait_after_drop": "pause after a drop",
+          "floor": "lowest rate"}
+GOAL_WORDS = {"max": "higher (accuracy)", "min": "lower (loss)"}
+#: The lowest rate the panel opens with, as a share of the start rate: at most three drops by 10x
+#: (common practice, no source); the rule's own default, 0, let the demo fall through 11 drops to 1e-12.
+OPENING_FLOOR = 1e-3
 TINY = 1e-6  # a replayed rate below this times the start rate gets an amber caution
 COUNTERFACTUAL = ("A replay is counterfactual. The first drop is faithful only if the logged run used the same "
                   "rate up to it; later drops read metrics that the replayed rates never produced: indicative only.")
@@ -118,6 +124,7 @@ class ReplayPanel(Panel, W.VBox):
         self.replay: PlateauReplay | None = None
         self.what_if: dict[int, PlateauReplay] = {}
         self.rule: dict[str, Any] = dict(RULE_DEFAULTS)
+        self.rule["floor"] = float(f"{self._default_start() * OPENING_FLOOR:.3g}")
         self._active = "demo"
         g = self._guard
         # ---------------------------------------------------------- source
@@ -137,9 +144,11 @@ class ReplayPanel(Panel, W.VBox):
         self.path.observe(g(lambda c: self._source("path")), names="value")
         self.column.observe(g(lambda c: self._source(self._active)), names="value")
         # ------------------------------------------------------------ rule
-        self.controls = {name: ParamControl("replay_plateau", name, p, RULE_DEFAULTS[name], 100, self._set, guard=g,
-                                            label=LABELS.get(name), label_width="9em")
+        self.controls = {name: ParamControl("replay_plateau", name, p, self.rule[name], 100, self._set, guard=g,
+                                            label=LABELS.get(name), label_width="11em")
                          for name, p in PlateauRule.params().items()}
+        goal = self.controls["goal"].text
+        goal.options = [(GOAL_WORDS.get(k, k), k) for k in goal.options]
         self.follow = W.Checkbox(value=False, indent=False, description="follow the design (its warmup, then "
                                  "the rule multiplies it)", tooltip="use the designer's schedule as the base",
                                  layout={"width": "26em"})
@@ -150,8 +159,9 @@ class ReplayPanel(Panel, W.VBox):
         self.start.observe(g(lambda c: self.refresh()), names="value")
         # ---------------------------------------------------------- figure
         self.xs = LinearScale(min=0.0, max=1.0, allow_padding=False)
-        self.ys_linear = LinearScale(min=0.0)
-        self.ys_log = LogScale()
+        self.rates = RateAxes(colour=CURVE)
+        self.ys_linear, self.ys_log = self.rates.linear_scale, self.rates.log_scale
+        self.rates.show(True)
         self.ys = self.ys_log
         self.ms = LinearScale()
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="log", description="rate axis",
@@ -167,8 +177,8 @@ class ReplayPanel(Panel, W.VBox):
                                   colors=[CURVE], marker="triangle-down", default_size=48, visible=False)
         self.x_axis = Axis(scale=self.xs, label="epoch (metric read at each epoch's end)", tick_format="d",
                            tick_values=np.array(nice_ticks(90)))
-        self.y_axis = Axis(scale=self.ys, side="left", label="rate", tick_format=".1e", color=CURVE)
-        axes = [self.x_axis, self.y_axis,
+        self.rates.log.tick_format = ".1e"
+        axes = [self.x_axis, *self.rates.axes,
                 Axis(scale=self.ms, side="right", label="metric", tick_format=".3~g", label_offset="4em",
                      color=METRIC, grid_lines="none")]
         self.figure = Figure(marks=[self.metric_line, self.rate_line, self.drop_marks], axes=axes,
@@ -176,6 +186,7 @@ class ReplayPanel(Panel, W.VBox):
                              fig_margin=REPLAY_FIGURE[1], layout=W.Layout(**figure_layout(REPLAY_FIGURE)))
         self.figure.add_class("sw-replay-figure")
         self.figure_box = W.Box([self.figure], layout={"min_height": "300px", "width": "100%"})
+        self.y_title = W.HTML('<span style="font-size:12px;color:#0f766e">learning rate</span>')
         self.note = W.HTML(f"<small><i>{html.escape(COUNTERFACTUAL)}</i></small>")
         self.note.add_class("sw-replay-note")
         self.caution = W.HTML("", style={"text_color": AMBER})
@@ -194,7 +205,7 @@ class ReplayPanel(Panel, W.VBox):
         super().__init__([W.HBox([self.demo, self.upload]), W.HBox([self.path, self.column]), self.message,
                           self.status,
                           W.HBox([W.VBox(rule_rows, layout={"flex": "0 0 auto", "width": "36em"}),
-                                  W.VBox([self.figure_box, self.rate_axis, self.note, self.caution],
+                                  W.VBox([self.y_title, self.figure_box, self.rate_axis, self.note, self.caution],
                                          layout={"flex": "1 1 auto", "min_width": "20em"})]),
                           self.table, self.whatif])
         self.add_class("sw-replay")
@@ -231,11 +242,14 @@ class ReplayPanel(Panel, W.VBox):
         self.ys = self.ys_log if log else self.ys_linear
         for m in (self.rate_line, self.drop_marks):
             m.scales = {"x": self.xs, "y": self.ys}
-        with self.y_axis.hold_sync():
-            self.y_axis.scale = self.ys
-            self.y_axis.tick_format = ".1e" if log else ".2~g"
+        self.rates.show(log)
         if self.replay is not None:
             self._draw(self.replay)
+
+    @property
+    def y_axis(self) -> Axis:
+        """The rate axis shown now (each scale has its own axis; see ``theme.RateAxes``)."""
+        return self.rates.shown
 
     def _follow_changed(self, change: dict) -> None:
         self.start.disabled = bool(change["new"])
@@ -331,7 +345,11 @@ class ReplayPanel(Panel, W.VBox):
         x, y = step_line(r.rates, r.next_rate)
         n = len(r.rates)
         with self.rate_line.hold_sync():
-            self.rate_line.x, self.rate_line.y = x, self._drawn(y)
+            drawn = self._drawn(y)
+            self.rate_line.x, self.rate_line.y = x, drawn
+        if drawn.size:
+            self.rates.fit_linear(float(np.max(drawn)))
+            self.rates.fit_log(float(np.min(drawn[drawn > 0])) if np.any(drawn > 0) else 1e-8, float(np.max(drawn)))
         if self.xs.max != n:
             self.xs.max = float(n)
         ticks = np.array(nice_ticks(n))

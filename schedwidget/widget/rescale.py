@@ -152,17 +152,18 @@ class RescalePanel(Panel, W.VBox):
                               stroke_width=2, labels=["rescaled"], display_legend=True)
         self.x_label = Axis(scale=self.xs, label="samples seen", tick_format=".3~s", num_ticks=6)
         self.figure = Figure(marks=[self.old_line, self.new_line],
-                             axes=[self.x_label, Axis(scale=self.ys, side="left", label="rate", tick_format=".2~g")],
+                             axes=[self.x_label, Axis(scale=self.ys, side="left", label="", tick_format=".2~g")],
                              animation_duration=0, padding_y=0.05, legend_location="top-right",
                              fig_margin=RESCALE_FIGURE[1], layout=W.Layout(**figure_layout(RESCALE_FIGURE)))
         self.figure.add_class("sw-rescale-figure")
         self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%"})
+        self.y_title = W.HTML('<span style="font-size:12px;color:#374151">learning rate</span>')
         for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
             w.observe(g(lambda c: self.refresh()), names="value")
         self.apply_button.on_click(g(lambda b: self.apply()))
         super().__init__([W.HBox([W.VBox([self.from_batch, self.batch, self.processes]),
                                   W.VBox([self.rule, self.keep, self.x_axis])]),
-                          self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
+                          self.y_title, self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
         self.add_class("sw-rescale")
         self.listen(designer, tab, now=True)
 
@@ -256,7 +257,7 @@ class RescalePanel(Panel, W.VBox):
             return ""
         lines = [f"{b.epochs:,} epochs x {b.steps_per_epoch:,} steps per epoch = {b.steps:,} steps",
                  f"steps per epoch = floor({b.samples:,} samples / global batch {b.global_batch:,}) = "
-                 f"{b.steps_per_epoch:,}: the incomplete last batch of each epoch is dropped (drop_last=True)"]
+                 f"{b.steps_per_epoch:,}: the incomplete last batch of each epoch is skipped"]
         return "".join(f"<p>{html.escape(x)}</p>" for x in lines)
 
     def apply(self) -> None:
