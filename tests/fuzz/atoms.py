@@ -20,7 +20,7 @@ import numpy as np
 _SOURCES: dict[int, tuple[Any, str]] = {}
 
 #: Imports every repro assumes.
-PRELUDE = ("import math, json, numpy as np\nfrom fractions import Fraction\nfrom decimal import Decimal\n"
+PRELUDE = ("import functools, math, json, numpy as np\nfrom fractions import Fraction\nfrom decimal import Decimal\n"
            "from pathlib import Path\nimport schedwidget as sw\nfrom schedwidget import *\n"
            "from schedwidget.export import RateFactor\n")
 
@@ -51,7 +51,9 @@ def _namespace() -> dict[str, Any]:
     import schedwidget
 
     ns = {n: getattr(schedwidget, n) for n in schedwidget.__all__}
-    ns.update({"np": np, "math": math, "Fraction": Fraction, "Decimal": Decimal, "Path": Path, "float": float})
+    import functools
+
+    ns.update({"functools": functools, "np": np, "math": math, "Fraction": Fraction, "Decimal": Decimal, "Path": Path, "float": float})
     return ns
 
 

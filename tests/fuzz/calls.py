@@ -452,6 +452,9 @@ CORPUS = [
     "facts(flat(0.1), steps=10, unit=np.array(['step']))",
     "scale_for_batch(flat(0.1, steps=10), 1, 2, rule=np.array(['linear']))",
     "read_metric(10**5000 - 1)",  # --seed 2 --scale 4
+    # --seed 3 --scale 4: rejecting one bad field of a 10**5-point knots node costs time x its depth (2 s at 40)
+    "from_spec({'version': 1, 'schedule': functools.reduce(lambda d, _: {'kind': 'scale', 'factor': 1.0, "
+    "'target': d}, range(40), {'kind': 'knots', 'points': [[i, 0.1] for i in range(100000)], 'steps': 2**53 + 2})})",
     # --seed 2 --scale 4: a valid design whose export took 1.2 s CPU (nested shrinking restarts, huge cycle counts)
     "restarts(restarts(stages(ramp(3.5216220173827844e-06, 0.20764738050137269, steps=53), "
     "restarts(ramp(1.3618848887976135e-06, 0.0027048402837452114, steps=46962, curve='cosine'), cycles=1, "

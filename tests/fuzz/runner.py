@@ -90,7 +90,8 @@ def _frames(tb) -> list[tuple[str, str]]:
 
 
 def _ours(name: str) -> bool:
-    return name.startswith("schedwidget/") or name.startswith("<")
+    """A frame of the library or of code it generated (``<generated ...>``, ``<schedwidget ...>``)."""
+    return name.startswith(("schedwidget/", "<generated", "<schedwidget"))
 
 
 def where(tb, outermost: bool = False) -> str:
