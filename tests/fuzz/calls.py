@@ -449,6 +449,7 @@ CORPUS = [
     "to_spec(flat(0.1), unit=10**5000 - 1)",
     "save(flat(0.1), 'x.json', unit=10**5000 - 1)",
     "to_python(flat(0.1), unit=np.array(['step']))",
+    "to_python(flat(0.1), unit=np.array([0.1, 0.2]))",
     "facts(flat(0.1), steps=10, unit=np.array(['step']))",
     "scale_for_batch(flat(0.1, steps=10), 1, 2, rule=np.array(['linear']))",
     "read_metric(10**5000 - 1)",  # --seed 2 --scale 4
