@@ -29,7 +29,7 @@ from typing import Any, Callable, Sequence
 
 from .budget import check_length
 from .codegen import TAKEN, UNITS, check_name, function_source
-from .schedule import Schedule, ScheduleError, complain
+from .schedule import MAX_TICKS, Schedule, ScheduleError, complain
 
 __all__ = ["to_python", "make_scheduler", "torch_factor", "to_torch", "RateFactor"]
 
@@ -54,8 +54,9 @@ def _unit(owner: str, unit: Any) -> str:
 
 
 def _spe(owner: str, spe: Any) -> int | None:
-    if spe is not None and (isinstance(spe, bool) or not isinstance(spe, int) or spe < 1):
-        raise complain(owner, "steps_per_epoch", spe, "a whole number >= 1 or None")
+    # the same bounds as codegen's own check, so to_python and to_torch refuse a huge value in their own name
+    if spe is not None and (isinstance(spe, bool) or not isinstance(spe, int) or not 1 <= spe <= MAX_TICKS):
+        raise complain(owner, "steps_per_epoch", spe, "a whole number >= 1 and <= 2**53 or None")
     return spe
 
 
@@ -157,6 +158,25 @@ def _build(owner: str, s: Schedule) -> Callable[[int], float]:
     return namespace["rate_at"]
 
 
+def _compiled(owner: str, s: Schedule) -> str:
+    """The canonical text of a fresh design, with its generated function compiled and cached under it.
+
+    The function is written first: a design too large to write as source (a table over ``TABLE_MAX``
+    entries) is refused before its spec text is made and read back, which for 100,000 knots took seconds.
+    A text read from a checkpoint still goes through the validating loader (``_canonical``).
+    """
+    fn = _build(owner, s)
+    text = _design_text(s)
+    _remember(text, fn)
+    return text
+
+
+def _remember(text: str, fn: Callable[[int], float]) -> None:
+    if len(_COMPILED) >= COMPILED_MAX:
+        _COMPILED.clear()
+    _COMPILED[text] = fn
+
+
 def _canonical(owner: str, design: Any) -> tuple[str, Callable[[int], float]]:
     """The canonical text of a saved design and its generated function (compiled once per design).
 
@@ -172,9 +192,7 @@ def _canonical(owner: str, design: Any) -> tuple[str, Callable[[int], float]]:
     fn = _COMPILED.get(text)
     if fn is None:
         fn = _build(owner, s)
-        if len(_COMPILED) >= COMPILED_MAX:
-            _COMPILED.clear()
-        _COMPILED[text] = fn
+        _remember(text, fn)
     return text, fn
 
 
@@ -296,7 +314,7 @@ class RateFactor:
     """
 
     def __init__(self, s: Schedule, base_lr: float, multiplier: float = 1.0) -> None:
-        self.design = _design_text(_schedule("RateFactor", s))
+        self.design = _compiled("RateFactor", _schedule("RateFactor", s))
         self.base_lr = _positive("RateFactor", "base_lr", base_lr)
         self.multiplier = _positive("RateFactor", "multiplier", multiplier, zero=True)
         self._built(_valid_state("RateFactor", self.__dict__))
