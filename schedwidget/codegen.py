@@ -311,7 +311,10 @@ class _Writer:
         # as the core: a stretched cycle is read on its inner clock in one step (one rounding, not two)
         inner = s.target.target if isinstance(s.target, Stretch) else s.target
         Li = float(inner.length)
-        local = self.clock(f"(({u} - {start}) * {_f(Li)}) / {ln}", ind)
+        if s._same_clock():  # as the core: equal cycles of an unstretched target run on the cycle clock itself
+            local = self.clock(f"{u} - {start}", ind)
+        else:
+            local = self.clock(f"(({u} - {start}) * {_f(Li)}) / {ln}", ind)
         # Held as in the core, unless it provably cannot pass Li: inside a cycle u - start <= span, and when
         # span * Li is exact (<= 2**53) rounding is monotone, so ((u - start) * Li) / span <= (span * Li) / span = Li.
         # Otherwise the two roundings can pass Li by an ulp (a poly there gives a complex number).

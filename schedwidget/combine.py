@@ -97,6 +97,9 @@ class Stages(Schedule):
     def _top(self) -> float:
         return self._ceil
 
+    def _work(self, below: list[int]) -> int:
+        return 1 + max(below)  # each tick visits one stage
+
     @property
     def length(self) -> int | None:
         return self._length
@@ -354,12 +357,21 @@ class Restarts(Schedule):
         # a drop whose scaled position is a whole tick then lands exactly on it.
         inner = self.target.target if isinstance(self.target, Stretch) else self.target
         local = u - start
-        local *= float(inner.length)
-        local /= ln
+        if not self._same_clock():  # cycles of another length than the target's: rescale the clock
+            local *= float(inner.length)
+            local /= ln
         out = inner._held(local)
         if self.peak_decay != 1.0:
             out *= np.power(self.peak_decay, k)
         return out
+
+    def _same_clock(self) -> bool:
+        """True when every cycle runs on the target's own clock (equal cycles of an unstretched target).
+
+        Then the cycle clock is ``u - start``, not ``((u - start) * L) / L``: above 2**53 the product rounds,
+        and 48 nested restarts read tick 30 as 29.999999999999996, a tick early (0.0 instead of 0.01).
+        """
+        return self.growth == 1.0 and not isinstance(self.target, Stretch)
 
     def _starts(self, hi: float) -> tuple[np.ndarray, np.ndarray]:
         """Start and length of every cycle that begins at or before ``hi`` (at most EDGE_CAP)."""
@@ -399,10 +411,16 @@ class Restarts(Schedule):
         # one call to the target for three kinds of interval (so nesting costs one call per level, not three):
         # the first (possibly partial) cycle, from a to its end or to b within the same cycle; the last partial
         # cycle where it differs from the first; and one whole cycle
-        end_a = np.where(same, ((b - sa) * L) / la, L)
+        if self.growth == 1.0:  # every cycle is L long: the cycle clock is exact, with no product to round
+            def clock(x, x0, ln):
+                return x - x0
+        else:
+            def clock(x, x0, ln):
+                return ((x - x0) * L) / ln
+        end_a = np.where(same, clock(b, sa, la), L)
         m = int(np.count_nonzero(~same))
-        los, his = self.target._span(np.concatenate([((a - sa) * L) / la, np.zeros(m), [0.0]]),
-                                     np.concatenate([end_a, ((b[~same] - sb[~same]) * L) / lb[~same], [L]]))
+        los, his = self.target._span(np.concatenate([clock(a, sa, la), np.zeros(m), [0.0]]),
+                                     np.concatenate([end_a, clock(b[~same], sb[~same], lb[~same]), [L]]))
         lo, hi = los[:n] * da, his[:n] * da
         lo2, hi2 = np.empty(n), np.empty(n)
         lo2[~same], hi2[~same] = los[n:n + m], his[n:n + m]

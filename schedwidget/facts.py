@@ -31,6 +31,12 @@ EXACT_LIMIT = 2 ** 21
 #: Largest ``exact_up_to`` accepted: an exact reading evaluates every tick, so its time grows with it.
 MAX_EXACT = 2 ** 26
 CHUNK = 2 ** 18
+#: Node visits a grid reading may spend on its even grid (ticks times ``work``): 2**20 ticks at 8 visits each.
+GRID_WORK = 2 ** 23
+#: Fewest ticks of an even grid, however costly the design.
+MIN_GRID = 2 ** 14
+#: Gaps per block in the coarse-to-fine search for gaps whose bounds pass a test (``_earliest``).
+BLOCK = 64
 #: A rate counts as down to a share of the peak when ``rate <= share * peak * (1 + LEVEL_TOLERANCE)``:
 #: products such as 0.05 * 0.1 = 0.005000000000000001 sit a few ulps (~1e-16 relative) above the
 #: hand value, and 1e-12 relative is thousands of ulps yet far below any difference a reader can see.
@@ -87,12 +93,60 @@ def _sorted_unique(x: np.ndarray) -> np.ndarray:
     return x[np.concatenate([[True], x[1:] != x[:-1]])] if x.size else x
 
 
-def _grid(n: int, limit: int, extra: np.ndarray) -> tuple[np.ndarray | None, bool]:
-    """The ticks to read: None for every tick of ``[0, n)`` (read in chunks), else an even grid plus ``extra``."""
+def work(s: Schedule) -> int:
+    """Node visits one tick costs to evaluate ``s`` (each node's ``_work`` of its children's), without recursion."""
+    done: dict[int, int] = {}
+    stack: list[tuple[Schedule, bool]] = [(s, False)]
+    while stack:
+        node, ready = stack.pop()
+        if id(node) in done:
+            continue
+        if ready:
+            done[id(node)] = node._work([done[id(c)] for c in node.children()])
+        else:
+            stack.append((node, True))
+            stack.extend((c, False) for c in node.children())
+    return done[id(s)]
+
+
+def _grid(n: int, limit: int, extra: np.ndarray, cost: int = 1) -> tuple[np.ndarray | None, bool]:
+    """The ticks to read: None for every tick of ``[0, n)`` (read in chunks), else an even grid plus ``extra``.
+
+    The even grid has ``limit // 2`` ticks, fewer for a design that costs more than ``GRID_WORK`` node visits
+    over them (``cost`` per tick; every design of at most 8 visits per tick keeps the full grid), and at least
+    ``MIN_GRID``: a design 48 levels deep is read from a coarser grid in bounded time instead of for seconds.
+    """
     if n <= limit:
         return None, True
-    even = np.linspace(0, n - 1, max(limit // 2, 2)).astype(np.int64)
+    size = max(min(limit // 2, GRID_WORK // max(cost, 1)), min(limit // 2, MIN_GRID), 2)
+    even = np.linspace(0, n - 1, size).astype(np.int64)
     return _sorted_unique(np.concatenate([even, extra])), False
+
+
+def _earliest(s: Schedule, a: np.ndarray, b: np.ndarray, keep, tries: int) -> np.ndarray:
+    """Indices of the first ``tries`` gaps ``[a[j], b[j]]`` whose bounds pass ``keep(lo, hi, a)``, in order.
+
+    Coarse to fine: blocks of ``BLOCK`` gaps are bounded first (recursively, so 2**18 gaps cost a few
+    hundred intervals, not 2**18), and gaps are bounded only inside blocks that pass, earliest first, in
+    batches that grow fourfold.  A block's bounds hold for every gap in it, so a gap whose rates pass the
+    test always sits in a block that passes; only gaps whose own bounds are loose can be skipped.
+    """
+    if a.size <= BLOCK:
+        lo, hi = s._span(a.astype(float), b.astype(float))
+        return np.flatnonzero(keep(lo, hi, a))[:tries]
+    first = np.arange(0, a.size, BLOCK)
+    last = np.minimum(first + BLOCK, a.size) - 1
+    blocks = _earliest(s, a[first], b[last], keep, first.size)
+    found: list[np.ndarray] = []
+    got, i, batch = 0, 0, 1
+    while i < blocks.size and got < tries:
+        idx = np.concatenate([np.arange(first[j], last[j] + 1) for j in blocks[i:i + batch].tolist()])
+        lo, hi = s._span(a[idx].astype(float), b[idx].astype(float))
+        hit = idx[keep(lo, hi, a[idx])][:tries - got]
+        found.append(hit)
+        got += hit.size
+        i, batch = i + batch, batch * 4
+    return np.concatenate(found).astype(np.int64) if found else np.empty(0, np.int64)
 
 
 def _chunks(grid: np.ndarray | None, n: int, start: int = 0):
@@ -134,13 +188,8 @@ def _refine_peak(s: Schedule, grid: np.ndarray, peak: float, peak_at: int) -> tu
     while a.size:
         wide = b - a > 1
         a, b = a[wide], b[wide]
-        picked: list[int] = []
-        for i in range(0, a.size, CHUNK):  # earliest first: stop as soon as enough gaps qualify
-            _, hi = s._span(a[i:i + CHUNK].astype(float), b[i:i + CHUNK].astype(float))
-            ok = (hi > peak) | ((hi >= peak) & (a[i:i + CHUNK] < peak_at))
-            picked += (np.flatnonzero(ok)[:REFINE_TRIES - len(picked)] + i).tolist()
-            if len(picked) >= REFINE_TRIES:
-                break
+        best, best_at = peak, peak_at
+        picked = _earliest(s, a, b, lambda lo, hi, x: (hi > best) | ((hi >= best) & (x < best_at)), REFINE_TRIES)
         a, b = a[picked], b[picked]
         dense = b - a <= REFINE_DENSE
         ticks = [np.arange(x, y + 1) for x, y in zip(a[dense], b[dense])]
@@ -192,13 +241,14 @@ def _first_under(s: Schedule, grid: np.ndarray | None, n: int, start: int,
         a = a[:b.size]
         yb = s(b)
         firsts = {i: np.flatnonzero(yb <= bounds[i]) for i in todo}
-        reach = max(int(u[0]) if u.size else b.size for u in firsts.values())
-        low, _ = s._span(a[:reach].astype(float), b[:reach].astype(float))  # bounds only up to the grid hits
         for i in list(todo):
             under = firsts[i]
             k = int(under[0]) if under.size else b.size
             got = None
-            for j in np.flatnonzero((low[:k] <= bounds[i]) & (b[:k] - a[:k] > 1))[:REFINE_TRIES].tolist():
+            wide = np.flatnonzero(b[:k] - a[:k] > 1)  # bounds only up to the grid hit, earliest first
+            level = bounds[i]
+            gaps = _earliest(s, a[wide], b[wide], lambda lo, hi, x: lo <= level, REFINE_TRIES)
+            for j in wide[gaps].tolist():
                 got = _refine_under(s, int(a[j]), int(b[j]), bounds[i])
                 if got is not None:
                     break
@@ -343,7 +393,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     joins = np.ceil(s._joins())
     joins = joins[(joins >= 1) & (joins <= n - 1)].astype(np.int64)
     extra = np.concatenate([brk, brk - 1, joins, joins - 1, [n - 1]]).astype(np.int64)
-    grid, exact = _grid(n, limit, extra)
+    grid, exact = _grid(n, limit, extra, work(s))
     peak, peak_at, low, low_at, total = _scan(s, grid, n)
     if not exact:
         peak, peak_at = _refine_peak(s, grid, peak, peak_at)

@@ -202,7 +202,9 @@ class Schedule:
     (0.1, 0.0, 0.0)
     """
 
-    __slots__ = ()
+    #: ``_whole``: this node's bounds over its whole length, computed on first use (see ``_span``); not a field,
+    #: so equality, hashing, repr and pickling never see it (a copy computes it again).
+    __slots__ = ("_whole",)
     kind: str = "schedule"  # overridden by every concrete class (a plain class attribute)
 
     # ----------------------------------------------------------------- protocol
@@ -234,6 +236,10 @@ class Schedule:
     def _top(self) -> float:
         """An upper bound of every rate this node gives (from its parameters and its children's bounds)."""
         raise NotImplementedError
+
+    def _work(self, below: list[int]) -> int:
+        """Node visits one tick costs, given each child's (``children()`` order): this node and every child."""
+        return 1 + sum(below)
 
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
@@ -279,8 +285,37 @@ class Schedule:
         return self._at(self._clamp(u))
 
     def _span(self, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """``_range`` with both interval ends clamped to the length."""
-        return self._range(self._clamp(np.asarray(a, float)), self._clamp(np.asarray(b, float)))
+        """``_range`` with both interval ends clamped to the length; whole-length intervals read once per node.
+
+        A combinator splits an interval into pieces on its children's clocks, and most of them cover a
+        child whole (every cycle between two restarts, every stage between two joins).  Answering those
+        from the node's own bounds over ``[0, length]`` (computed by ``_range`` once, then kept) keeps the
+        number of intervals passed down at most twice the number asked, whatever the nesting depth;
+        before, nested restarts multiplied them at every level.  The values are those ``_range`` gives
+        for the same interval.
+        """
+        a, b = self._clamp(np.asarray(a, float)), self._clamp(np.asarray(b, float))
+        n = self.length
+        if n is None or not a.size:
+            return self._range(a, b)
+        whole = (a <= 0.0) & (b >= n)
+        if not whole.any():
+            return self._range(a, b)
+        rest = ~whole
+        ra, rb = a[rest], b[rest]
+        try:
+            w_lo, w_hi = self._whole
+        except AttributeError:  # first use: the whole interval rides along with the rest (one call to _range)
+            rlo, rhi = self._range(np.append(ra, 0.0), np.append(rb, float(n)))
+            w_lo, w_hi = float(rlo[-1]), float(rhi[-1])
+            object.__setattr__(self, "_whole", (w_lo, w_hi))
+            lo, hi = np.full(np.shape(a), w_lo), np.full(np.shape(a), w_hi)
+            lo[rest], hi[rest] = rlo[:-1], rhi[:-1]
+            return lo, hi
+        lo, hi = np.full(np.shape(a), w_lo), np.full(np.shape(a), w_hi)
+        if ra.size:
+            lo[rest], hi[rest] = self._range(ra, rb)
+        return lo, hi
 
     def __repr__(self) -> str:
         args = ", ".join(f"{n}={literal(getattr(self, n))}" for n in self.params())
