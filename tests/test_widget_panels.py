@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from schedwidget import ScheduleDesigner, ScheduleError, cosine, drops, flat, load, save, warmup
+from schedwidget import ScheduleDesigner, ScheduleError, cosine, drops, flat, load, save, stages, warmup
 from schedwidget.facts import facts
 from schedwidget.widget.designer import demo_design
 
@@ -337,3 +337,97 @@ class TestExportReady:
         assert d.steps == 103_500 and d.schedule.length == 5750 + 92_000
         assert "5,750 fewer than the run of 103,500" in d.export.caution.value
         assert "97,750 steps long but the budget is 103,500" in d.readout.cautions.value
+
+
+class TestCompareAgreesWithReadout:
+    """Compare reads pins with the readout's own facts and converts to the designer's clock (issue 13)."""
+
+    @pytest.mark.parametrize("n", [103_500, 300_000])
+    def test_identical_pin_identical_row(self, n):
+        d = ScheduleDesigner(warmup(cosine(0.1, steps=n - 5750), 5750), steps_per_epoch=1150)
+        d.pin("same")
+        d.tabs.selected_index = 0
+        assert d.compare._facts_of(d.pins[0]) == d.facts
+        table = d.compare.table.value
+        rows = [r for r in table.split("<tr>")[2:]]
+        for r in rows[:6]:  # peak .. run length: the pin's cell equals the current design's
+            tds = [t.split("</td>")[0] for t in r.split("<td")[1:]]
+            assert len(tds) == 2 and tds[0] == tds[1], r
+
+    def test_pin_in_epochs_read_on_the_step_clock(self):
+        d = ScheduleDesigner(warmup(cosine(0.1, steps=85), 5), unit="epoch", steps_per_epoch=1150)
+        d.pin("epochs")
+        d.set_unit("step")
+        table = d.compare.table.value
+        assert "epoch" not in table.split("run length")[1].split("</tr>")[0]
+        assert "103,500 steps" in table and "step 5,750" in table
+
+
+class TestRunIsTheFrame:
+    """Issue 13's headless checks: the run keeps its length, typed lengths, shapes changed in place."""
+
+    def test_changing_the_warmup_keeps_the_total(self):
+        d = ScheduleDesigner()
+        d.control("warmup", "steps").text.value = "3 ep"
+        assert d.schedule.steps == 3450 and d.schedule.length == d.steps == 103_500
+        assert d.schedule.target.steps == 103_500 - 3450 and d.error == ""
+        assert "fewer than the run" not in d.stages.total_words.value
+
+    def test_design_longer_or_shorter_than_the_run_shows_the_caution(self):
+        d = ScheduleDesigner()
+        d.control(0, "steps").text.value = "100 ep"        # the filling stage itself, typed: longer
+        assert d.schedule.length == 5750 + 115_000 and d.steps == 103_500
+        assert "17,250 more than the run" in d.stages.total_words.value
+        assert "budget is 103,500" in d.readout.cautions.value
+        d.control(0, "steps").text.value = "50 %"          # shorter
+        assert d.schedule.length == 5750 + 51_750
+        assert "46,000 fewer than the run" in d.stages.total_words.value
+
+    def test_typed_lengths(self):
+        d = ScheduleDesigner()
+        box = d.control("warmup", "steps")
+        box.text.value = "6 %"
+        assert d.schedule.steps == 6210 and box.text.value == "6,210"
+        assert "5.4 epochs · 6 % of the run" in box.words.value
+        box.text.value = "3 epochs"
+        assert d.schedule.steps == 3450
+        box.text.value = "three epochs"
+        assert d.error.startswith("warmup: steps must be a whole number of ticks (3450), epochs ('3 ep'), steps "
+                                  "('3450 steps') or a share of the run ('6 %'), got 'three epochs'")
+        assert d.schedule.steps == 3450 and box.text.value == "3,450"  # the box goes back; nothing coerced
+        box.text.value = "0.06"
+        assert "got '0.06'" in d.error and d.schedule.steps == 3450
+
+    def test_end_rate_as_share_of_the_peak(self):
+        d = ScheduleDesigner()
+        d.control(0, "peak").text.value = "3e-4"
+        d.control(0, "floor").text.value = "1 %"
+        assert d.schedule.target.floor == pytest.approx(3e-6, rel=1e-12)
+
+    def test_replacing_a_stage_shape_keeps_its_span_and_start(self):
+        d = ScheduleDesigner()
+        shape = next(w for w in d.stages.list.children[1].children[0].children if "sw-stage-shape" in w._dom_classes)
+        shape.value = "exp_decay"
+        s = d.schedule.target
+        assert s.kind == "exp_decay" and s.length == 97_750 and s(0) == 0.1 and d.schedule.length == 103_500
+        assert d.schedule.steps == 5750
+
+    def test_insert_between_takes_defaults_from_neighbours(self):
+        d = ScheduleDesigner(warmup(stages(flat(0.1, steps=50_000), cosine(0.05, steps=47_750)), 5750),
+                             steps_per_epoch=1150)
+        d.stages.shape.value = "flat"
+        ins = next(w for w in d.stages.list.children[1].children[0].children if "sw-insert" in w._dom_classes)
+        ins.click()
+        parts = d.schedule.target.parts
+        assert [p.kind for p in parts] == ["flat", "flat", "cosine"]
+        assert parts[1].lr == 0.1 and parts[1].steps == 10_350      # the rate where stage 0 ends, a tenth of the run
+        assert d.schedule.length == 103_500 and parts[0].steps == 50_000 - 10_350  # the longest stage made room
+
+    def test_choose_the_stage_that_fills(self):
+        d = ScheduleDesigner(warmup(stages(flat(0.1, steps=50_000), cosine(0.05, steps=47_750)), 5750))
+        fills = [next(w for w in box.children[0].children if "sw-fills" in w._dom_classes)
+                 for box in d.stages.list.children[1:]]
+        assert [f.value for f in fills] == [True, False]
+        fills[1].value = True
+        d.control("warmup", "steps").text.value = 1000
+        assert d.schedule.target.parts[0].steps == 50_000 and d.schedule.target.parts[1].steps == 52_500

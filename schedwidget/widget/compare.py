@@ -60,10 +60,24 @@ def near(jumps: Sequence[int] | np.ndarray) -> np.ndarray:
     return np.concatenate([j, np.maximum(j - 1, 0)])
 
 
-def cells(f: Facts) -> list[str]:
-    """The escaped table cells of a design's facts: peak, where, final, area, under 10 %, budget."""
-    return [html.escape(c) for c in (number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
-                                     at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s")]
+def cells(f: Facts, unit: str | None = None, steps_per_epoch: int | None = None) -> list[str]:
+    """The escaped table cells of a design's facts: peak, where, final, sum of rates, under 10 %, run length;
+    converted to the clock ``unit`` (the designer's) when the design counts in the other unit and steps per
+    epoch are known (positions then read ``epoch 3.0`` or ``step 3,450``; the sum of rates per step is the
+    sum per epoch times steps per epoch)."""
+    unit = unit or f.unit
+    spe = steps_per_epoch or f.steps_per_epoch
+    if unit == f.unit or not spe:
+        return [html.escape(c) for c in (number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
+                                         at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s")]
+    if unit == "step":  # an epoch design read on the step clock
+        where = (lambda t: None if t is None else at(t * spe, "step"))
+        area, length = f.area * spe, f"{f.steps * spe:,} steps"
+    else:
+        where = (lambda t: None if t is None else f"epoch {t / spe:,.1f}")
+        area, length = f.area / spe, f"{f.steps / spe:,.4g} epochs"
+    return [html.escape(c or "—") for c in (number(f.peak), where(f.peak_at), number(f.final), number(area),
+                                            where(f.under_10), length)]
 
 
 def ticks_of(tr: Trace | None, n: int) -> np.ndarray | None:
@@ -101,8 +115,8 @@ def largest_difference(a: Schedule, b: Schedule, steps: int) -> tuple[float, int
 
 
 NO_PINS = "<i>No pins yet: name the current design under the curve and press Pin.</i>"
-ROWS = ("peak rate", "peak at", "final rate", "area (sum of per-tick rates)", "under 10 % of the peak from", "budget",
-        "largest |rate difference| vs current", "area / current area")
+ROWS = ("peak rate", "peak at", "final rate", "sum of rates", "under 10 % of the peak from", "run length",
+        "largest rate difference from current", "sum of rates / current")
 
 
 def number(x: float) -> str:
@@ -206,10 +220,11 @@ class ComparePanel(Panel, W.VBox):
 
     # ------------------------------------------------------------- drawing
     def _facts_of(self, p: Pin) -> Facts:
-        if id(p) not in self._facts:
-            f = facts(p.schedule, p.steps, p.steps_per_epoch, p.unit, exact_up_to=2 ** 16)
-            self._facts[id(p)] = (p, f, cells(f))
-        return self._facts[id(p)][1]
+        key = (id(p), self.d.unit, self.d.steps_per_epoch)
+        if key not in self._facts:
+            f = self.d.facts_for(p.schedule, p.steps, p.unit, p.steps_per_epoch)
+            self._facts[key] = (p, f, cells(f, self.d.unit, self.d.steps_per_epoch or p.steps_per_epoch))
+        return self._facts[key][1]
 
     def _ticks(self, n: int) -> np.ndarray:
         """The grid over ``n`` ticks and every pin's jumps (and the tick before each): fixed while the pins are."""
@@ -264,7 +279,7 @@ class ComparePanel(Panel, W.VBox):
                 diff = f"{number(v)} at {at(t, d.unit)}"
                 ratio = number(f.area / cur.area) if cur.area > 0 else "—"
             names.append(e(p.name))
-            cols.append(self._facts[id(p)][2] + [e(diff), e(ratio)])
+            cols.append(self._facts[(id(p), d.unit, d.steps_per_epoch)][2] + [e(diff), e(ratio)])
         head = f"<tr><th {left}></th>" + "".join(f"<th {right}>{n}</th>" for n in names) + "</tr>"
         body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{c[i]}</td>" for c in cols) + "</tr>"
                        for i, r in enumerate(ROWS))

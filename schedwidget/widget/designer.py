@@ -151,10 +151,14 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.timing["marks_at"] = t0 = perf_counter()
         if self._read != self._state():
             s, n, unit, spe, batch = self._state()
-            self.facts = facts(s, n, spe if unit == "step" else None, unit, batch,
-                               exact_up_to=READOUT_EXACT if n <= READOUT_EXACT else READOUT_GRID)
+            self.facts = self.facts_for(s, n, unit, spe)
             self._read = self._state()
         self.timing["readout"] = perf_counter() - t0
+
+    def facts_for(self, s: Schedule, n: int, unit: str, spe: int | None) -> Facts:
+        """The readout's facts of ``s`` over ``n`` ticks (Compare reads pins with this too: same numbers)."""
+        return facts(s, n, spe if unit == "step" else None, unit, self.batch,
+                     exact_up_to=READOUT_EXACT if n <= READOUT_EXACT else READOUT_GRID)
 
     def _refresh(self) -> None:
         """Bump ``revision``: every panel redraws what changed for it; revert if one of them fails."""
