@@ -48,8 +48,8 @@ def _schedule(owner: str, s: Any) -> Schedule:
 
 
 def _unit(owner: str, unit: Any) -> str:
-    if unit not in UNITS:
-        raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
+    if not isinstance(unit, str) or unit not in UNITS:  # a numpy array compares element by element
+        raise complain(owner, "unit", _brief(unit), "one of 'step', 'epoch'")
     return unit
 
 

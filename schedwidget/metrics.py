@@ -137,7 +137,10 @@ def _empty(owner: str, name: str) -> ScheduleError:
 
 
 def _short(v: Any) -> Any:
-    text = repr(v)
+    try:
+        text = repr(v)
+    except ValueError:  # an int over Python's 4,300-digit limit: complain() describes it by its size
+        return v
     return v if len(text) <= 60 else text[:57] + "..."
 
 
