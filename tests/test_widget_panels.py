@@ -14,6 +14,16 @@ def stage_boxes(d):
     return [b for b in d.stages.list.children if "sw-stage" in b._dom_classes]
 
 
+def head(box):
+    """Every widget in a stage box's header row (the row and the box inside it)."""
+    out, todo = [], list(box.children[0].children)
+    while todo:
+        w = todo.pop(0)
+        out.append(w)
+        todo.extend(getattr(w, "children", ()) or ())
+    return out
+
+
 class TestStagesPanel:
     """Stages are added, removed and reordered through the panel's buttons."""
 
@@ -28,16 +38,16 @@ class TestStagesPanel:
         assert len(stage_boxes(d)) == 3 and d.steps == d.schedule.length == 103_500
         assert d.schedule.target.parts[1] == flat(0.1, steps=10_350)  # a tenth of the run, at the peak
         flat_box = stage_boxes(d)[2]
-        next(b for b in flat_box.children[0].children if "sw-up" in b._dom_classes).click()
+        next(b for b in head(flat_box) if "sw-up" in b._dom_classes).click()
         assert [type(p).__name__ for p in d.schedule.target.parts] == ["Flat", "Cosine"]
-        next(b for b in stage_boxes(d)[2].children[0].children if "sw-remove" in b._dom_classes).click()
+        next(b for b in head(stage_boxes(d)[2]) if "sw-remove" in b._dom_classes).click()
         assert d.schedule == warmup(flat(0.1, steps=97_750), steps=5750)
         assert len(stage_boxes(d)) == 2
 
     def test_remove_the_warmup_and_add_it_back(self):
         """The warmup is a removable first stage; a second one is refused; the run keeps its length throughout."""
         d = ScheduleDesigner()
-        next(b for b in stage_boxes(d)[0].children[0].children if "sw-remove" in b._dom_classes).click()
+        next(b for b in head(stage_boxes(d)[0]) if "sw-remove" in b._dom_classes).click()
         assert d.schedule == cosine(0.1, steps=103_500)
         d.stages.shape.value = "warmup"
         d.stages.add.click()
@@ -49,14 +59,14 @@ class TestStagesPanel:
     def test_removing_the_last_stage_is_refused(self):
         """A design keeps at least one stage."""
         d = ScheduleDesigner(cosine(0.1, steps=100))
-        next(b for b in stage_boxes(d)[0].children[0].children if "sw-remove" in b._dom_classes).click()
+        next(b for b in head(stage_boxes(d)[0]) if "sw-remove" in b._dom_classes).click()
         assert d.error == "designer: stages must be at least one stage, got 0 (add a shape with 'Add stage')"
         assert d.schedule == cosine(0.1, steps=100)
 
     def test_repeat_wraps_a_stage_in_restarts(self):
         """The repeat box turns a stage into two warm restarts of it, with its own controls."""
         d = ScheduleDesigner(cosine(0.1, steps=100))
-        rep = next(w for w in stage_boxes(d)[0].children[0].children if getattr(w, "description", "") == "repeat")
+        rep = next(w for w in head(stage_boxes(d)[0]) if getattr(w, "description", "") == "repeat")
         rep.value = True
         assert d.schedule.kind == "restarts" and d.schedule.cycles == 2 and d.steps == 100
         assert "200 steps long but the budget is 100" in d.readout.cautions.value  # the run stays; a caution
@@ -93,7 +103,7 @@ class TestStagesPanel:
         assert d.control(0, "steps").text.value == "97,750"
         assert "85 epochs · 94 % of the run" in d.control(0, "steps").words.value
         floor = d.control(0, "floor")
-        assert floor.text.value == "0.0" and floor.slider.value == pytest.approx(1e-6)
+        assert floor.text.value == "0" and floor.slider.value == pytest.approx(1e-6)
 
 
     def test_control_lookup(self):
@@ -289,7 +299,7 @@ class TestStageWords:
         d = ScheduleDesigner()
         titles = [box.children[0].children[0].value for box in d.stages.list.children]
         assert titles[0].startswith("warmup") and titles[1].startswith("stage 0 · steps 5,750–103,500")
-        shape = next(w for w in d.stages.list.children[1].children[0].children if "sw-stage-shape" in w._dom_classes)
+        shape = next(w for w in head(d.stages.list.children[1]) if "sw-stage-shape" in w._dom_classes)
         assert shape.value == "cosine" and shape.label == "cosine annealing"
         assert d.control(0, "floor").owner == "cosine"
 
@@ -406,7 +416,7 @@ class TestRunIsTheFrame:
 
     def test_replacing_a_stage_shape_keeps_its_span_and_start(self):
         d = ScheduleDesigner()
-        shape = next(w for w in d.stages.list.children[1].children[0].children if "sw-stage-shape" in w._dom_classes)
+        shape = next(w for w in head(d.stages.list.children[1]) if "sw-stage-shape" in w._dom_classes)
         shape.value = "exp_decay"
         s = d.schedule.target
         assert s.kind == "exp_decay" and s.length == 97_750 and s(0) == 0.1 and d.schedule.length == 103_500
@@ -416,7 +426,7 @@ class TestRunIsTheFrame:
         d = ScheduleDesigner(warmup(stages(flat(0.1, steps=50_000), cosine(0.05, steps=47_750)), 5750),
                              steps_per_epoch=1150)
         d.stages.shape.value = "flat"
-        ins = next(w for w in d.stages.list.children[1].children[0].children if "sw-insert" in w._dom_classes)
+        ins = next(w for w in head(d.stages.list.children[1]) if "sw-insert" in w._dom_classes)
         ins.click()
         parts = d.schedule.target.parts
         assert [p.kind for p in parts] == ["flat", "flat", "cosine"]
@@ -425,7 +435,7 @@ class TestRunIsTheFrame:
 
     def test_choose_the_stage_that_fills(self):
         d = ScheduleDesigner(warmup(stages(flat(0.1, steps=50_000), cosine(0.05, steps=47_750)), 5750))
-        fills = [next(w for w in box.children[0].children if "sw-fills" in w._dom_classes)
+        fills = [next(w for w in head(box) if "sw-fills" in w._dom_classes)
                  for box in d.stages.list.children[1:]]
         assert [f.value for f in fills] == [True, False]
         fills[1].value = True

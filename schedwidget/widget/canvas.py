@@ -32,7 +32,7 @@ if TYPE_CHECKING:  # pragma: no cover
 __all__ = ["CurvePanel", "CURVE", "JOIN", "GHOSTS", "MAX_JOIN_LINES", "LOG_FLOOR"]
 
 MAX_JOIN_LINES = 200                                        # more joins than this are not drawn one by one
-LOG_FLOOR = 1e-12                                           # on the log axis nothing is drawn below peak * this
+LOG_FLOOR = 1e-5                                            # on the log axis nothing is drawn below peak * this
 HOVER_BANDS = 400                                           # hover reads the x axis in this many bands
 
 
@@ -107,7 +107,7 @@ class CurvePanel(Panel, W.VBox):
                               layout={"margin": "0 0 -14px 8px"})
         self.y_title.add_class("sw-y-title")
         # names of the lines: a compact legend beside the plot, never on the curves or outside the figure
-        self.legend = W.HTML("", layout={"width": "9.5em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
+        self.legend = W.HTML("", layout={"max_width": "10em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
         self.legend.add_class("sw-legend")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
@@ -135,6 +135,7 @@ class CurvePanel(Panel, W.VBox):
         g = designer.guarded
         self.rate_axis.observe(g(self._axes_changed), names="value")
         self.x_choice.observe(g(lambda _c: self.redraw()), names="value")
+        self.add_class("sw-canvas")
         self.listen(designer)
 
     # ----------------------------------------------------------------- panel
@@ -273,6 +274,20 @@ class CurvePanel(Panel, W.VBox):
             return (0.0, 0.0, math.inf, -math.inf, name)
         return (float(x[-1]), float(y[-1]), float(np.min(y)), float(np.max(y)), name)
 
+    def _span_as(self, log: bool) -> tuple[float, float]:
+        """The lowest and highest rate the curve and the visible ghosts will have on the log axis."""
+        lows, highs = [], []
+        if self.current is not None and self.current.y.size:
+            y = self.current.y
+            lows.append(float(np.min(np.maximum(np.where(y > 0, y, self.log_bottom), self.peak * LOG_FLOOR))))
+            highs.append(float(np.max(y)))
+        for i, (_pin, tr) in self._ghosts.items():
+            if self.ghosts[i].visible and tr.y.size:
+                y = self._own_y(tr.y) if log else tr.y
+                lows.append(float(np.min(y)))
+                highs.append(float(np.max(y)))
+        return (min(lows) if lows else 1e-6), (max(highs) if highs else 1.0)
+
     def _span(self) -> tuple[float, float]:
         """The lowest and highest rate drawn (current curve and visible ghosts)."""
         ends = self._ends.values()
@@ -324,9 +339,18 @@ class CurvePanel(Panel, W.VBox):
         Each scale keeps an axis of its own: giving one axis another scale left the front end's ticks at the
         old scale's positions (every log label at one spot, log-spaced ticks on the linear axis)."""
         scale = self.ys_log if log else self.ys_linear
-        for m in (self.curve, *[g for g in self.ghosts if g.visible]):
+        if log:  # the scales first: a log scale must never read the linear axis's zeros (NaN paths)
+            self._set_log_bottom(self.current.y if self.current is not None else np.ones(1))
+            self.rates.fit_log(*self._span_as(log=True))
+        # each mark gets its new rates and its new scale in one message, so no frame draws zeros on a log scale
+        lines = [(self.curve, self.current.y if self.current is not None else None, self._y)]
+        lines += [(self.ghosts[i], tr.y, self._own_y) for i, (_pin, tr) in self._ghosts.items() if self.ghosts[i].visible]
+        for m, y, drawn in lines:
             if m.scales.get("y") is not scale:
-                m.scales = {"x": self.xs, "y": scale}
+                with m.hold_sync():
+                    if y is not None:
+                        m.y = drawn(y)
+                    m.scales = {"x": self.xs, "y": scale}
         self.rates.show(log)
 
     # ----------------------------------------------------------------- hover

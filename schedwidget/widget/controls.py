@@ -60,14 +60,14 @@ class Entry(W.Text):
 def number_text(v) -> str:
     """The text a box shows for a value: whole numbers with thousands separators, rates exactly.
 
-    >>> number_text(3450), number_text(0.1003), number_text(3e-06)
-    ('3,450', '0.1003', '3e-06')
+    >>> number_text(3450), number_text(0.1003), number_text(3e-06), number_text(0.0)
+    ('3,450', '0.1003', '3e-06', '0')
     """
     if isinstance(v, bool) or v is None:
         return str(v)
     if isinstance(v, int):
         return f"{v:,}"
-    return repr(float(v))
+    return "0" if v == 0 else repr(float(v))
 
 
 #: Words shown for parameter names (the name itself when absent).
@@ -254,8 +254,8 @@ class ParamControl:
     def _rate_range(self, value: Any) -> tuple[float, float]:
         """Exponents of a rate slider: RATE_SPAN decades either side of ``value`` (of the soft range when 0)."""
         if isinstance(value, (int, float)) and value > 0 and math.isfinite(value):
-            c = math.log10(value)
-            return round(c - RATE_SPAN, 2), round(c + RATE_SPAN, 2)
+            c = math.log10(value)  # not rounded: the value sits exactly on the slider's grid, so nothing snaps
+            return c - RATE_SPAN, c + RATE_SPAN
         return _log_range(self.p)
 
     def _slider_bounds(self) -> tuple[float, float]:

@@ -96,9 +96,9 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.error_line.add_class("sw-error")
         self.stages.list.layout = W.Layout(max_height="380px", overflow="auto")
         left = W.VBox([self.stages, self.error_line],
-                      layout={"width": "440px", "flex": "0 0 440px", "padding": "0 8px 0 0"})
+                      layout={"width": "390px", "flex": "0 0 390px", "padding": "0 8px 0 0"})
         right = W.VBox([self.canvas, self.readout, self.compare.pin_row],
-                       layout={"flex": "1 1 620px", "min_width": "0", "width": "auto"})
+                       layout={"flex": "1 1 470px", "min_width": "0", "width": "auto"})
         left.add_class("sw-left")
         right.add_class("sw-right")
         self.tabs.fill(0, self.compare)
@@ -106,7 +106,7 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.tabs.fill(4, self.readout.text)
         self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}  # started when first shown
         self.tabs.observe(self.guarded(self._tab_changed), names="selected_index")
-        # side by side when there is room (440 + 620 px), one above the other below that
+        # side by side when there is room (390 + 470 px), one above the other below that
         self.children = [W.Box([left, right], layout={"flex_flow": "row wrap", "width": "100%"}), self.tabs.bar,
                          self.tabs]
         self.add_class("sw-designer")

@@ -31,7 +31,7 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = ["StagesPanel", "BudgetMethods"]
 
-BUTTON = {"width": "2.6em", "min_width": "2.6em", "flex": "0 0 auto"}
+BUTTON = {"width": "2.3em", "min_width": "2.3em", "flex": "0 0 auto"}
 BOX = {"width": "14em", "flex": "0 0 auto"}
 NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot be edited here; "
                 "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
@@ -62,7 +62,8 @@ class StagesPanel(Panel, W.VBox):
         self.shape = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES] + [("warmup", "warmup")],
                                 value="cosine", description="new stage",
                                 tooltip="the shape of the stage to add at the end, or after a stage with its + "
-                                        "button ('warmup' goes first)", style=LABEL, layout=BOX)
+                                        "button ('warmup' goes first)", style=LABEL,
+                                layout={"width": "17em", "flex": "0 0 auto"})
         self.shape.add_class("sw-add-shape")
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
@@ -154,7 +155,7 @@ class StagesPanel(Panel, W.VBox):
             header = box.children[0].children[0]
             put(header, html.escape(self._title(form, where)))
             if where != "warm":
-                put(box.children[0].children[1], int(where) == fill)
+                put(box.children[0].children[-1].children[0], int(where) == fill)
             for c in rows:
                 c.show(getattr(_owner(obj, c), c.name), budget)
 
@@ -192,7 +193,7 @@ class StagesPanel(Panel, W.VBox):
             if where != "warm":
                 fills = W.Checkbox(value=int(where) == filler(form, self.fill), description="fills the rest",
                                    indent=False, tooltip="this stage grows or shrinks so the design keeps the run's "
-                                   "length when other stages change", layout={"width": "8em", "flex": "0 0 auto"})
+                                   "length when other stages change", layout={"width": "7.5em", "flex": "0 0 auto"})
                 fills.add_class("sw-fills")
                 fills.observe(self.d.guarded(lambda ch, w=where: self._fills(w, ch["new"])), names="value")
                 kind = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES], value=leaf_of(obj).kind,
@@ -208,8 +209,7 @@ class StagesPanel(Panel, W.VBox):
                                   layout=BUTTON)
                 insert.add_class("sw-insert")
                 insert.on_click(self.d.guarded(lambda _b, w=where: self._insert(int(w) + 1)))
-                title.layout.flex = "1 1 100%"
-                head = [title, fills, kind, rep, up, down, insert, remove]
+                head = [title, up, down, insert, remove, W.Box([fills, kind, rep], layout={"width": "100%"})]
             parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if isinstance(obj, Restarts) else ["leaf"])
             for part in parts:
                 target = obj if part != "leaf" else leaf_of(obj)

@@ -1,0 +1,306 @@
+"""The designer as a practitioner uses it (issue 13), in a real JupyterLab and in Notebook 7.
+
+Checks read the page itself: tick labels from the DOM (in order, distinct, at distinct places)
+after any sequence of axis toggles, bounding boxes of axis titles against tick labels, the legend
+inside the plot panel, the curve's width at 1,000 px, hover without a click, and the task
+"3 epochs of linear warmup, cosine to 1 % of the peak over the rest, peak 3e-4; pin it; switch to
+exponential decay; compare; export torch code" scripted with its interactions counted.
+Screenshots of every tab, linear and log, at 1440x900 and 1000x900 go to tests/browser/screenshots/.
+"""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from .conftest import new_page
+from .notebooks import _nb
+from .pages import NOTEBOOK7_OWN, open_and_run, shot, wait_for_change, wait_for_curve, widget_error_shown
+from .server import jupyter_server
+
+DESIGNER = ".sw-designer"
+MAX_INTERACTIONS = 10   # issue 13: the practitioner's task in at most this many clicks and typed entries
+
+
+def designer_notebook() -> dict:
+    return _nb('''\
+from schedwidget import ScheduleDesigner
+d = ScheduleDesigner()   # the demo scenario: 90 epochs x 1,150 steps, warmup 5 epochs, cosine
+d''', title="one designer (demo scenario)")
+
+
+#: Visible tick labels of the figure's axes: [{horizontal, texts, xs, ys}], one entry per shown axis.
+TICKS_JS = """(sel) => {
+    const fig = document.querySelector(sel);
+    return [...fig.querySelectorAll('g.axis')].map(a => {
+        const ticks = [...a.querySelectorAll('.tick')].map(t => [t, t.getBoundingClientRect()])
+            .filter(([t, r]) => r.width > 0 && r.height > 0);
+        return {texts: ticks.map(([t]) => t.textContent.trim()), xs: ticks.map(([, r]) => r.x + r.width / 2),
+                ys: ticks.map(([, r]) => r.y + r.height / 2)};
+    }).filter(a => a.texts.length > 0);
+}"""
+
+#: Bounding boxes of the tick label texts and of the axis titles (svg axis labels and our HTML title).
+BOXES_JS = """(root) => {
+    const d = document.querySelector(root);
+    const box = (e) => { const r = e.getBoundingClientRect(); return [r.left, r.top, r.right, r.bottom]; };
+    const shown = (e) => { const r = e.getBoundingClientRect(); return r.width > 0 && r.height > 0; };
+    const fig = d.querySelector('.sw-curve');
+    const ticks = [...fig.querySelectorAll('g.axis .tick text')].filter(shown).map(box);
+    const labels = [...fig.querySelectorAll('g.axis text.axislabel')].filter(shown).filter(t => t.textContent.trim())
+        .map(box);
+    const title = d.querySelector('.sw-y-title');
+    if (title) labels.push(box(title.querySelector('span') || title));
+    const legend = [...d.querySelectorAll('.sw-legend-item')].filter(shown).map(box);
+    const panel = box(d.querySelector('.sw-canvas'));
+    return {ticks, labels, legend, panel, figure: box(fig)};
+}"""
+
+
+def number(text: str) -> float:
+    """A tick label as a number: '20k', '1e-4', '0.02', '1.5'."""
+    t = text.replace(",", "").replace("\u2212", "-")
+    scale = {"k": 1e3, "M": 1e6, "G": 1e9, "m": 1e-3, "µ": 1e-6, "n": 1e-9}
+    if t and t[-1] in scale:
+        return float(t[:-1]) * scale[t[-1]]
+    return float(t)
+
+
+def assert_ticks_readable(page, where: str) -> None:
+    """Each shown axis: labels distinct, at distinct places, in order along the axis."""
+    axes = page.evaluate(TICKS_JS, f"{DESIGNER} .sw-curve")
+    assert len(axes) == 2, f"{where}: expected two shown axes, got {axes}"
+    for a in axes:
+        texts, xs, ys = a["texts"], a["xs"], a["ys"]
+        assert len(texts) >= 2 and len(set(texts)) == len(texts), f"{where}: repeated labels {texts}"
+        horizontal = max(xs) - min(xs) > max(ys) - min(ys)
+        pos = xs if horizontal else [-y for y in ys]  # up the rate axis
+        values = [number(t) for t in texts]
+        order = sorted(range(len(texts)), key=lambda i: pos[i])
+        gaps = [pos[order[i + 1]] - pos[order[i]] for i in range(len(order) - 1)]
+        assert min(gaps) > 4, f"{where}: labels piled up {list(zip(texts, pos))}"
+        ordered = [values[i] for i in order]
+        assert ordered == sorted(ordered) and len(set(ordered)) == len(ordered), \
+            f"{where}: labels out of order {list(zip(texts, pos))}"
+
+
+def overlaps(a, b) -> bool:
+    return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+
+
+def toggle(page, label: str) -> None:
+    page.locator(f"{DESIGNER} .widget-toggle-button", has_text=re.compile(rf"^{label}$")).first.click()
+
+
+def settle(page, ms: int = 700) -> None:
+    page.wait_for_timeout(ms)
+
+
+def type_into(page, box, text: str) -> None:
+    box.fill(text)
+    box.press("Enter")
+
+
+def stage_box(page, i: int):
+    """The i-th box of the stages list (0: the warmup)."""
+    return page.locator(f"{DESIGNER} .sw-stage").nth(i)
+
+
+def field(stage, label: str):
+    """The text input of the row labelled ``label`` in a stage box."""
+    row = stage.locator(".widget-hbox, .widget-text", has=stage.page.locator(".widget-label",
+                                                                              has_text=re.compile(rf"^{label}$")))
+    return row.locator("input[type=text]").first
+
+
+@pytest.fixture(scope="module")
+def server():
+    with jupyter_server("lab", {"designer.ipynb": designer_notebook()}) as s:
+        yield s
+
+
+def open_designer(browser, server, width: int, height: int = 900):
+    context, page, watch = new_page(browser, width=width, height=height)
+    open_and_run(page, server.url("designer.ipynb"))
+    wait_for_curve(page, DESIGNER)
+    page.locator(DESIGNER).first.scroll_into_view_if_needed()
+    settle(page, 500)
+    return context, page, watch
+
+
+def check_clean(page, watch) -> None:
+    assert not widget_error_shown(page), "the page shows 'Error displaying widget'"
+    assert not watch.problems(), "\n".join(watch.problems())
+
+
+class TestPlotNeverMisleads:
+
+    def test_toggles_leave_ordered_readable_ticks(self, browser, server):
+        """log/linear/log/linear, then steps/epochs twice: every state has ordered, distinct, spread labels;
+        no console error from the widget stack."""
+        context, page, watch = open_designer(browser, server, 1440)
+        try:
+            assert_ticks_readable(page, "first view")
+            for label in ("log", "linear", "log", "linear", "epochs", "steps", "epochs", "steps", "log", "epochs"):
+                toggle(page, label)
+                settle(page)
+                assert_ticks_readable(page, f"after {label}")
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+    @pytest.mark.parametrize("peak", ["0.1", "3e-4"])
+    def test_axis_titles_clear_of_tick_labels(self, browser, server, peak):
+        """Axis titles never overlap tick labels, linear and log, for peaks 0.1 and 3e-4; the legend's names
+        lie inside the plot panel and apart."""
+        context, page, watch = open_designer(browser, server, 1440)
+        try:
+            d = page.locator(DESIGNER).first
+            before = wait_for_curve(page, DESIGNER)
+            type_into(page, field(stage_box(page, 1), "peak rate"), peak)
+            if peak != "0.1":
+                wait_for_change(page, before, DESIGNER)
+            for name in ("first", "second"):
+                type_into(page, d.locator(".sw-pin-name input").first, name)
+                d.locator("button.sw-pin").first.click()
+                page.locator(f"{DESIGNER} .sw-legend-item", has_text=name).first.wait_for()
+            for axis in ("linear", "log"):
+                toggle(page, axis)
+                settle(page)
+                b = page.evaluate(BOXES_JS, DESIGNER)
+                assert b["ticks"] and len(b["labels"]) >= 2, b
+                hits = [(lab, t) for lab in b["labels"] for t in b["ticks"] if overlaps(lab, t)]
+                assert not hits, f"peak {peak}, {axis}: axis titles overlap tick labels {hits}"
+                assert len(b["legend"]) == 3, b["legend"]
+                p = b["panel"]
+                for item in b["legend"]:
+                    assert p[0] <= item[0] and item[2] <= p[2] and p[1] <= item[1] and item[3] <= p[3], (item, p)
+                for i, a in enumerate(b["legend"]):
+                    for c in b["legend"][i + 1:]:
+                        assert not overlaps(a, c), (a, c)
+            shot(page, f"practitioner-labels-{peak}", d)
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+    def test_hover_reads_without_a_click(self, browser, server):
+        """Moving the pointer over the plot (no click) reads the step, epoch and rate there, and again elsewhere."""
+        context, page, watch = open_designer(browser, server, 1440)
+        try:
+            fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
+            hover = page.locator(f"{DESIGNER} .sw-hover").first
+            readings = []
+            for share in (0.3, 0.7):
+                page.mouse.move(fig["x"] + fig["width"] * share, fig["y"] + fig["height"] * 0.5)
+                page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
+                                       arg=[f"{DESIGNER} .sw-hover", readings[-1] if readings else hover.inner_text()])
+                readings.append(hover.inner_text())
+            assert readings[0] != readings[1]
+            for r in readings:
+                assert re.match(r"^step [\d,]+ · epoch [\d.,]+ · rate \S+$", r), r
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+
+class TestLayout:
+
+    def test_stacks_and_keeps_a_wide_curve_at_1000_px(self, browser, server):
+        """At 1,000 px the columns stack and the curve is at least 500 px wide."""
+        context, page, watch = open_designer(browser, server, 1000)
+        try:
+            fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
+            left = page.locator(f"{DESIGNER} .sw-left").first.bounding_box()
+            assert fig["width"] >= 500, fig
+            assert fig["y"] > left["y"] + left["height"] - 1 or fig["x"] > left["x"] + left["width"] - 1
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+    @pytest.mark.parametrize("width", [1440, 1000])
+    def test_screenshots_every_tab_linear_and_log(self, browser, server, width):
+        """Pictures to look at (kept in tests/browser/screenshots); the controls, the curve and the tab bar are
+        on screen together at 1440x900."""
+        context, page, watch = open_designer(browser, server, width)
+        try:
+            d = page.locator(DESIGNER).first
+            if width == 1440:
+                bar = page.locator(f"{DESIGNER} .sw-tabs").first.bounding_box()
+                fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
+                stage = stage_box(page, 1).bounding_box()
+                assert bar["y"] + bar["height"] <= 900 and fig["y"] >= 0 and stage["y"] + 30 <= 900, (bar, fig)
+            d.locator(".sw-pin-name input").first.fill("first look")
+            d.locator("button.sw-pin").first.click()
+            tabs = d.locator(".sw-tabs button")
+            for axis in ("linear", "log"):
+                toggle(page, axis)
+                settle(page, 400)
+                page.screenshot(path=str(shot(page, f"practitioner-{width}-{axis}")))
+                for i in range(tabs.count()):
+                    tabs.nth(i).click()
+                    settle(page, 900)
+                    name = tabs.nth(i).inner_text().strip().lower()
+                    shot(page, f"practitioner-{width}-{axis}-tab-{name}", d)
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+
+class TestPractitionerTask:
+
+    def test_task_in_at_most_ten_interactions(self, browser, server, tmp_path):
+        """3 epochs of linear warmup, cosine to 1 % of the peak over the rest, peak 3e-4; pin it; switch to
+        exponential decay; compare; export torch code: typed entries and clicks counted."""
+        context, page, watch = open_designer(browser, server, 1440)
+        count = 0
+
+        def act(fn, *args):
+            nonlocal count
+            count += 1
+            fn(*args)
+            settle(page, 600)
+
+        try:
+            d = page.locator(DESIGNER).first
+            act(type_into, page, field(stage_box(page, 0), "length"), "3 ep")
+            act(type_into, page, field(stage_box(page, 1), "peak rate"), "3e-4")
+            act(type_into, page, field(stage_box(page, 1), "end rate"), "1 %")
+            assert "3,450" in stage_box(page, 0).inner_text()
+            assert "103,500" in stage_box(page, 1).inner_text()           # the cosine fills the rest of the run
+            act(lambda: d.locator("button.sw-pin").first.click())
+            act(lambda: stage_box(page, 1).locator(".sw-stage-shape select").first.select_option("exp_decay"))
+            act(lambda: d.locator(".sw-tabs button", has_text="Compare").first.click())
+            assert "pin 1" in d.locator(".sw-compare").first.inner_text()
+            act(lambda: d.locator(".sw-tabs button", has_text="Export").first.click())
+            act(lambda: d.locator(".widget-toggle-button", has_text="PyTorch scheduler").first.click())
+            path = d.locator(".sw-code-path input").first
+            assert path.input_value() == "lr_schedule.py"
+            act(lambda: d.locator("button.sw-write-code").first.click())
+            d.locator(".sw-file-message", has_text="code written to").first.wait_for()
+            code = d.locator(".sw-export-code textarea").first.input_value()
+            assert "LambdaLR" in code and "BASE_LR = 0.0003 " in code
+            shot(page, "practitioner-task-done", d)
+            print(f"practitioner task: {count} interactions (clicks and typed entries)")
+            assert count <= MAX_INTERACTIONS
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+
+def test_toggles_in_notebook7(browser):
+    """The same toggles in Notebook 7: ordered, distinct labels and no console error from the widget stack."""
+    with jupyter_server("notebook", {"designer.ipynb": designer_notebook()}) as s:
+        context, page, watch = new_page(browser, width=1440, height=900, host_page_errors=NOTEBOOK7_OWN)
+        try:
+            open_and_run(page, s.url("designer.ipynb"))
+            wait_for_curve(page, DESIGNER)
+            page.locator(DESIGNER).first.scroll_into_view_if_needed()
+            for label in ("log", "linear", "log", "linear", "epochs", "steps", "epochs", "steps"):
+                toggle(page, label)
+                settle(page)
+                assert_ticks_readable(page, f"Notebook 7, after {label}")
+            shot(page, "practitioner-nb7", page.locator(DESIGNER).first)
+            check_clean(page, watch)
+        finally:
+            context.close()
