@@ -200,7 +200,7 @@ class ParamControl:
         elif k == "ticks":
             self.text = Entry(description=words, tooltip=tip + "; steps, epochs ('3 ep') or a share of the run "
                               "('6 %'); a share or part of an epoch rounds up", continuous_update=False,
-                              style=style, layout={"width": "15em", "flex": "0 0 auto"})
+                              style=style, layout={"width": "13em", "flex": "0 0 auto"})
             self.text.add_class("sw-length")
             self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})
             self.words.add_class("sw-length-words")

@@ -19,8 +19,8 @@ import numpy as np
 
 from ..combine import Restarts
 from ..schedule import Schedule, ScheduleError, as_whole, complain
-from .controls import LABEL, ParamControl, put
-from ..budget import ROUNDING
+from .controls import LABEL, Entry, ParamControl, number_text, put
+from ..budget import parse_length
 from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, rescale, \
     reshape, stage_span, whole
 from .guard import Panel, close_tree
@@ -31,7 +31,7 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = ["StagesPanel", "BudgetMethods"]
 
-BUTTON = {"width": "2.3em", "min_width": "2.3em", "flex": "0 0 auto"}
+BUTTON = {"width": "2.7em", "min_width": "2.7em", "flex": "0 0 auto", "padding": "0"}
 BOX = {"width": "14em", "flex": "0 0 auto"}
 NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot be edited here; "
                 "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
@@ -49,7 +49,7 @@ class StagesPanel(Panel, W.VBox):
                                layout=BOX)
         self.spe = W.Text(description="steps/epoch", placeholder="unknown", continuous_update=False,
                           tooltip="optimizer steps per epoch (blank: unknown)", style=LABEL, layout=BOX)
-        self.total = W.IntText(description="run length", tooltip="the whole run, in the unit counted; it stays "
+        self.total = Entry(description="run length", continuous_update=False, tooltip="the whole run, in the unit counted; it stays "
                                "as set while stages change (one stage fills the rest); changing it scales every "
                                "stage in proportion",
                                style=LABEL, layout=BOX)
@@ -68,8 +68,10 @@ class StagesPanel(Panel, W.VBox):
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
         self.note = W.HTML("")
-        self.rule = W.HTML(f'<span style="color:#4b5563;font-size:12px">Lengths: steps, epochs (3 ep) or a share '
-                           f'of the run (6 %); {ROUNDING}. Rates: a number or a share of the peak (1 %).</span>')
+        self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3450, '
+                           '3 ep or 6 % of the run (parts of a step round up: common practice, no source); rates '
+                           'as 3e-4 or 1 % of the peak.</div>')
+        self.rule.add_class("sw-rule")
         self.fill: int | None = None  # the stage chosen to fill the rest of the run (None: the longest)
         self.list = W.VBox([])
         self.controls: list[list[ParamControl]] = []
@@ -111,7 +113,7 @@ class StagesPanel(Panel, W.VBox):
             d = self.d
             put(self.unit, d.unit)
             put(self.spe, f"{d.steps_per_epoch}" if d.steps_per_epoch else "")
-            put(self.total, d.steps)
+            put(self.total, number_text(d.steps))
             put(self.batch, f"{d.batch}" if d.batch else "")
             words = f"the run: {d.steps:,} {d.unit}s"
             if d.steps_per_epoch and d.unit == "step":
@@ -193,12 +195,12 @@ class StagesPanel(Panel, W.VBox):
             if where != "warm":
                 fills = W.Checkbox(value=int(where) == filler(form, self.fill), description="fills the rest",
                                    indent=False, tooltip="this stage grows or shrinks so the design keeps the run's "
-                                   "length when other stages change", layout={"width": "7.5em", "flex": "0 0 auto"})
+                                   "length when other stages change", layout={"width": "9em", "flex": "0 0 auto"})
                 fills.add_class("sw-fills")
                 fills.observe(self.d.guarded(lambda ch, w=where: self._fills(w, ch["new"])), names="value")
                 kind = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES], value=leaf_of(obj).kind,
                                   tooltip="change this stage's shape: same span, same starting rate",
-                                  layout={"width": "11em", "flex": "0 0 auto"})
+                                  layout={"width": "10.5em", "flex": "0 0 auto"})
                 kind.add_class("sw-stage-shape")
                 kind.observe(self.d.guarded(lambda ch, w=where: self._reshape(w, ch["new"])), names="value")
                 rep = W.Checkbox(value=isinstance(obj, Restarts), description="repeat", indent=False,
@@ -404,7 +406,8 @@ class StagesPanel(Panel, W.VBox):
 
     def _total_edited(self, change: dict) -> None:
         if not self._quiet:
-            self.d.set_total(change["new"])
+            d = self.d
+            self.d.set_total(parse_length(change["new"], d.unit, d.steps_per_epoch, None, "designer", "run length", 1))
 
     def _batch_edited(self, change: dict) -> None:
         if not self._quiet:

@@ -37,7 +37,7 @@ LABEL_SIZE = 11        # px: names at the right end of the lines
 
 # Figures: (height in px, margins). Every figure also gets a minimum width, so that its plot area
 # (width - left - right) is positive however narrow the notebook is.
-CURVE_FIGURE = (290, {"top": 16, "bottom": 48, "left": 72, "right": 112})
+CURVE_FIGURE = (290, {"top": 16, "bottom": 48, "left": 64, "right": 24})
 REPLAY_FIGURE = (300, {"top": 16, "bottom": 44, "left": 72, "right": 84})
 RESCALE_FIGURE = (280, {"top": 16, "bottom": 44, "left": 64, "right": 24})
 MIN_PLOT_WIDTH = 200   # px of plot area at the least

@@ -236,12 +236,17 @@ class TestLayout:
             for axis in ("linear", "log"):
                 toggle(page, axis)
                 settle(page, 400)
-                page.screenshot(path=str(shot(page, f"practitioner-{width}-{axis}")))
+                d.scroll_into_view_if_needed()
+                page.evaluate("(sel) => document.querySelector(sel).scrollIntoView({block: 'start'})", DESIGNER)
+                shot(page, f"practitioner-{width}-{axis}")
                 for i in range(tabs.count()):
                     tabs.nth(i).click()
                     settle(page, 900)
+                    page.evaluate("(sel) => document.querySelector(sel).scrollIntoView({block: 'start'})",
+                                  f"{DESIGNER} .sw-tabs")
+                    settle(page, 200)
                     name = tabs.nth(i).inner_text().strip().lower()
-                    shot(page, f"practitioner-{width}-{axis}-tab-{name}", d)
+                    shot(page, f"practitioner-{width}-{axis}-tab-{name}")
             check_clean(page, watch)
         finally:
             context.close()
