@@ -90,14 +90,14 @@ class ExportPanel(Panel, W.VBox):
         self.language = W.ToggleButtons(options=[("Python function", "Python"), ("PyTorch scheduler", "torch")],
                                         value="Python", description="code",
                                         tooltip="a standalone Python function of the step, or a ready torch snippet",
-                                        style={"button_width": "10em", "description_width": "3em"})
+                                        style={"button_width": "12em", "description_width": "3em"})
         self.base = Entry(description="base rate", placeholder="the peak", continuous_update=False,
                           tooltip="the optimizer's lr (blank: the design's peak); the schedule multiplies it",
                           style={"description_width": "5em"}, layout={"width": "14em"})
         self.base.add_class("sw-base-rate")
         self.groups = W.Text(description="param groups", placeholder="same rate for all", continuous_update=False,
                              tooltip="one multiplier of the base rate per param group, e.g. 1, 0.1",
-                             style={"description_width": "6.5em"}, layout={"width": "20em"})
+                             style={"description_width": "7.5em"}, layout={"width": "21em"})
         self.groups.add_class("sw-groups")
         self.view = W.HTML("")
         self.view.add_class("sw-export-view")

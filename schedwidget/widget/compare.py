@@ -25,7 +25,7 @@ from ..facts import Facts, facts
 from ..sample import Trace, breaks
 from ..schedule import Schedule, complain
 from .guard import Panel
-from .theme import cell
+from .theme import cell, rate
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -68,7 +68,7 @@ def cells(f: Facts, unit: str | None = None, steps_per_epoch: int | None = None)
     unit = unit or f.unit
     spe = steps_per_epoch or f.steps_per_epoch
     if unit == f.unit or not spe:
-        return [html.escape(c) for c in (number(f.peak), at(f.peak_at, f.unit), number(f.final), number(f.area),
+        return [html.escape(c) for c in (rate(f.peak), at(f.peak_at, f.unit), rate(f.final), number(f.area),
                                          at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s")]
     if unit == "step":  # an epoch design read on the step clock
         where = (lambda t: None if t is None else at(t * spe, "step"))
@@ -76,7 +76,7 @@ def cells(f: Facts, unit: str | None = None, steps_per_epoch: int | None = None)
     else:
         where = (lambda t: None if t is None else f"epoch {t / spe:,.1f}")
         area, length = f.area / spe, f"{f.steps / spe:,.4g} epochs"
-    return [html.escape(c or "—") for c in (number(f.peak), where(f.peak_at), number(f.final), number(area),
+    return [html.escape(c or "—") for c in (rate(f.peak), where(f.peak_at), rate(f.final), number(area),
                                             where(f.under_10), length)]
 
 

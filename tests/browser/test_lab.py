@@ -68,29 +68,29 @@ class TestTourInJupyterLab:
         """After run-all the figure has a teal path with many points and the live widget, not the picture, shows."""
         info = figure(clean, DESIGNER)
         assert len(re.findall(r"[ML]", info["curve"])) > 20
-        assert clean.locator(f"{DESIGNER} .sw-readout").first.inner_text().strip()
+        assert clean.locator(f"{DESIGNER} .sw-sentence").first.inner_text().strip()
         child = clean.locator(".jp-OutputArea-child", has=clean.locator(DESIGNER)).first
         assert child.locator(".jp-RenderedSVG").count() == 0
         shot(clean, "lab-1-drawn", designer(clean))
 
     def test_rate_key_moves_curve(self, clean):
-        """ArrowRight on the peak slider's handle changes the curve's path and the readout."""
-        before, readout = figure(clean, DESIGNER)["curve"], text_of(designer(clean), ".sw-readout")
-        handle = rate_row(clean, "peak").locator(".noUi-handle").first
+        """ArrowRight on the peak slider's handle changes the curve's path and the sentence under the curve."""
+        before, readout = figure(clean, DESIGNER)["curve"], text_of(designer(clean), ".sw-sentence")
+        handle = rate_row(clean, "peak rate").locator(".noUi-handle").first
         handle.focus()
         clean.keyboard.press("ArrowRight")
         after = wait_for_change(clean, before, DESIGNER)
         assert after != before
         clean.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
-                                arg=[f"{DESIGNER} .sw-readout", readout])
-        assert text_of(designer(clean), ".sw-readout") != readout
+                                arg=[f"{DESIGNER} .sw-sentence", readout])
+        assert text_of(designer(clean), ".sw-sentence") != readout
         shot(clean, "lab-2-key", designer(clean))
 
     def test_add_stage_adds_join(self, clean):
         """Adding a stage from the shape dropdown and the button draws one more dotted join line."""
         joins = figure(clean, DESIGNER)["joins"]
         d = designer(clean)
-        d.locator(".sw-add-shape select").first.select_option("flat")
+        d.locator(".sw-add-shape select").first.select_option(label="constant")
         d.locator("button.sw-add-stage").first.click()
         info = wait_for(clean, "info.joins === extra + 1", DESIGNER, joins)
         assert info["joins"] == joins + 1
@@ -99,7 +99,7 @@ class TestTourInJupyterLab:
     def test_invalid_value_shows_error(self, clean):
         """A negative peak typed into its box shows the error text, and the last valid curve stays."""
         before = figure(clean, DESIGNER)["curve"]
-        box = rate_row(clean, "peak").locator(".sw-value input").first
+        box = rate_row(clean, "peak rate").locator(".sw-value input").first
         box.fill("-1")
         box.press("Enter")
         error = designer(clean).locator(".sw-error").first

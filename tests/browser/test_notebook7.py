@@ -40,8 +40,8 @@ class TestTourInNotebook7:
         page, watch = notebook7
         before = wait_for_curve(page, DESIGNER)
         shot(page, "nb7-1-drawn", page.locator(DESIGNER).first)
-        readout = text_of(page.locator(DESIGNER).first, ".sw-readout")
-        label = page.locator(".widget-label", has_text=re.compile(r"^peak$"))
+        readout = text_of(page.locator(DESIGNER).first, ".sw-sentence")
+        label = page.locator(".widget-label", has_text=re.compile(r"^peak rate$"))
         slider = page.locator(DESIGNER).first.locator(".sw-rate").filter(has=label).first
         slider.scroll_into_view_if_needed()
         track, handle = slider.locator(".noUi-base").first, slider.locator(".noUi-handle").first
@@ -54,7 +54,7 @@ class TestTourInNotebook7:
         after = wait_for_change(page, before, DESIGNER)
         assert after != before and len(re.findall(r"[ML]", figure(page, DESIGNER)["curve"])) > 20
         page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
-                               arg=[f"{DESIGNER} .sw-readout", readout])
+                               arg=[f"{DESIGNER} .sw-sentence", readout])
         shot(page, "nb7-2-moved", page.locator(DESIGNER).first)
         if watch.host:
             print("Notebook 7's own console errors (recorded, not failed):", *watch.host, sep="\n  ")

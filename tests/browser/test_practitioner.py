@@ -274,7 +274,7 @@ class TestPractitionerTask:
             assert "3,450" in stage_box(page, 0).inner_text()
             assert "103,500" in stage_box(page, 1).inner_text()           # the cosine fills the rest of the run
             act(lambda: d.locator("button.sw-pin").first.click())
-            act(lambda: stage_box(page, 1).locator(".sw-stage-shape select").first.select_option("exp_decay"))
+            act(lambda: stage_box(page, 1).locator(".sw-stage-shape select").first.select_option(label="exponential decay"))
             act(lambda: d.locator(".sw-tabs button", has_text="Compare").first.click())
             assert "pin 1" in d.locator(".sw-compare").first.inner_text()
             act(lambda: d.locator(".sw-tabs button", has_text="Export").first.click())

@@ -52,7 +52,7 @@ def timing_page(browser):
 
 def press_to_redraw(page, scope: str, presses: int) -> list[float]:
     """Milliseconds from keydown to the changed curve, for ``presses`` alternating arrow presses."""
-    label = page.locator(".widget-label", has_text=re.compile(r"^peak$"))
+    label = page.locator(".widget-label", has_text=re.compile(r"^peak rate$"))
     handle = page.locator(scope).locator(".sw-rate").filter(has=label).first.locator(".noUi-handle")
     out = []
     for i in range(presses):
