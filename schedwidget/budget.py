@@ -434,19 +434,22 @@ def length_words(ticks: int, unit: str = "step", steps_per_epoch: int | None = N
     return ("= " + " · ".join(words)) if words else ""
 
 
-def absorb(lengths: list[int], total: int, index: int, owner: str = "designer") -> list[int]:
+def absorb(lengths: list[int], total: int, index: int, owner: str = "designer", name: str = "length",
+           value: int | None = None, unit: str = "tick") -> list[int]:
     """``lengths`` with entry ``index`` changed so that they sum to ``total`` (the stage that fills the rest).
 
-    Raises ScheduleError when the other entries leave it less than one tick.
+    Raises ScheduleError when the other entries leave it less than one tick; ``owner``, ``name`` and
+    ``value`` name the box that was just changed (the message then says how long it can be).
 
     >>> absorb([3450, 97750], 103_500, 1)
     [3450, 100050]
     """
     rest = total - (sum(lengths) - lengths[index])
     if rest < 1:
-        raise complain(owner, "length", sum(lengths) - lengths[index],
-                       f"at most {total - 1:,} ticks for the other stages together",
-                       f"the stage that fills the rest of the run (stage {index}) would have {rest:,} ticks; "
+        others = sum(lengths) - lengths[index]
+        shown, most = (others, total - 1) if value is None else (value, value + rest - 1)
+        raise complain(owner, name, shown, f"at most {most:,} {unit}s in a run of {total:,}",
+                       f"the stage that fills the rest of the run would have {rest:,} {unit}s; "
                        "lengthen the run in the budget row, or shorten another stage")
     out = list(lengths)
     out[index] = rest

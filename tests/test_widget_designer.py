@@ -186,7 +186,7 @@ class TestNeverBroken:
         box = d.control("warmup", "steps").text
         box.value = 200_000
         # the run is the frame (issue 13): the cosine fills the rest of the 103,500 steps, and cannot go below 1
-        assert d.error.startswith("warmup: steps must be at most 103,499 ticks in a run of 103,500, got 200000")
+        assert d.error.startswith("warmup: steps must be at most 103,499 steps in a run of 103,500, got 200000")
         assert d.error_line.value.startswith("warmup: steps must be") and "sw-error" in d.error_line._dom_classes
         assert d.schedule == before and np.array_equal(d.canvas.curve.y, y)
         assert box.value == "5,750"

@@ -275,7 +275,7 @@ class StagesPanel(Panel, W.VBox):
         """Make ``form`` the design; the stage that fills the rest keeps the run's length (not when it is ``keep``,
         the stage whose own length was typed)."""
         if self.d.schedule.length == self.d.steps or self.d.schedule.length is None:
-            form = fit_run(form, self.d.steps, self.fill, keep, edited)
+            form = fit_run(form, self.d.steps, self.fill, keep, edited + (self.d.unit,) if edited else None)
         self.d.propose(form.build())
 
     def _edit(self, where: str, part: str, name: str, value: Any) -> None:
