@@ -107,7 +107,7 @@ SPECIAL = {
     "unit": [atom(s) for s in ("'steps'", "'Epoch'", "None", "'epoch'", "''")],
     "groups": [atom(s) for s in ("[]", "[float('nan')]", "[2**64]", "'1,2'", "{1: 2}", "[1.0, -1.0]",
                                   "(m for m in [1.0])", "[1.0] * 100000", "[10**400]", "np.array([1.0, 0.1])",
-                                  "np.ma.masked_array([1.0], mask=[True])")],
+                                  "np.ma.masked_array([1.0], mask=[True])", "np.array(0.1)")],
     "rule": [atom(s) for s in ("'Linear'", "'sqrt '", "None")],
     "keep": [atom(s) for s in ("'sample'", "None")],
     "goal": [atom(s) for s in ("'maximize'", "'MAX'", "None")],
@@ -453,6 +453,8 @@ CORPUS = [
     "facts(flat(0.1), steps=10, unit=np.array(['step']))",
     "scale_for_batch(flat(0.1, steps=10), 1, 2, rule=np.array(['linear']))",
     "read_metric(10**5000 - 1)",  # --seed 2 --scale 4
+    "torch_factor(flat(0.1), 0.1, groups=np.array(0.1))",  # --seed 5 --scale 4
+    "to_torch(flat(0.1), 0.1, groups=np.array(0.1))",
     # --seed 3 --scale 4: rejecting one bad field of a 10**5-point knots node costs time x its depth (2 s at 40)
     "from_spec({'version': 1, 'schedule': functools.reduce(lambda d, _: {'kind': 'scale', 'factor': 1.0, "
     "'target': d}, range(40), {'kind': 'knots', 'points': [[i, 0.1] for i in range(100000)], 'steps': 2**53 + 2})})",
