@@ -18,7 +18,6 @@ from typing import Callable
 
 import numpy as np
 
-from .combine import Stretch
 from .schedule import MAX_TICKS, Schedule, ScheduleError, complain
 
 __all__ = ["check_name", "function_source", "UNITS"]
@@ -309,7 +308,7 @@ class _Writer:
         else:
             self._cycle_table(s, u, bound, ind, k, start, ln, last)
         # as the core: a stretched cycle is read on its inner clock in one step (one rounding, not two)
-        inner = s.target.target if isinstance(s.target, Stretch) else s.target
+        inner = s.target._unstretched()
         Li = float(inner.length)
         if s._same_clock():  # as the core: equal cycles of an unstretched target run on the cycle clock itself
             local = self.clock(f"{u} - {start}", ind)

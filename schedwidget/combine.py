@@ -14,7 +14,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from .schedule import EDGE_CAP, MAX_TICKS, Schedule, check_top, complain, literal, param
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, check_top, complain, literal, param, window
 
 #: growth must be 1 or at least this far from 1 (else a cycle table grows without bound).
 MIN_GROWTH_STEP = 0.01
@@ -99,6 +99,15 @@ class Stages(Schedule):
 
     def _work(self, below: list[int]) -> int:
         return 1 + max(below)  # each tick visits one stage
+
+    def _window(self) -> int:  # the fixed stages, then a window for the open last one
+        return int(self._starts[-1]) + window(self.parts[-1])
+
+    def _lead_in(self) -> int:  # a first stage that rises (a ramp up) is a warmup
+        return self.parts[0]._rise()
+
+    def _stage_parts(self) -> tuple[Schedule, ...]:
+        return self.parts
 
     @property
     def length(self) -> int | None:
@@ -245,6 +254,12 @@ class Warmup(Schedule):
     def children(self):
         return (self.target,)
 
+    def _window(self) -> int:
+        return self.steps + window(self.target)
+
+    def _lead_in(self) -> int:
+        return int(self.steps)
+
     def _at(self, u):
         return self.as_stages()._at(u)
 
@@ -355,7 +370,7 @@ class Restarts(Schedule):
         k, start, ln = self._locate(u)
         # A stretched cycle is read on its inner clock in one step, so the clock is rounded once, not twice:
         # a drop whose scaled position is a whole tick then lands exactly on it.
-        inner = self.target.target if isinstance(self.target, Stretch) else self.target
+        inner = self.target._unstretched()
         local = u - start
         if not self._same_clock():  # cycles of another length than the target's: rescale the clock
             local *= float(inner.length)
@@ -371,7 +386,7 @@ class Restarts(Schedule):
         Then the cycle clock is ``u - start``, not ``((u - start) * L) / L``: above 2**53 the product rounds,
         and 48 nested restarts read tick 30 as 29.999999999999996, a tick early (0.0 instead of 0.01).
         """
-        return self.growth == 1.0 and not isinstance(self.target, Stretch)
+        return self.growth == 1.0 and self.target._unstretched() is self.target
 
     def _starts(self, hi: float) -> tuple[np.ndarray, np.ndarray]:
         """Start and length of every cycle that begins at or before ``hi`` (at most EDGE_CAP)."""
@@ -388,6 +403,21 @@ class Restarts(Schedule):
             lengths = np.concatenate([lengths, np.ones(n)])
         keep = starts <= hi
         return starts[keep][: EDGE_CAP + 1], lengths[keep][: EDGE_CAP + 1]
+
+    def _window(self) -> int:  # three cycles
+        return int(self._lengths(3).sum())
+
+    def _readout_children(self):
+        return ()  # a decay that restarts has no half-life of the whole
+
+    def _joins(self):
+        """The target's joins in every cycle (the first EDGE_CAP positions), moved with each cycle's length."""
+        inner = self.target._joins()
+        if not inner.size:
+            return inner
+        L = float(self.target.length)
+        starts, lens = self._starts(float(MAX_TICKS if self.length is None else self.length))
+        return _cap((starts[:, None] + (inner[None, :] * lens[:, None]) / L).ravel())
 
     def _edges(self, hi):
         L = float(self.target.length)
@@ -435,19 +465,18 @@ class Restarts(Schedule):
         return lo.reshape(shape), hi.reshape(shape)
 
 
-@node
-class Product(Schedule):
-    """Tick-by-tick product of two schedules.
+class _Pair(Schedule):
+    """What a product and a sum share: two schedules read on one clock.
 
-    Its length is the longest finite length of the two (None only when both are
+    The length is the longest finite length of the two (None only when both are
     open-ended); past it, like every schedule, it holds its value, so an
-    open-ended factor stops changing there too.
+    open-ended operand stops changing there too.  A subclass declares ``left``,
+    ``right`` and ``_ceil`` fields and its own ``_joint``, ``_at``, ``_range``.
     """
 
-    kind: ClassVar[str] = "product"
-    left: Schedule = param(kind="schedule", doc="first factor")
-    right: Schedule = param(kind="schedule", doc="second factor")
-    _ceil: float = field(init=False, repr=False, compare=False)
+    __slots__ = ()
+    _word: ClassVar[str]
+    _symbol: ClassVar[str]
 
     def __post_init__(self) -> None:
         _schedule(self.kind, "left", self.left)
@@ -457,11 +486,9 @@ class Product(Schedule):
                   f"a schedule whose rates, {self._word} left's (up to {self.left._top():.3g}), stay")
         object.__setattr__(self, "_ceil", top)
 
-    _word: ClassVar[str] = "times"
-
     @staticmethod
     def _joint(a: float, b: float) -> float:
-        return a * b
+        raise NotImplementedError
 
     def _top(self) -> float:
         return self._ceil
@@ -473,30 +500,53 @@ class Product(Schedule):
     def children(self):
         return (self.left, self.right)
 
-    def _at(self, u):
-        return self.left._held(u) * self.right._held(u)
-
     def _edges(self, hi):
         return _cap(np.concatenate([self.left._edges(hi), self.right._edges(hi)]))
 
     def _joins(self):
         return np.unique(np.concatenate([self.left._joins(), self.right._joins()]))
 
+    def _window(self) -> int:  # both sides are open-ended here: the wider window
+        return max(window(self.left), window(self.right))
+
+    def __repr__(self) -> str:
+        return f"({self.left!r} {self._symbol} {self.right!r})"
+
+
+@node
+class Product(_Pair):
+    """Tick-by-tick product of two schedules."""
+
+    kind: ClassVar[str] = "product"
+    left: Schedule = param(kind="schedule", doc="first factor")
+    right: Schedule = param(kind="schedule", doc="second factor")
+    _ceil: float = field(init=False, repr=False, compare=False)
+    _word: ClassVar[str] = "times"
+    _symbol: ClassVar[str] = "*"
+
+    @staticmethod
+    def _joint(a: float, b: float) -> float:
+        return a * b
+
+    def _at(self, u):
+        return self.left._held(u) * self.right._held(u)
+
     def _range(self, a, b):
         la, ha = self.left._span(a, b)
         lb, hb = self.right._span(a, b)
         return la * lb, ha * hb
 
-    def __repr__(self) -> str:
-        return f"({self.left!r} * {self.right!r})"
-
 
 @node
-class Sum(Product):
+class Sum(_Pair):
     """Tick-by-tick sum of two schedules."""
 
     kind: ClassVar[str] = "sum"
+    left: Schedule = param(kind="schedule", doc="first term")
+    right: Schedule = param(kind="schedule", doc="second term")
+    _ceil: float = field(init=False, repr=False, compare=False)
     _word: ClassVar[str] = "added to"
+    _symbol: ClassVar[str] = "+"
 
     @staticmethod
     def _joint(a: float, b: float) -> float:
@@ -509,9 +559,6 @@ class Sum(Product):
         la, ha = self.left._span(a, b)
         lb, hb = self.right._span(a, b)
         return la + lb, ha + hb
-
-    def __repr__(self) -> str:
-        return f"({self.left!r} + {self.right!r})"
 
 
 @node
@@ -540,6 +587,9 @@ class Scaled(Schedule):
 
     def children(self):
         return (self.target,)
+
+    def _window(self) -> int:
+        return window(self.target)
 
     def _at(self, u):
         return self.target._at(u) * self.factor
@@ -592,6 +642,9 @@ class Clip(Schedule):
     def children(self):
         return (self.target,)
 
+    def _window(self) -> int:
+        return window(self.target)
+
     def _bound(self, x):
         return np.clip(x, self.low, self.high)
 
@@ -642,6 +695,15 @@ class Stretch(Schedule):
     def children(self):
         return (self.target,)
 
+    def _unstretched(self) -> Schedule:
+        return self.target
+
+    def _readout_children(self):
+        return ((self.target, self.steps / self.target.length),)
+
+    def _lead_in(self) -> int:  # the target's lead-in moved in proportion: the first whole tick at or after it
+        return math.ceil(self.target._lead_in() * self.steps / self.target.length)
+
     def _inner(self, u):
         return (u * float(self.target.length)) / float(self.steps)
 
@@ -678,7 +740,7 @@ def stages(*parts: Schedule) -> Schedule:
     flatparts: list[Schedule] = []
     for i, p in enumerate(parts):
         _schedule("stages", f"parts[{i}]", p)
-        flatparts.extend(p.parts if isinstance(p, Stages) else (p,))
+        flatparts.extend(p._stage_parts())
     if len(flatparts) == 1:
         return flatparts[0]
     return Stages(parts=tuple(flatparts))

@@ -20,10 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .combine import Restarts, Stretch
 from .sample import at_ticks, breaks, budget_of
 from .schedule import Schedule, as_whole, complain
-from .shapes import ExpDecay
 
 __all__ = ["Facts", "facts", "EXACT_LIMIT", "LARGE_BATCH", "LEVEL_TOLERANCE"]
 
@@ -49,7 +47,7 @@ LARGE_BATCH = 1024
 SCALING_MARGIN = 2.0
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class Facts:
     """What ``facts`` found.  Ticks are in the design's unit; rates are absolute."""
 
@@ -293,21 +291,20 @@ def _refine_under(s: Schedule, lo: int, hi: int, bound: float, budget: int = 48)
     return found
 
 
-def _half_life(s: Schedule) -> tuple[float, ExpDecay] | None:
-    """Half-life in ticks of the first exponential decay in the design (stretches applied).
+def _half_life(s: Schedule) -> tuple[float, float, int] | None:
+    """(half-life in ticks, factor, ticks per factor) of the first exponential decay in the design.
 
-    Depth first with an explicit stack, so a deeply nested design cannot exhaust Python's recursion limit.
+    Each node says whether it is a decay (``_decay``) and which children's readouts carry over with
+    what clock scale (``_readout_children``: a stretch scales, restarts carry none).  Depth first with
+    an explicit stack, so a deeply nested design cannot exhaust Python's recursion limit.
     """
     stack: list[tuple[Schedule, float]] = [(s, 1.0)]
     while stack:
         node, scale = stack.pop()
-        if isinstance(node, ExpDecay) and node.factor < 1.0:
-            return node.half_life() * scale, node
-        if isinstance(node, Restarts):
-            continue
-        if isinstance(node, Stretch):
-            scale *= node.steps / node.target.length
-        stack.extend((c, scale) for c in reversed(node.children()))
+        decay = node._decay()
+        if decay is not None:
+            return decay[0] * scale, decay[1], decay[2]
+        stack.extend((c, scale * k) for c, k in reversed(node._readout_children()))
     return None
 
 
@@ -414,10 +411,11 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     hl = _half_life(s)
     sentence = _sentence(s, n, unit, steps_per_epoch, first, peak, peak_at, final, after,
                          hl, under_10, len(brk), exact)
-    return Facts(unit, n, steps_per_epoch, exact, first, peak, peak_at, low, low_at, final, after,
-                 total / size, area, tuple(brk.tolist()), tuple(joins.tolist()), tuple(rows),
-                 hl[0] if hl else None, under_10, under_1,
-                 tuple(_cautions(s, first, peak, n, batch, unit)), sentence)
+    return Facts(unit=unit, steps=n, steps_per_epoch=steps_per_epoch, exact=exact, first=first, peak=peak,
+                 peak_at=peak_at, minimum=low, minimum_at=low_at, final=final, after=after, mean=total / size,
+                 area=area, breaks=tuple(brk.tolist()), joins=tuple(joins.tolist()), boundary=tuple(rows),
+                 half_life=hl[0] if hl else None, under_10=under_10, under_1=under_1,
+                 cautions=tuple(_cautions(s, first, peak, n, batch, unit)), sentence=sentence)
 
 
 def _whole_or_none(owner: str, name: str, value) -> int:
@@ -430,9 +428,9 @@ def _whole_or_none(owner: str, name: str, value) -> int:
 def _sentence(s, n, unit, spe, first, peak, peak_at, final, after, hl, under_10, nbreaks, exact) -> str:
     approx = "" if exact else " (read from a grid of ticks; the budget is too long to read every one)"
     if hl is not None and peak > 0:
-        life, node = hl
-        per = unit if node.every == 1 else f"{node.every} {unit}s"
-        return (f"x{node.factor:g} per {per}: half-life {life:.3g} {unit}s; after {n:,} {unit}s "
+        life, factor, every = hl
+        per = unit if every == 1 else f"{every} {unit}s"
+        return (f"x{factor:g} per {per}: half-life {life:.3g} {unit}s; after {n:,} {unit}s "
                 f"the rate is {after / peak:.3g} of the peak ({after:.3g}){approx}.")
     parts = [f"Starts at {_g(first)}"]
     if peak_at > 0:

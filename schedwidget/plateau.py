@@ -132,18 +132,9 @@ def lead_in(base: Schedule | None) -> int:
     >>> lead_in(warmup(cosine(0.1, steps=850), 50).stretch(90))  # a design in steps read once per epoch
     5
     """
-    from .combine import Stages, Stretch, Warmup
-    from .shapes import Ramp
-
     if base is not None and not isinstance(base, Schedule):
         raise complain("lead_in", "base", base, "None or a Schedule on the epoch clock (e.g. warmup(flat(0.1), 5))")
-    if isinstance(base, Warmup):
-        return int(base.steps)
-    if isinstance(base, Stages) and isinstance(base.parts[0], Ramp) and base.parts[0].end > base.parts[0].start:
-        return int(base.parts[0].steps)
-    if isinstance(base, Stretch):
-        return math.ceil(lead_in(base.target) * base.steps / base.target.length)
-    return 0
+    return 0 if base is None else int(base._lead_in())  # each kind knows its own lead-in
 
 
 def _check_min_drop(owner: str, min_drop: Any) -> float:

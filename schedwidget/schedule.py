@@ -15,12 +15,14 @@ from typing import Any, Iterator
 
 import numpy as np
 
-__all__ = ["Schedule", "ScheduleError", "Param", "param"]
+__all__ = ["Schedule", "ScheduleError", "Param", "param", "KINDS", "window"]
 
 #: How many possible discontinuities a node reports before it counts as dense.
 EDGE_CAP = 4096
 #: Largest tick or length: every whole number up to 2**53 is exact as a float64 clock.
 MAX_TICKS = 2 ** 53
+#: An open-ended schedule with nothing to measure its structure by is drawn over this many ticks.
+OPEN_WINDOW = 1000
 #: Highest rate a design may reach anywhere (checked at construction on a bound of every node): far above any
 #: learning rate, and low enough that no formula, sum, product or area over 2**53 ticks can overflow a float.
 MAX_RATE = 1e100
@@ -187,6 +189,15 @@ def fmt(x: float) -> str:
     return repr(float(x))
 
 
+#: The one registry of kinds: spec "kind" -> class.  Every class that sets its own ``kind`` joins it on definition.
+KINDS: dict[str, type[Schedule]] = {}
+
+
+def window(s: Schedule) -> int:
+    """The ticks a picture of ``s`` spans: its length, or for an open-ended design a window showing its structure."""
+    return int(s.length) if s.length is not None else int(s._window())
+
+
 class Schedule:
     """A learning-rate schedule: an immutable value mapping integer ticks to rates.
 
@@ -206,6 +217,18 @@ class Schedule:
     #: so equality, hashing, repr and pickling never see it (a copy computes it again).
     __slots__ = ("_whole",)
     kind: str = "schedule"  # overridden by every concrete class (a plain class attribute)
+
+    def __init_subclass__(cls, **kwargs: Any) -> None:
+        """A class that sets its own ``kind`` registers itself (``KINDS``): the spec, schema and fuzz suite see it."""
+        super().__init_subclass__(**kwargs)
+        kind = cls.__dict__.get("kind")
+        if not isinstance(kind, str):
+            return  # an abstract helper class (a leaf or pair base): no kind of its own
+        known = KINDS.get(kind)
+        # a dataclass with slots is built twice (the class, then its slotted copy): the copy replaces the class
+        if known is not None and (known.__module__, known.__qualname__) != (cls.__module__, cls.__qualname__):
+            raise TypeError(f"kind {kind!r} is already registered by {known.__module__}.{known.__qualname__}")
+        KINDS[kind] = cls
 
     # ----------------------------------------------------------------- protocol
     @property
@@ -240,6 +263,35 @@ class Schedule:
     def _work(self, below: list[int]) -> int:
         """Node visits one tick costs, given each child's (``children()`` order): this node and every child."""
         return 1 + sum(below)
+
+    # ------------------------------------------------- readouts a kind may own (defaults for most kinds)
+    def _window(self) -> int:
+        """Ticks a picture of this open-ended node shows (called only when ``length`` is None)."""
+        return OPEN_WINDOW
+
+    def _decay(self) -> tuple[float, float, int] | None:
+        """(half-life in ticks, factor, ticks per factor) when this node is an exponential decay, else None."""
+        return None
+
+    def _readout_children(self) -> tuple[tuple[Schedule, float], ...]:
+        """The children whose own readouts (a half-life) carry over to this node, each with its clock's scale."""
+        return tuple((c, 1.0) for c in self.children())
+
+    def _lead_in(self) -> int:
+        """Ticks at the start during which a plateau rule decides no drop: a warmup's length (0 by default)."""
+        return 0
+
+    def _rise(self) -> int:
+        """Ticks this node rises for when it is a design's first stage (a rising ramp: its length)."""
+        return 0
+
+    def _stage_parts(self) -> tuple[Schedule, ...]:
+        """This node as a list of stages (``stages`` flattens nested stages with it)."""
+        return (self,)
+
+    def _unstretched(self) -> Schedule:
+        """The shape this node stretches (itself unless it is a stretch)."""
+        return self
 
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
@@ -364,7 +416,7 @@ class Schedule:
         """The same shape over a new budget of ``steps`` ticks: joins and drops move in proportion."""
         from .combine import Stretch
 
-        inner = self.target if isinstance(self, Stretch) else self
+        inner = self._unstretched()
         if isinstance(steps, int) and steps == inner.length:
             return inner
         return Stretch(target=inner, steps=steps)

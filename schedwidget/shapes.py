@@ -105,6 +105,9 @@ class Ramp(_Leaf):
             return np.exp(math.log(self.start) + (math.log(self.end) - math.log(self.start)) * x)
         return self.end + (self.start - self.end) * (1.0 + np.cos(np.pi * x)) / 2.0
 
+    def _rise(self) -> int:
+        return int(self.steps) if self.end > self.start else 0
+
 
 @node
 class Cosine(_Leaf):
@@ -160,6 +163,15 @@ class ExpDecay(_Leaf):
         """Ticks for the rate to halve (continuous reading of the decay)."""
         return math.inf if self.factor == 1.0 else self.every * math.log(0.5) / math.log(self.factor)
 
+    def _decay(self):
+        return (self.half_life(), self.factor, self.every) if self.factor < 1.0 else None
+
+    def _window(self) -> int:  # until the rate is under 1 % of its peak
+        if self.factor >= 1.0:
+            return super()._window()
+        periods = math.ceil(math.log(0.01) / math.log(self.factor))
+        return max(2, min(self.every * periods, 10**9))
+
 
 @node
 class Drops(_Leaf):
@@ -188,6 +200,9 @@ class Drops(_Leaf):
     def _edges(self, hi):
         at = np.asarray(self.at, dtype=float)
         return at[at <= hi][:EDGE_CAP]
+
+    def _window(self) -> int:  # the last drop plus a quarter
+        return self.at[-1] + max(1, math.ceil(self.at[-1] / 4))
 
 
 @node
@@ -235,6 +250,9 @@ class InvSqrt(_Leaf):
         inside = (a <= self.warmup) & (self.warmup <= b)
         return lo, np.where(inside, self.peak, hi)
 
+    def _window(self) -> int:  # ten warmups
+        return 10 * self.warmup
+
 
 @node
 class Triangle(_Leaf):
@@ -272,6 +290,9 @@ class Triangle(_Leaf):
         top = self.low + (self.high - self.low) * np.power(self.shrink, c0 - 1.0)
         hi = np.maximum(np.maximum(fa, fb), np.where(apex, top, -np.inf))
         return lo, hi
+
+    def _window(self) -> int:  # three cycles
+        return 6 * self.half_period
 
 
 def _piecewise(xs: np.ndarray, ys: np.ndarray, u: np.ndarray, curve: str) -> np.ndarray:

@@ -32,9 +32,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable
 
-from .combine import Clip, Product, Restarts, Scaled, Stages, Stretch, Sum, Warmup
-from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain
-from .shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle
+from . import combine as _combine, shapes as _shapes  # noqa: F401 - defining the kinds registers them
+from .schedule import KINDS, MAX_TICKS, Schedule, ScheduleError, as_whole, complain
 
 if TYPE_CHECKING:  # jsonschema costs ~0.8 s to import (its format checkers); it is loaded only to validate
     import jsonschema
@@ -44,11 +43,6 @@ __all__ = ["FORMAT_VERSION", "Design", "to_spec", "from_spec", "read_design", "s
 
 FORMAT_VERSION = 1
 UNITS = ("step", "epoch")
-
-#: The one registry of kinds: spec "kind" -> class.
-KINDS: dict[str, type[Schedule]] = {c.kind: c for c in (
-    Flat, Ramp, Cosine, ExpDecay, Drops, Poly, InvSqrt, Triangle, OneCycle, Knots,
-    Stages, Warmup, Restarts, Product, Sum, Scaled, Clip, Stretch)}
 
 
 @dataclass(frozen=True)

@@ -18,10 +18,8 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
-from .combine import Clip, Product, Restarts, Scaled, Stages, Warmup
 from .sample import Trace, budget_of, trace
-from .schedule import Schedule, complain
-from .shapes import Drops, ExpDecay, InvSqrt, Triangle
+from .schedule import OPEN_WINDOW, Schedule, complain, window
 
 __all__ = ["render_svg", "default_window"]
 
@@ -30,8 +28,6 @@ JOIN = "#64748b"                     # slate: stage joins
 GHOSTS = ("#9ca3af", "#6b7280", "#a8a29e", "#78716c", "#d1d5db")  # muted greys, as the designer's pins
 INK = "#334155"                      # axes and labels
 GRID = "#e5e7eb"
-#: An open-ended schedule with nothing to measure its structure by is drawn over this many ticks.
-OPEN_WINDOW = 1000
 #: A log axis spans at most this many decades below the highest rate.
 MAX_DECADES = 12
 LEFT, RIGHT, TOP, BOTTOM = 58.0, 22.0, 24.0, 34.0
@@ -52,28 +48,9 @@ def default_window(s: Schedule) -> int:
     >>> default_window(restarts(cosine(0.1, steps=100)))
     300
     """
-    if s.length is not None:
-        return int(s.length)
-    if isinstance(s, Stages):
-        return int(s.starts()[-1]) + default_window(s.parts[-1])
-    if isinstance(s, Warmup):
-        return s.steps + default_window(s.target)
-    if isinstance(s, Restarts):
-        return int(s._lengths(3).sum())
-    if isinstance(s, (Scaled, Clip)):
-        return default_window(s.target)
-    if isinstance(s, Product):  # also Sum: both sides open-ended here
-        return max(default_window(s.left), default_window(s.right))
-    if isinstance(s, Drops):
-        return s.at[-1] + max(1, math.ceil(s.at[-1] / 4))
-    if isinstance(s, InvSqrt):
-        return 10 * s.warmup
-    if isinstance(s, Triangle):
-        return 6 * s.half_period
-    if isinstance(s, ExpDecay) and s.factor < 1.0:
-        periods = math.ceil(math.log(0.01) / math.log(s.factor))
-        return max(2, min(s.every * periods, 10**9))
-    return OPEN_WINDOW
+    if not isinstance(s, Schedule):
+        raise complain("default_window", "s", s, "a Schedule")
+    return window(s)  # each kind says what window shows its structure (``_window``)
 
 
 def nice_ticks(lo: float, hi: float, target: int = 5) -> np.ndarray:
