@@ -16,7 +16,7 @@ from typing import Any
 from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain, param
 
 __all__ = ["Budget", "check_length", "scale_for_batch", "parse_length", "parse_rate", "length_words", "absorb",
-           "ROUNDING", "LENGTH_FORMS", "RATE_FORMS"]
+           "ROUNDING", "LENGTH_FORMS", "RATE_FORMS", "Rescaled", "rescale_for_batch"]
 
 
 @dataclass(frozen=True)
@@ -454,3 +454,75 @@ def absorb(lengths: list[int], total: int, index: int, owner: str = "designer", 
     out = list(lengths)
     out[index] = rest
     return out
+
+
+# ------------------------------------------------------------------ a design at another batch size
+class Rescaled:
+    """One rescaling: the new design, its budget and clock, and how each design's ticks map to samples/steps."""
+
+    def __init__(self, old: Schedule, new: Schedule, old_steps: int, new_steps: int, unit: str,
+                 old_batch: int, new_batch: int, old_spe: int | None, new_spe: int | None,
+                 budget: Any = None) -> None:
+        self.old, self.new = old, new
+        self.budget = budget  # the new Budget when the clock was rescaled in whole epochs, else None
+        self.old_steps, self.new_steps = old_steps, new_steps
+        self.unit, self.old_batch, self.new_batch = unit, old_batch, new_batch
+        self.old_spe, self.new_spe = old_spe, new_spe
+
+    def x_factor(self, which: str, axis: str) -> float | None:
+        """x = tick * factor for the old or new design on a "samples" or "steps" axis (None: not known)."""
+        batch, spe = (self.old_batch, self.old_spe) if which == "old" else (self.new_batch, self.new_spe)
+        if self.unit == "step":
+            return float(batch) if axis == "samples" else 1.0
+        if not self.old_spe:
+            return None
+        if axis == "samples":
+            return float(self.old_spe * self.old_batch)  # an epoch is the same data at either batch size
+        return float(spe)
+
+
+def rescale_for_batch(s: Schedule, steps: int, unit: str, steps_per_epoch: int | None, from_batch: int, batch: int,
+                      processes: int, rule: str, keep: str) -> Rescaled:
+    """``s`` (a design of ``steps`` ticks of ``unit``) moved from global batch ``from_batch`` to ``batch * processes``.
+
+    Rates follow ``rule`` (``scale_for_batch``).  With ``keep="samples"`` a design in steps gets a
+    rescaled clock; when steps per epoch are known and the budget is a whole number of epochs, the
+    new budget is a whole number of epochs too (``Budget(..., drop_last=True)``: the incomplete last
+    global batch of an epoch is dropped).  A design in epochs already counts samples, so only its
+    rates change.  Bad input is a ScheduleError.
+
+    >>> from schedwidget import cosine, warmup
+    >>> r = rescale_for_batch(warmup(cosine(0.1, steps=97_750), 5_750), 103_500, "step", 1150, 128, 1024, 1, "linear", "samples")
+    >>> r.new_steps, r.new_spe, round(r.new(715), 6)
+    (12870, 143, 0.8)
+    """
+    for name, v in (("current batch", from_batch), ("new batch", batch), ("processes", processes)):
+        if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+            raise complain("rescale", name, v, "a whole number >= 1")
+    to_batch = batch * processes
+    if unit == "epoch":  # the epoch clock counts samples already: keep the ticks, scale the rates
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep="steps")
+        new_spe = None
+        if steps_per_epoch:
+            new_spe = Budget(samples=steps_per_epoch * from_batch, batch=batch, processes=processes, epochs=1,
+                             drop_last=True).steps_per_epoch
+        return Rescaled(s, new, steps, steps, unit, from_batch, to_batch, steps_per_epoch, new_spe)
+    if keep == "samples" and s.length is None:
+        raise complain("rescale", "design length", None, "a length to rescale the clock in samples",
+                       "an open-ended design keeps its ticks; choose keep 'steps'")
+    if keep == "steps":
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
+        return Rescaled(s, new, steps, steps, unit, from_batch, to_batch, steps_per_epoch, steps_per_epoch)
+    budget = None
+    if steps_per_epoch and steps % steps_per_epoch == 0:
+        # whole epochs stay whole epochs: the incomplete last global batch of an epoch is dropped
+        budget = Budget(samples=steps_per_epoch * from_batch, batch=batch, epochs=steps // steps_per_epoch,
+                        processes=processes, drop_last=True)
+        new_steps, new_spe = budget.steps, budget.steps_per_epoch
+        n = new_steps if s.length == steps else max(1, round(s.length * new_steps / steps))
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep, steps=n)
+    else:
+        new = scale_for_batch(s, from_batch, to_batch, rule=rule, keep=keep)
+        new_steps = new.length if s.length == steps else max(1, round(steps * from_batch / to_batch))
+        new_spe = None
+    return Rescaled(s, new, steps, new_steps, unit, from_batch, to_batch, steps_per_epoch, new_spe, budget)

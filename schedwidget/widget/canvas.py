@@ -18,7 +18,7 @@ import numpy as np
 with warnings.catch_warnings():
     # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
-    from bqplot import Axis, Bars, Figure, LinearScale, Lines, LogScale, OrdinalScale
+    from bqplot import Axis, Bars, Figure, LinearScale, Lines, OrdinalScale
 
 from ..sample import Trace, trace
 from ..schedule import Schedule

@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING, Sequence
 import ipywidgets as W
 import numpy as np
 
-from ..facts import Facts, facts
+from ..facts import Facts
 from ..sample import Trace, breaks
 from ..schedule import Schedule, complain
 from .guard import Panel

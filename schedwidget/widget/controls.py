@@ -164,7 +164,7 @@ class ParamControl:
     >>> from schedwidget.shapes import Cosine
     >>> c = ParamControl("cosine", "peak", Cosine.params()["peak"], 0.1, 1000, print)
     >>> c.text.value
-    0.1
+    '0.1'
     """
 
     def __init__(self, owner: str, name: str, p: Param, value: Any, budget: int,

@@ -25,7 +25,7 @@ import numpy as np
 with warnings.catch_warnings():
     # bqplot 0.13 declares traits the pre-4.1 way; traitlets says so on import. Not ours.
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
-    from bqplot import Axis, Figure, LinearScale, Lines, LogScale, Scatter
+    from bqplot import Axis, Figure, LinearScale, Lines, Scatter
 
 from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau

@@ -22,7 +22,7 @@ from ..schedule import Schedule, ScheduleError, as_whole, complain
 from .controls import LABEL, Entry, ParamControl, number_text, put
 from ..budget import parse_length
 from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, rescale, \
-    reshape, stage_span, whole
+    reshape, whole
 from .guard import Panel, close_tree
 from .theme import BORDER
 
