@@ -455,6 +455,9 @@ CORPUS = [
     "read_metric(10**5000 - 1)",  # --seed 2 --scale 4
     "torch_factor(flat(0.1), 0.1, groups=np.array(0.1))",  # --seed 5 --scale 4
     "to_torch(flat(0.1), 0.1, groups=np.array(0.1))",
+    # --seed 6 --scale 10 (factories and the other call generators only)
+    "scale_for_batch(flat(0.1), 147200, 96, rule=np.array([0.1, 0.2]))",
+    "torch_factor(cosine(0.1, steps=10), 0.001, groups=[1.0] * 100000)",
     # --seed 3 --scale 4: rejecting one bad field of a 10**5-point knots node costs time x its depth (2 s at 40)
     "from_spec({'version': 1, 'schedule': functools.reduce(lambda d, _: {'kind': 'scale', 'factor': 1.0, "
     "'target': d}, range(40), {'kind': 'knots', 'points': [[i, 0.1] for i in range(100000)], 'steps': 2**53 + 2})})",
