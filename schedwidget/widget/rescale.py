@@ -173,12 +173,12 @@ class RescalePanel(Panel, W.VBox):
         unit = r.unit
         rows = [("global batch", f"{r.old_batch:,}", f"{r.new_batch:,}"),
                 ("peak rate", f"{peak_old:.4g}", f"{peak_new:.4g}"),
-                (f"budget ({unit}s)", f"{r.old_steps:,}", f"{r.new_steps:,}")]
+                (f"run length ({unit}s)", f"{r.old_steps:,}", f"{r.new_steps:,}")]
         if r.old_spe:
             rows.append(("steps per epoch", f"{r.old_spe:,}", f"{r.new_spe:,}" if r.new_spe else "?"))
         if to.joins.size and unit == "step":
             j_old, j_new = float(to.joins[0]), float(tn.joins[0]) if tn.joins.size else float("nan")
-            rows.append(("first join, samples", f"{j_old * r.old_batch:,.0f}", f"{j_new * r.new_batch:,.0f}"))
+            rows.append(("first stage change, samples", f"{j_old * r.old_batch:,.0f}", f"{j_new * r.new_batch:,.0f}"))
         num = 'style="text-align:right;padding:1px 10px"'
         body = "".join(f"<tr><td>{html.escape(a)}</td><td {num}>{b}</td><td {num}>{c}</td></tr>" for a, b, c in rows)
         table = f"<table><tr><th></th><th {num}>now</th><th {num}>rescaled</th></tr>{body}</table>"

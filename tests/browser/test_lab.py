@@ -68,6 +68,7 @@ class TestTourInJupyterLab:
         """After run-all the figure has a teal path with many points and the live widget, not the picture, shows."""
         info = figure(clean, DESIGNER)
         assert len(re.findall(r"[ML]", info["curve"])) > 20
+        clean.locator(f"{DESIGNER} .sw-sentence", has_text=re.compile(r"peaks|Starts")).first.wait_for()
         assert clean.locator(f"{DESIGNER} .sw-sentence").first.inner_text().strip()
         child = clean.locator(".jp-OutputArea-child", has=clean.locator(DESIGNER)).first
         assert child.locator(".jp-RenderedSVG").count() == 0

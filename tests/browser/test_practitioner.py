@@ -212,6 +212,7 @@ class TestLayout:
         try:
             fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
             left = page.locator(f"{DESIGNER} .sw-left").first.bounding_box()
+            print(f"at 1000 px: curve figure {fig['width']:.0f} px wide")
             assert fig["width"] >= 500, fig
             assert fig["y"] > left["y"] + left["height"] - 1 or fig["x"] > left["x"] + left["width"] - 1
             check_clean(page, watch)
