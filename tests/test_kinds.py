@@ -16,7 +16,7 @@ from schedwidget.combine import Product, Sum
 from schedwidget.schedule import KINDS, Schedule
 
 PACKAGE = Path(sw.__file__).parent
-NODE_MODULES = {"shapes.py", "combine.py", "schedule.py"}
+NODE_MODULES = {"schedule.py", "leaf.py", "shapes.py", "pieces.py", "stages.py", "restarts.py", "combine.py"}
 #: budget.py belongs to the designer's side of the project (issue 13) and still unwraps scale/clip/warmup/stages
 #: itself; it is listed here so that this check guards every other module meanwhile.
 ELSEWHERE = {"budget.py"}
