@@ -29,7 +29,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from . import calls, specs
+from . import calls, corpus, routes, specs
 from .runner import Case, Report, run_cases
 
 __all__ = ["SEED", "MIX", "build", "run", "Case", "Report"]
@@ -48,7 +48,7 @@ MIX = {
     "metrics": 260,
     "transforms": 200,
     "cli": 120,
-    "corpus": 0,  # every entry of calls.CORPUS, whatever the count
+    "corpus": 0,  # every entry of corpus.CORPUS, whatever the count
 }
 
 
@@ -65,9 +65,9 @@ def build(seed: int = SEED, mix: dict[str, int] | None = None, folder: Path | No
         "bad_ticks": lambda r, n: calls.bad_ticks(r, n),
         "factor_states": lambda r, n: calls.factor_states(r, n),
         "metrics": lambda r, n: calls.metrics(r, n, folder),
-        "transforms": lambda r, n: calls.transforms(r, n),
-        "cli": lambda r, n: calls.cli(r, n, folder),
-        "corpus": lambda r, n: calls.corpus(r, n),
+        "transforms": lambda r, n: routes.transforms(r, n),
+        "cli": lambda r, n: routes.cli(r, n, folder),
+        "corpus": lambda r, n: corpus.corpus(r, n),
     }
     cases: list[Case] = []
     for name, count in mix.items():
