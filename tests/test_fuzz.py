@@ -59,9 +59,9 @@ def test_generators_cover_every_kind():
     import random
 
     from schedwidget.spec import KINDS
-    from tests.fuzz.designs import COMBINATORS, LEAVES, design
+    from tests.fuzz.designs import combinators, design, leaves
 
-    assert sorted(COMBINATORS + LEAVES) == sorted(KINDS)
+    assert sorted(combinators() + leaves()) == sorted(KINDS)
     rng = random.Random(fuzz.SEED)
     for kind in KINDS:
         assert design(rng, depth=1, kind=kind).kind == kind
@@ -96,3 +96,20 @@ def test_runner_classifies_outcomes():
     out = run_cases(cases)
     assert [o.outcome for o in out] == ["value", "ScheduleError", "failure", "failure"]
     assert out[2].klass.startswith("IndexError") and out[3].klass.startswith("timeout")
+
+
+def test_a_new_kind_joins_the_generators():
+    """A kind defined after import (the toy kind of DEVELOPERS.md) is drawn, mutated and checked like the others."""
+    from schedwidget.schedule import KINDS
+    from tests.test_toy_kind import define_toy
+
+    assert "halfway" not in KINDS  # test_toy_kind removes it after its own module
+    define_toy()
+    try:
+        rep = fuzz.run(fuzz.SEED, {"valid_specs": 60, "drawn_specs": 40, "mutated_specs": 60})
+    finally:
+        del KINDS["halfway"]  # the registry is shared by the whole test session
+    assert any("'halfway'" in c.repro for c in rep.cases)
+    fails = rep.failures()
+    if fails:
+        pytest.fail(rep.text_failures(limit=1200), pytrace=False)

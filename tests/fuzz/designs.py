@@ -18,9 +18,14 @@ from typing import Any
 from schedwidget.schedule import MAX_TICKS, Param, Schedule, ScheduleError
 from schedwidget.spec import KINDS
 
-#: Kinds whose parameters hold other schedules (combinators) and kinds that do not (leaves).
-COMBINATORS = [k for k, c in KINDS.items() if any(p.kind in ("schedule", "schedules") for p in c.params().values())]
-LEAVES = [k for k in KINDS if k not in COMBINATORS]
+def combinators() -> list[str]:
+    """Registered kinds whose parameters hold other schedules (read at each call: kinds register on definition)."""
+    return [k for k, c in KINDS.items() if any(p.kind in ("schedule", "schedules") for p in c.params().values())]
+
+
+def leaves() -> list[str]:
+    """Registered kinds that hold no other schedule."""
+    return [k for k in KINDS if k not in combinators()]
 
 #: Tick counts at the edge of what a float64 clock holds, and odd ones that make stretched clocks round.
 EXTREME_TICKS = [MAX_TICKS, MAX_TICKS - 1, 2 ** 52 + 1, 10 ** 12, 100_000_001, 100_000_006, 99_999_989, 2 ** 31 - 1]
@@ -104,7 +109,7 @@ def design(rng: random.Random, depth: int = 2, extreme: float = 0.05, kind: str 
     dropped; ``drawn_specs`` makes such draws into cases).
     """
     for _ in range(200):
-        k = kind or (rng.choice(COMBINATORS) if depth > 0 and rng.random() < 0.55 else rng.choice(LEAVES))
+        k = kind or (rng.choice(combinators()) if depth > 0 and rng.random() < 0.55 else rng.choice(leaves()))
         cls = KINDS[k]
 
         def child(depth=depth):

@@ -20,7 +20,7 @@ from schedwidget.spec import FORMAT_VERSION, KINDS
 
 from . import atoms
 from .atoms import src
-from .designs import COMBINATORS, design, draw_value
+from .designs import combinators, design, draw_value
 from .checks import check, check_with_facts
 from .runner import Case
 
@@ -66,7 +66,7 @@ def wrapper(rng: random.Random, kind: str, target: dict, **fixed: Any) -> dict:
 
 def single_wrappers() -> list[str]:
     """Combinator kinds with exactly one child schedule."""
-    return [k for k in COMBINATORS if [p.kind for p in KINDS[k].params().values()].count("schedule") == 1
+    return [k for k in combinators() if [p.kind for p in KINDS[k].params().values()].count("schedule") == 1
             and not any(p.kind == "schedules" for p in KINDS[k].params().values())]
 
 
