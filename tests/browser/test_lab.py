@@ -91,10 +91,15 @@ class TestTourInJupyterLab:
         """Adding a stage from the shape dropdown and the button draws one more dotted join line."""
         joins = figure(clean, DESIGNER)["joins"]
         d = designer(clean)
+        boxes = d.locator(".sw-stage").count()
         d.locator(".sw-add-shape select").first.select_option(label="constant")
         d.locator("button.sw-add-stage").first.click()
         info = wait_for(clean, "info.joins === extra + 1", DESIGNER, joins)
         assert info["joins"] == joins + 1
+        # the stage boxes are rebuilt too: the next test must not type into a box that is being replaced
+        clean.wait_for_function("([sel, n]) => document.querySelectorAll(sel).length === n",
+                                arg=[f"{DESIGNER} .sw-stage", boxes + 1])
+        clean.wait_for_timeout(300)
         shot(clean, "lab-3-stage", d)
 
     def test_invalid_value_shows_error(self, clean):
