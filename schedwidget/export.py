@@ -33,6 +33,8 @@ from .schedule import MAX_TICKS, Schedule, ScheduleError, complain
 
 __all__ = ["to_python", "make_scheduler", "torch_factor", "to_torch", "RateFactor"]
 
+#: Most param groups a design is exported for (one factor object, or one snippet multiplier, each).
+MAX_GROUPS = 10_000
 #: Names the torch snippet defines itself besides the function.
 SNIPPET_NAMES = frozenset({"torch", "BASE_LR", "GROUP_MULTIPLIERS", "ExportedFactor", "make_scheduler"})
 #: Names the snippet's factor reads inside ``__call__(self, t)``, where a function of that name would be shadowed.
@@ -165,10 +167,18 @@ def _compiled(owner: str, s: Schedule) -> str:
     entries) is refused before its spec text is made and read back, which for 100,000 knots took seconds.
     A text read from a checkpoint still goes through the validating loader (``_canonical``).
     """
+    last = _LAST_DESIGN.get("pair")
+    if last is not None and last[0] is s and last[1] in _COMPILED:  # one design, many groups: built once
+        return last[1]
     fn = _build(owner, s)
     text = _design_text(s)
     _remember(text, fn)
+    _LAST_DESIGN["pair"] = (s, text)
     return text
+
+
+#: The design last compiled by ``_compiled`` and its text (a list of group factors shares one design).
+_LAST_DESIGN: dict[str, tuple[Schedule, str]] = {}
 
 
 def _remember(text: str, fn: Callable[[int], float]) -> None:
@@ -407,9 +417,17 @@ def torch_factor(s: Schedule, base_lr: float, groups: Sequence[float] | None = N
 
 
 def _multipliers(owner: str, groups: Any) -> tuple[float, ...]:
-    if isinstance(groups, (str, bytes)) or not hasattr(groups, "__iter__"):
-        raise complain(owner, "groups", groups, "a non-empty list of multipliers, one per param group")
-    out = tuple(_positive(owner, f"groups[{i}]", m, zero=True) for i, m in enumerate(groups))
+    try:
+        items = None if isinstance(groups, (str, bytes)) else list(groups)
+    except TypeError:  # not iterable, or a 0-d array
+        items = None
+    if items is None:
+        raise complain(owner, "groups", _brief(groups), "a non-empty list of multipliers, one per param group")
+    if len(items) > MAX_GROUPS:  # each group is a factor object: bounded work for any list
+        raise complain(owner, "groups", _Shown(f"a list of {len(items):,} multipliers"),
+                       f"at most {MAX_GROUPS:,} multipliers, one per param group",
+                       "an optimizer with more param groups than that is almost certainly built by mistake")
+    out = tuple(_positive(owner, f"groups[{i}]", m, zero=True) for i, m in enumerate(items))
     if not out:
         raise complain(owner, "groups", groups, "a non-empty list of multipliers, one per param group",
                        "use None for one schedule shared by every group")

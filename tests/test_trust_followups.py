@@ -186,3 +186,18 @@ class TestFuzzCorpusFindings:
             sw.from_spec(doc)
         # generous: each level re-checked its whole subtree (4.3 million predicate calls, 3.5 s); ~0.25 s now
         assert time.process_time() - t0 < 1.5
+
+    def test_groups_as_a_0d_array(self):
+        with pytest.raises(ScheduleError, match=r"^to_torch: groups must be a non-empty list of multipliers, one per "
+                                                r"param group, got array\(0\.1\)$"):
+            sw.to_torch(sw.flat(0.1), 0.1, groups=np.array(0.1))
+
+    def test_many_groups_share_one_build_and_are_capped(self):
+        s = sw.cosine(0.1, steps=10)
+        t0 = time.process_time()
+        factors = sw.torch_factor(s, 0.001, groups=[1.0] * 10_000)
+        assert time.process_time() - t0 < 1.0  # generous: one design is built once, not once per group (~0.1 s)
+        assert len(factors) == 10_000 and factors[-1](3) == float(s(3)) / 0.001
+        with pytest.raises(ScheduleError, match=r"groups must be at most 10,000 multipliers, one per param group, "
+                                                r"got a list of 100,000 multipliers"):
+            sw.torch_factor(s, 0.001, groups=[1.0] * 100_000)
