@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 from .schedule import Schedule, check_top, complain, monotone_range, param
 
-__all__ = ["node", "RATE_SOFT", "TICK_SOFT"]
+__all__ = ["node", "Leaf", "RATE_SOFT", "TICK_SOFT"]
 
 node = dataclass(frozen=True, slots=True, repr=False, kw_only=True)
 
@@ -56,3 +56,7 @@ def _floor_not_above_peak(s) -> None:
     if s.floor > s.peak:
         raise complain(s.kind, "floor", s.floor, f"<= peak = {s.peak!r}",
                        "a decay cannot end above its peak; for a rising curve use ramp(..., curve='cosine')")
+
+
+#: The public name of the leaf base class: a new leaf kind subclasses it (see DEVELOPERS.md, "How a node works").
+Leaf = _Leaf

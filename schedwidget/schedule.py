@@ -225,8 +225,10 @@ class Schedule:
         if not isinstance(kind, str):
             return  # an abstract helper class (a leaf or pair base): no kind of its own
         known = KINDS.get(kind)
-        # a dataclass with slots is built twice (the class, then its slotted copy): the copy replaces the class
-        if known is not None and (known.__module__, known.__qualname__) != (cls.__module__, cls.__qualname__):
+        # a dataclass with slots is built twice (the class, then its slotted copy, which loses a local class's
+        # qualified name): the copy replaces the class, as does a class of the same name defined again in the
+        # same module (a notebook cell run twice)
+        if known is not None and (known.__module__, known.__name__) != (cls.__module__, cls.__name__):
             raise TypeError(f"kind {kind!r} is already registered by {known.__module__}.{known.__qualname__}")
         KINDS[kind] = cls
 

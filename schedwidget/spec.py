@@ -225,9 +225,13 @@ def _shallow(schema: dict[str, Any], root: str | None) -> jsonschema.Draft202012
     return jsonschema.Draft202012Validator(body)
 
 
-@functools.lru_cache(maxsize=None)
 def _validator(kind: str | None = None) -> jsonschema.Draft202012Validator:
-    return _shallow(shipped_schema_cached(), kind)
+    return _validator_for(tuple(KINDS), kind)
+
+
+@functools.lru_cache(maxsize=None)
+def _validator_for(kinds: tuple[str, ...], kind: str | None) -> jsonschema.Draft202012Validator:
+    return _shallow(_schema_for(kinds), kind)
 
 
 def _problems(d: dict[str, Any], plain: bool = False) -> list[tuple[list, str, str]]:
@@ -293,10 +297,22 @@ def _report(found: list, kind: str, node: dict[str, Any], path: list, plain: boo
         found.append((path + where, e.message, e.validator))
 
 
-@functools.lru_cache(maxsize=1)
 def shipped_schema_cached() -> dict[str, Any]:
-    """The shipped schema, read once (do not mutate the result)."""
-    return shipped_schema()
+    """The schema specs are checked against, read once per set of kinds (do not mutate the result).
+
+    That is the shipped file while the registry holds exactly the kinds it lists (always, for the
+    package's own kinds: a test keeps the two equal); a kind registered later (a plugin, a test's toy
+    kind) is checked against the schema generated from the registry, so it loads before any file is
+    regenerated.
+    """
+    return _schema_for(tuple(KINDS))
+
+
+@functools.lru_cache(maxsize=4)
+def _schema_for(kinds: tuple[str, ...]) -> dict[str, Any]:
+    shipped = shipped_schema()
+    listed = shipped.get("$defs", {}).get("node", {}).get("properties", {}).get("kind", {}).get("enum", [])
+    return shipped if tuple(listed) == kinds else json_schema()
 
 
 def shipped_schema() -> dict[str, Any]:
@@ -471,10 +487,14 @@ def _node_form(kinds: list[str]) -> dict[str, Any]:
                        "then": {"$ref": f"#/$defs/{k}"}} for k in kinds]}
 
 
-@functools.lru_cache(maxsize=1)
 def _table() -> dict[str, _Check]:
-    """A predicate per definition of the shipped schema (``node`` dispatches on the kind), compiled once."""
-    schema = shipped_schema_cached()
+    """A predicate per definition of the schema (``node`` dispatches on the kind), compiled once per set of kinds."""
+    return _table_for(tuple(KINDS))
+
+
+@functools.lru_cache(maxsize=4)
+def _table_for(kinds_now: tuple[str, ...]) -> dict[str, _Check]:
+    schema = _schema_for(kinds_now)
     defs = schema.get("$defs", {})
     table: dict[str, _Check] = {}
     for name, sub in defs.items():
@@ -491,21 +511,29 @@ def _table() -> dict[str, _Check]:
     return table
 
 
-@functools.lru_cache(maxsize=1)
 def _accepts() -> _Check:
-    """The predicate for a whole spec, compiled once from the shipped schema."""
-    return _compile({k: v for k, v in shipped_schema_cached().items() if k != "$defs"}, _table())
+    """The predicate for a whole spec, compiled once per set of kinds."""
+    return _accepts_for(tuple(KINDS))
+
+
+@functools.lru_cache(maxsize=4)
+def _accepts_for(kinds: tuple[str, ...]) -> _Check:
+    return _compile({k: v for k, v in _schema_for(kinds).items() if k != "$defs"}, _table_for(kinds))
+
+
+def _item_check(kind: str, name: str) -> _Check | None:
+    """The predicate for one item of a list parameter of ``kind`` (None when ``name`` is not such a list)."""
+    return _item_check_for(tuple(KINDS), kind, name)
 
 
 @functools.lru_cache(maxsize=None)
-def _item_check(kind: str, name: str) -> _Check | None:
-    """The predicate for one item of a list parameter of ``kind`` (None when ``name`` is not such a list)."""
-    sub = shipped_schema_cached()["$defs"].get(kind, {}).get("properties", {}).get(name, {})
+def _item_check_for(kinds: tuple[str, ...], kind: str, name: str) -> _Check | None:
+    sub = _schema_for(kinds)["$defs"].get(kind, {}).get("properties", {}).get(name, {})
     if not isinstance(sub, dict) or sub.get("type") != "array" or not isinstance(sub.get("items"), dict):
         return None
     if not all(isinstance(n, int) and n <= 2 for k, n in sub.items() if k == "minItems"):
         return None
-    return _compile(sub["items"], _table())
+    return _compile(sub["items"], _table_for(kinds))
 
 
 #: A list parameter longer than this is shortened before jsonschema reads it (see ``_compact``).
