@@ -298,10 +298,15 @@ class ParamControl:
                 v = math.log10(value) if value > 0 else None
                 if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
                     a, b = self._rate_range(value)
-                    if a > self.slider.max:
-                        self.slider.max, self.slider.min = b, a
-                    else:
-                        self.slider.min, self.slider.max = a, b
+                    # one message with the range and the value: a browser given the new range before the new
+                    # value clamped the old value to an end and sent that back as a move (0.1 -> 3e-4 gave 0.0095)
+                    with self.slider.hold_sync():
+                        if a > self.slider.max:
+                            self.slider.max, self.slider.min = b, a
+                        else:
+                            self.slider.min, self.slider.max = a, b
+                        self.slider.value = value
+                    self._shown = value
             if k == "ticklist":
                 put(self.text, ", ".join(str(t) for t in value))
             elif k == "points":

@@ -149,6 +149,10 @@ class ReplayPanel(Panel, W.VBox):
                          for name, p in PlateauRule.params().items()}
         goal = self.controls["goal"].text
         goal.options = [(GOAL_WORDS.get(k, k), k) for k in goal.options]
+        goal.layout.width = "20em"
+        for c in self.controls.values():  # the words are longer than names: keep a usable slider track
+            if c.slider is not None:
+                c.slider.layout.width = "26em"
         self.follow = W.Checkbox(value=False, indent=False, description="follow the design (its warmup, then "
                                  "the rule multiplies it)", tooltip="use the designer's schedule as the base",
                                  layout={"width": "26em"})
@@ -204,7 +208,7 @@ class ReplayPanel(Panel, W.VBox):
                      W.HBox([self.start, self.follow])]
         super().__init__([W.HBox([self.demo, self.upload]), W.HBox([self.path, self.column]), self.message,
                           self.status,
-                          W.HBox([W.VBox(rule_rows, layout={"flex": "0 0 auto", "width": "36em"}),
+                          W.HBox([W.VBox(rule_rows, layout={"flex": "0 0 auto", "width": "41em"}),
                                   W.VBox([self.y_title, self.figure_box, self.rate_axis, self.note, self.caution],
                                          layout={"flex": "1 1 auto", "min_width": "20em"})]),
                           self.table, self.whatif])
