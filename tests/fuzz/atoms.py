@@ -21,8 +21,7 @@ _SOURCES: dict[int, tuple[Any, str]] = {}
 
 #: Imports every repro assumes.
 PRELUDE = ("import functools, math, json, numpy as np\nfrom fractions import Fraction\nfrom decimal import Decimal\n"
-           "from pathlib import Path\nimport schedwidget as sw\nfrom schedwidget import *\n"
-           "from schedwidget.export import RateFactor\n")
+           "from pathlib import Path\nimport schedwidget as sw\nfrom schedwidget import *\n")
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,7 @@ public function joins with a generic baseline.
 from __future__ import annotations
 
 import inspect
+import json
 import os
 import random
 from pathlib import Path
@@ -209,9 +210,9 @@ def _corrupt_design(rng: random.Random, state: dict, other: Schedule) -> tuple[A
         return [state["design"]], "[state['design']]"
     if choice == 2:
         return None, "None"
-    if choice == 3:
-        text = sw.export._design_text(other)
-        return text, f"sw.export._design_text({design_src(other)})"
+    if choice == 3:  # another valid design, in the canonical form a factor saves
+        text = json.dumps(sw.to_spec(other), sort_keys=True, separators=(",", ":"))
+        return text, f"json.dumps(to_spec({design_src(other)}), sort_keys=True, separators=(',', ':'))"
     if choice == 4:
         return state["design"][: len(state["design"]) // 2], "state['design'][:len(state['design']) // 2]"
     if choice == 5:
@@ -241,7 +242,7 @@ def factor_states(rng: random.Random, n: int) -> list[Case]:
             continue
         state = dict((probe[0] if isinstance(probe, list) else probe).__dict__)
         if not isinstance(state.get("design"), str):
-            state["design"] = sw.export._design_text(s)
+            state["design"] = json.dumps(sw.to_spec(s), sort_keys=True, separators=(",", ":"))
         corrupt: dict[str, Any] = {}
         lines = []
         fields = [k for k in state] + ["extra"]
