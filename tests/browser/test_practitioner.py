@@ -188,13 +188,23 @@ class TestPlotNeverMisleads:
         """Moving the pointer over the plot (no click) reads the step, epoch and rate there, and again elsewhere."""
         context, page, watch = open_designer(browser, server, 1440)
         try:
-            fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
+            figure_el = page.locator(f"{DESIGNER} .sw-curve").first
+            figure_el.scroll_into_view_if_needed()
             hover = page.locator(f"{DESIGNER} .sw-hover").first
             readings = []
             for share in (0.3, 0.7):
-                page.mouse.move(fig["x"] + fig["width"] * share, fig["y"] + fig["height"] * 0.5)
-                page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
-                                       arg=[f"{DESIGNER} .sw-hover", readings[-1] if readings else hover.inner_text()])
+                old = readings[-1] if readings else hover.inner_text()
+                fig = figure_el.bounding_box()
+                for nudge in range(5):  # pointer moves only (no click); a few pixels apart until one is heard
+                    page.mouse.move(fig["x"] + fig["width"] * share + 3 * nudge, fig["y"] + fig["height"] * 0.5,
+                                    steps=4)
+                    try:
+                        page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
+                                               arg=[f"{DESIGNER} .sw-hover", old], timeout=10_000)
+                        break
+                    except Exception:
+                        if nudge == 4:
+                            raise
                 readings.append(hover.inner_text())
             assert readings[0] != readings[1]
             for r in readings:
