@@ -1,4 +1,4 @@
-"""The Schedule base class, the evaluation protocol, parameter declarations and ScheduleError.
+"""The Schedule base class: the evaluation protocol, the node protocol with its defaults, and the registry of kinds.
 
 A schedule maps an integer clock ``t = 0, 1, 2, ...`` to a learning rate ``>= 0``.
 Internally every node is a formula of a *real-valued* clock (``_at``); integer
@@ -8,170 +8,25 @@ its formula reaches at ``t = length``.
 
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass, field, fields
-from numbers import Integral, Real
+from dataclasses import fields
+from numbers import Real
 from typing import Any, Iterator
 
 import numpy as np
+
+# parameter declarations and the message helper live in params.py; importable from here as before
+from .params import (  # noqa: F401
+    MAX_TICKS, PARAM_KINDS, Param, ParamKind, ScheduleError, _num, _shown, as_whole, check_ticklist, complain, param)
 
 __all__ = ["Schedule", "ScheduleError", "Param", "param", "KINDS", "window"]
 
 #: How many possible discontinuities a node reports before it counts as dense.
 EDGE_CAP = 4096
-#: Largest tick or length: every whole number up to 2**53 is exact as a float64 clock.
-MAX_TICKS = 2 ** 53
 #: An open-ended schedule with nothing to measure its structure by is drawn over this many ticks.
 OPEN_WINDOW = 1000
 #: Highest rate a design may reach anywhere (checked at construction on a bound of every node): far above any
 #: learning rate, and low enough that no formula, sum, product or area over 2**53 ticks can overflow a float.
 MAX_RATE = 1e100
-
-
-class ScheduleError(ValueError):
-    """Every bad input: names the parameter, the value given and what is allowed."""
-
-
-def _shown(value: Any) -> str:
-    """``repr(value)`` for a message: huge integers by their size, very long texts cut."""
-    if isinstance(value, Integral) and not isinstance(value, bool) and abs(int(value)) >= 10 ** 60:
-        return f"an integer of about {int(abs(int(value)).bit_length() * 0.30103) + 1} digits"
-    try:
-        text = repr(value)
-    except Exception:  # noqa: BLE001 - a message must never fail on an odd value
-        return f"a {type(value).__name__}"
-    return text if len(text) <= 300 else text[:297] + "..."
-
-
-def complain(owner: str, name: str, value: Any, allowed: str, hint: str | None = None) -> ScheduleError:
-    """Build the one message format used for every bad parameter."""
-    msg = f"{owner}: {name} must be {allowed}, got {_shown(value)}"
-    if hint:
-        msg += f" ({hint})"
-    return ScheduleError(msg)
-
-
-@dataclass(frozen=True, slots=True)
-class Param:
-    """One parameter's declaration: validation, widget controls, schema and docs read it.
-
-    kind is one of ``rate`` (absolute learning rate), ``ratio`` (a plain number),
-    ``ticks`` (a whole number of clock ticks), ``count`` (a whole number),
-    ``choice``, ``ticklist``, ``points``, ``schedule`` or ``schedules``.
-    """
-
-    kind: str
-    doc: str
-    lo: float | None = None
-    hi: float | None = None
-    lo_open: bool = False
-    hi_open: bool = False
-    soft: tuple[float, float] | None = None
-    log: bool = False
-    choices: tuple[str, ...] = ()
-    optional: bool = False
-    hint: str | None = None
-
-    def allowed(self) -> str:
-        """Words for the allowed range, used in every message about this parameter."""
-        if self.kind == "choice":
-            return "one of " + ", ".join(repr(c) for c in self.choices)
-        if self.kind in ("ticks", "count"):
-            words = f"a whole number >= {int(self.lo if self.lo is not None else 0)}"
-            if self.hi is not None:
-                words += f" and <= {int(self.hi)}"
-            return words + (" or None" if self.optional else "")
-        if self.kind in ("rate", "ratio"):
-            noun = "a finite rate" if self.kind == "rate" else "a finite number"
-            if self.lo is not None and self.hi is not None:
-                left = "(" if self.lo_open else "["
-                right = ")" if self.hi_open else "]"
-                return f"{noun} in {left}{_num(self.lo)}, {_num(self.hi)}{right}"
-            if self.lo is not None:
-                return f"{noun} {'>' if self.lo_open else '>='} {_num(self.lo)}"
-            return noun
-        return self.kind
-
-    def check(self, owner: str, name: str, value: Any) -> Any:
-        """Return the normalised value or raise ScheduleError naming ``owner.name``."""
-        if value is None and self.optional:
-            return None
-        if self.kind == "choice":
-            if not isinstance(value, str) or value not in self.choices:
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            return value
-        if self.kind in ("ticks", "count"):
-            out = as_whole(value)
-            if out is None or (self.lo is not None and out < self.lo) or (self.hi is not None and out > self.hi):
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            if out > MAX_TICKS:
-                raise complain(owner, name, value, "a whole number <= 2**53",
-                               "above that, ticks are no longer exact on a float64 clock")
-            return out
-        if self.kind == "flag":
-            if not isinstance(value, (bool, np.bool_)):
-                raise complain(owner, name, value, "True or False", self.hint)
-            return bool(value)
-        if self.kind == "ticklist":
-            return check_ticklist(owner, name, value, int(self.lo or 0))
-        if self.kind in ("rate", "ratio"):
-            if isinstance(value, bool) or not isinstance(value, Real):
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            try:
-                v = float(value)
-            except OverflowError:  # an int too large for a float
-                v = math.inf
-            if not math.isfinite(v):
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            if self.lo is not None and (v < self.lo or (self.lo_open and v == self.lo)):
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            if self.hi is not None and (v > self.hi or (self.hi_open and v == self.hi)):
-                raise complain(owner, name, value, self.allowed(), self.hint)
-            return v
-        return value
-
-
-def param(default: Any = dataclass, **declaration: Any) -> Any:
-    """A dataclass field that carries its Param declaration in ``metadata['param']``."""
-    meta = {"param": Param(**declaration)}
-    if default is dataclass:
-        return field(metadata=meta)
-    return field(default=default, metadata=meta)
-
-
-def as_whole(value: Any) -> int | None:
-    """``value`` as a Python int if it is a whole number (int, numpy int, integral float), else None."""
-    if isinstance(value, bool):
-        return None
-    if isinstance(value, Integral):
-        return int(value)
-    if isinstance(value, Real) and math.isfinite(value) and float(value).is_integer():
-        return int(value)
-    return None
-
-
-def check_ticklist(owner: str, name: str, value: Any, lo: int) -> tuple[int, ...]:
-    """A strictly increasing tuple of whole ticks, each >= lo."""
-    try:
-        items = iter(value) if not isinstance(value, (str, bytes)) else None
-    except TypeError:  # not iterable, or a 0-d array
-        items = None
-    if items is None:
-        raise complain(owner, name, value, f"a list of whole ticks >= {lo}, strictly increasing")
-    out: list[int] = []
-    for i, v in enumerate(items):
-        w = as_whole(v)
-        if w is None or w < lo or w > MAX_TICKS:
-            raise complain(owner, f"{name}[{i}]", v, f"a whole number >= {lo} and <= 2**53")
-        if out and w <= out[-1]:
-            raise complain(owner, f"{name}[{i}]", v, f"a tick > {name}[{i - 1}] = {out[-1]}",
-                           "ticks must increase strictly: sort them and remove duplicates")
-        out.append(w)
-    return tuple(out)
-
-
-def _num(x: float) -> str:
-    return str(int(x)) if float(x).is_integer() and abs(x) < 1e15 else repr(float(x))
 
 
 def literal(v: Any) -> str:

@@ -9,7 +9,7 @@ import json
 from typing import TYPE_CHECKING, Any
 
 from . import combine as _combine, shapes as _shapes  # noqa: F401 - defining the kinds registers them
-from .schedule import KINDS, MAX_TICKS
+from .schedule import KINDS
 
 if TYPE_CHECKING:  # jsonschema costs ~0.8 s to import (its format checkers); it is loaded only to validate
     import jsonschema
@@ -21,39 +21,6 @@ UNITS = ("step", "epoch")
 
 
 # ------------------------------------------------------------------- schema
-def _param_schema(p) -> dict[str, Any]:
-    if p.kind in ("rate", "ratio"):
-        out: dict[str, Any] = {"type": "number"}
-        if p.lo is not None:
-            out["exclusiveMinimum" if p.lo_open else "minimum"] = p.lo
-        if p.hi is not None:
-            out["exclusiveMaximum" if p.hi_open else "maximum"] = p.hi
-    elif p.kind in ("ticks", "count"):
-        out = {"type": "integer", "minimum": int(p.lo or 0), "maximum": int(p.hi) if p.hi is not None else MAX_TICKS}
-    elif p.kind == "flag":
-        out = {"type": "boolean"}
-    elif p.kind == "choice":
-        out = {"enum": list(p.choices)}
-    elif p.kind == "ticklist":
-        out = {"type": "array", "items": {"type": "integer", "minimum": int(p.lo or 0), "maximum": MAX_TICKS},
-               "minItems": 1}
-    elif p.kind == "points":
-        pair = {"type": "array", "prefixItems": [{"type": "integer", "minimum": 0, "maximum": MAX_TICKS},
-                                                 {"type": "number", "minimum": 0}],
-                "items": False, "minItems": 2}
-        out = {"type": "array", "items": pair, "minItems": 2}
-    elif p.kind == "schedule":
-        out = {"$ref": "#/$defs/node"}
-    elif p.kind == "schedules":
-        out = {"type": "array", "items": {"$ref": "#/$defs/node"}, "minItems": 2}
-    else:  # pragma: no cover - a new kind must be taught here
-        raise AssertionError(p.kind)
-    if p.optional:
-        out = {"anyOf": [out, {"type": "null"}]}
-    out["description"] = p.doc
-    return out
-
-
 def json_schema() -> dict[str, Any]:
     """The JSON Schema (draft 2020-12) of spec files, generated from the parameter declarations."""
     defs: dict[str, Any] = {}
@@ -63,7 +30,7 @@ def json_schema() -> dict[str, Any]:
         for f in dataclasses.fields(cls):
             if "param" not in f.metadata:
                 continue
-            props[f.name] = _param_schema(f.metadata["param"])
+            props[f.name] = f.metadata["param"].schema()  # each parameter kind writes its own schema
             if f.default is dataclasses.MISSING:
                 required.append(f.name)
             else:

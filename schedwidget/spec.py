@@ -55,16 +55,7 @@ class Design:
 def _node(s: Schedule) -> dict[str, Any]:
     out: dict[str, Any] = {"kind": s.kind}
     for name, p in type(s).params().items():
-        v = getattr(s, name)
-        if p.kind == "schedule":
-            v = _node(v)
-        elif p.kind == "schedules":
-            v = [_node(c) for c in v]
-        elif p.kind == "points":
-            v = [[t, y] for t, y in v]
-        elif p.kind == "ticklist":
-            v = list(v)
-        out[name] = v
+        out[name] = p.encode(getattr(s, name), _node)  # each parameter kind writes its own values
     return out
 
 
@@ -118,16 +109,7 @@ def _build(node: dict[str, Any], where: str) -> Schedule:
     for name, p in cls.params().items():
         if name not in node:
             continue
-        v = node[name]
-        if p.kind == "schedule":
-            v = _build(v, f"{where}.{name}")
-        elif p.kind == "schedules":
-            v = tuple(_build(c, f"{where}.{name}[{i}]") for i, c in enumerate(v))
-        elif p.kind == "points":
-            v = tuple((t, y) for t, y in v)
-        elif p.kind == "ticklist":
-            v = tuple(v)
-        kwargs[name] = v
+        kwargs[name] = p.decode(node[name], _build, f"{where}.{name}")  # each parameter kind reads its own
     try:
         return cls(**kwargs)
     except ScheduleError as exc:

@@ -50,9 +50,9 @@ def _problems(d: dict[str, Any], plain: bool = False) -> list[tuple[list, str, s
             _report(found, kind, node, path, plain)
         for name, p in KINDS[kind].params().items():
             child = node.get(name)
-            if p.kind == "schedule":
+            if p.kind_of.nests == "one":
                 todo.append((child, path + [name]))
-            elif p.kind == "schedules" and isinstance(child, list):
+            elif p.kind_of.nests == "list" and isinstance(child, list):
                 todo.extend((c, path + [name, i]) for i, c in enumerate(child))
     return found
 
@@ -70,9 +70,9 @@ def _own_fields(kind: str, node: dict[str, Any]) -> dict[str, Any]:
     out = dict(node)
     for name, p in KINDS[kind].params().items():
         child = node.get(name)
-        if p.kind == "schedule" and _known(child):
+        if p.kind_of.nests == "one" and _known(child):
             out[name] = _STUB
-        elif p.kind == "schedules" and type(child) is list:
+        elif p.kind_of.nests == "list" and type(child) is list:
             out[name] = [_STUB if _known(c) else c for c in child]
     return out
 

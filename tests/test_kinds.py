@@ -134,3 +134,39 @@ def test_import_has_no_node_dispatch_left_in_readout_modules():
             "print(sorted(n for m in (f, s, p) for n, v in vars(m).items() if v in KINDS.values()))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "[]"
+
+
+class TestParamKinds:
+    """Parameter kinds are small classes: check, schema, encode, decode and the designer's control hint."""
+
+    def test_every_declared_parameter_has_a_kind_object_and_a_control(self):
+        from schedwidget.params import PARAM_KINDS
+
+        controls = {"log_slider", "slider", "int_slider", "dropdown", "checkbox", "ticklist", "points", "schedule",
+                    "schedules"}
+        for cls in KINDS.values():
+            for p in cls.params().values():
+                assert p.kind_of is PARAM_KINDS[p.kind] and p.control in controls
+
+    def test_controls_follow_the_declaration(self):
+        from schedwidget.shapes import Cosine, ExpDecay
+
+        cos, exp = Cosine.params(), ExpDecay.params()
+        assert cos["peak"].control == "log_slider" and cos["steps"].control == "int_slider"
+        assert exp["factor"].control == "slider" and exp["staircase"].control == "checkbox"
+        assert sw.restarts(sw.flat(0.1, steps=1)).params()["target"].control == "schedule"
+
+    def test_an_unknown_kind_is_refused_at_declaration(self):
+        from schedwidget.params import Param
+
+        with pytest.raises(TypeError, match="Param: kind must be one of rate, ratio, ticks"):
+            Param(kind="percent", doc="x")
+
+    def test_encode_and_decode_are_inverse(self):
+        from schedwidget.pieces import Knots
+        from schedwidget.shapes import Drops
+
+        p, q = Knots.params()["points"], Drops.params()["at"]
+        pts = ((0, 0.1), (10, 0.01))
+        assert p.encode(pts, None) == [[0, 0.1], [10, 0.01]] and p.decode([[0, 0.1], [10, 0.01]], None, "") == pts
+        assert q.encode((3, 5), None) == [3, 5] and q.decode([3, 5], None, "") == (3, 5)
