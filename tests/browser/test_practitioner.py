@@ -295,7 +295,9 @@ class TestPractitionerTask:
             act(lambda: d.locator("button.sw-write-code").first.click())
             d.locator(".sw-file-message", has_text="code written to").first.wait_for()
             code = d.locator(".sw-export-code textarea").first.input_value()
-            assert "LambdaLR" in code and "BASE_LR = 0.0003 " in code
+            base = [line for line in code.splitlines() if line.startswith("BASE_LR =")]
+            sentence = d.locator(".sw-sentence").first.inner_text()
+            assert "LambdaLR" in code and base and base[0].startswith("BASE_LR = 0.0003 "), (base, sentence)
             shot(page, "practitioner-task-done", d)
             print(f"practitioner task: {count} interactions (clicks and typed entries)")
             assert count <= MAX_INTERACTIONS
