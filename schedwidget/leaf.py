@@ -8,9 +8,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from .formula import Formula
 from .schedule import Schedule, check_top, complain, monotone_range, param
 
-__all__ = ["node", "Leaf", "RATE_SOFT", "TICK_SOFT"]
+__all__ = ["node", "Leaf", "ClosedForm", "RATE_SOFT", "TICK_SOFT"]
 
 node = dataclass(frozen=True, slots=True, repr=False, kw_only=True)
 
@@ -56,6 +57,30 @@ def _floor_not_above_peak(s) -> None:
     if s.floor > s.peak:
         raise complain(s.kind, "floor", s.floor, f"<= peak = {s.peak!r}",
                        "a decay cannot end above its peak; for a rising curve use ramp(..., curve='cosine')")
+
+
+class ClosedForm(_Leaf):
+    """A leaf whose formula is one closed form (``formula.Formula``): numpy evaluation and generated source
+    both come from ``_formula()``, so they apply the same operations in the same order."""
+
+    __slots__ = ("_tree",)  # the formula, built on first use and kept (not a field: equality never sees it)
+
+    def _formula(self) -> Formula:
+        raise NotImplementedError
+
+    def _tree_of(self) -> Formula:
+        try:
+            return self._tree
+        except AttributeError:
+            tree = self._formula()
+            object.__setattr__(self, "_tree", tree)
+            return tree
+
+    def _at(self, u):
+        return self._tree_of().evaluate(u)
+
+    def _source(self, w, u, bound, ind, sink):
+        w.put(ind, sink(self._tree_of().source(u)))
 
 
 #: The public name of the leaf base class: a new leaf kind subclasses it (see DEVELOPERS.md, "How a node works").

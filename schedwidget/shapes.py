@@ -14,14 +14,15 @@ from typing import ClassVar, Sequence
 import numpy as np
 
 from .codegen import CHAIN_MAX, num, plus
-from .leaf import RATE_SOFT, TICK_SOFT, _Leaf, _floor_not_above_peak, _rate, _steps, node  # noqa: F401
+from .formula import clock, const, cos, exp, floor
+from .leaf import RATE_SOFT, TICK_SOFT, ClosedForm, _Leaf, _floor_not_above_peak, _rate, _steps, node  # noqa: F401
 from .schedule import EDGE_CAP, Schedule, complain, monotone_range, param
 
 __all__ = ["flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots"]
 
 
 @node
-class Flat(_Leaf):
+class Flat(ClosedForm):
     """A constant rate."""
 
     kind: ClassVar[str] = "flat"
@@ -31,15 +32,12 @@ class Flat(_Leaf):
     def __post_init__(self) -> None:
         self._validate()
 
-    def _source(self, w, u, bound, ind, sink):
-        w.put(ind, sink(num(self.lr)))
-
-    def _at(self, u):
-        return np.full(np.shape(u), self.lr)
+    def _formula(self):
+        return const(self.lr)
 
 
 @node
-class Ramp(_Leaf):
+class Ramp(ClosedForm):
     """From ``start`` to ``end`` over ``steps`` ticks; ``end`` is reached at tick ``steps``."""
 
     kind: ClassVar[str] = "ramp"
@@ -57,30 +55,20 @@ class Ramp(_Leaf):
                     raise complain("ramp", name, getattr(self, name), "a rate > 0 with curve='geometric'",
                                    "a geometric ramp multiplies by a constant ratio, which cannot start or end at 0")
 
-    def _source(self, w, u, bound, ind, sink):
-        x = f"({u} / {num(self.steps)})"
-        if self.curve == "linear":
-            w.put(ind, sink(plus(self.start, self.end - self.start, x)))
-        elif self.curve == "geometric":
-            a, b = math.log(self.start), math.log(self.end) - math.log(self.start)
-            w.put(ind, sink(f"math.exp({plus(a, b, x)})"))
-        else:
-            w.put(ind, sink(plus(self.end, self.start - self.end, f"(1.0 + math.cos(math.pi * {x})) / 2.0")))
-
-    def _at(self, u):
-        x = u / self.steps
+    def _formula(self):
+        x = clock() / self.steps
         if self.curve == "linear":
             return self.start + (self.end - self.start) * x
         if self.curve == "geometric":
-            return np.exp(math.log(self.start) + (math.log(self.end) - math.log(self.start)) * x)
-        return self.end + (self.start - self.end) * (1.0 + np.cos(np.pi * x)) / 2.0
+            return exp(math.log(self.start) + (math.log(self.end) - math.log(self.start)) * x)
+        return self.end + (self.start - self.end) * (1.0 + cos(math.pi * x)) / 2.0
 
     def _rise(self) -> int:
         return int(self.steps) if self.end > self.start else 0
 
 
 @node
-class Cosine(_Leaf):
+class Cosine(ClosedForm):
     """Cosine annealing from ``peak`` to ``floor`` over ``steps`` ticks (Loshchilov & Hutter 2017, eq. 5)."""
 
     kind: ClassVar[str] = "cosine"
@@ -92,21 +80,12 @@ class Cosine(_Leaf):
         self._validate()
         _floor_not_above_peak(self)
 
-    def _source(self, w, u, bound, ind, sink):  # the core's order: floor + (peak - floor) / 2 * (1 + cos(u * pi / L))
-        rest = f"(1.0 + math.cos({u} * {num(math.pi / self.steps)}))"
-        w.put(ind, sink(plus(self.floor, (self.peak - self.floor) / 2.0, rest)))
-
-    def _at(self, u):
-        y = np.multiply(u, np.pi / self.steps, out=np.empty(np.shape(u)))
-        np.cos(y, out=y)
-        y += 1.0
-        y *= (self.peak - self.floor) / 2.0
-        y += self.floor
-        return y
+    def _formula(self):  # floor + (peak - floor) / 2 * (1 + cos(u * pi / L))
+        return self.floor + (self.peak - self.floor) / 2.0 * (1.0 + cos(clock() * (math.pi / self.steps)))
 
 
 @node
-class ExpDecay(_Leaf):
+class ExpDecay(ClosedForm):
     """``peak * factor ** k`` with ``k`` the number of whole ``every``-tick periods (or its real value)."""
 
     kind: ClassVar[str] = "exp_decay"
@@ -121,16 +100,9 @@ class ExpDecay(_Leaf):
     def __post_init__(self) -> None:
         self._validate()
 
-    def _source(self, w, u, bound, ind, sink):
-        k = u if self.every == 1 else f"{u} / {num(self.every)}"
-        k = f"math.floor({k})" if self.staircase else (k if self.every == 1 else f"({k})")
-        w.put(ind, sink(f"{num(self.peak)} * {num(self.factor)} ** {k}"))
-
-    def _at(self, u):
-        k = u / self.every
-        if self.staircase:
-            k = np.floor(k)
-        return self.peak * np.power(self.factor, k)
+    def _formula(self):
+        k = clock() / self.every
+        return self.peak * self.factor ** (floor(k) if self.staircase else k)
 
     def _edges(self, hi):
         if not self.staircase or self.factor == 1.0:
@@ -195,7 +167,7 @@ class Drops(_Leaf):
 
 
 @node
-class Poly(_Leaf):
+class Poly(ClosedForm):
     """Polynomial decay ``floor + (peak - floor) * (1 - u / steps) ** power``."""
 
     kind: ClassVar[str] = "poly"
@@ -209,12 +181,8 @@ class Poly(_Leaf):
         self._validate()
         _floor_not_above_peak(self)
 
-    def _source(self, w, u, bound, ind, sink):
-        base = f"(1.0 - {u} / {num(self.steps)})"
-        w.put(ind, sink(plus(self.floor, self.peak - self.floor, base if self.power == 1.0 else f"{base} ** {num(self.power)}")))
-
-    def _at(self, u):
-        return self.floor + (self.peak - self.floor) * np.power(1.0 - u / self.steps, self.power)
+    def _formula(self):
+        return self.floor + (self.peak - self.floor) * (1.0 - clock() / self.steps) ** self.power
 
 
 @node

@@ -170,3 +170,37 @@ class TestParamKinds:
         pts = ((0, 0.1), (10, 0.01))
         assert p.encode(pts, None) == [[0, 0.1], [10, 0.01]] and p.decode([[0, 0.1], [10, 0.01]], None, "") == pts
         assert q.encode((3, 5), None) == [3, 5] and q.decode([3, 5], None, "") == (3, 5)
+
+
+class TestOneFormulaTwoOutputs:
+    """Closed-form leaves describe their formula once; numpy evaluation and generated source come from it."""
+
+    def closed(self):
+        from schedwidget.leaf import ClosedForm
+
+        return [c for c in KINDS.values() if issubclass(c, ClosedForm)]
+
+    def test_the_closed_forms_write_neither_output_by_hand(self):
+        assert sorted(c.kind for c in self.closed()) == ["cosine", "exp_decay", "flat", "poly", "ramp"]
+        for c in self.closed():
+            assert "_at" not in c.__dict__ and "_source" not in c.__dict__ and "_formula" in c.__dict__
+
+    def test_source_of_the_tree_equals_its_evaluation(self):
+        import math
+
+        designs = [sw.flat(0.1), sw.ramp(0.0, 0.1, 7), sw.ramp(0.01, 0.1, 7, curve="geometric"),
+                   sw.ramp(0.1, 0.0, 7, curve="cosine"), sw.cosine(0.1, 0.001, steps=9),
+                   sw.exp_decay(0.1, 0.9, every=3), sw.exp_decay(0.1, 0.9, staircase=False),
+                   sw.poly(0.1, 0.0, steps=9, power=0.5), sw.poly(0.1, 0.01, steps=9)]
+        u = np.linspace(0.0, 9.0, 37)
+        for s in designs:
+            expr = s._tree_of().source("u")
+            by_source = [eval(expr, {"math": math, "u": float(x)}) for x in u]
+            # equal up to one ulp of a library cos/exp/pow (math's and numpy's may differ there), as codegen promises
+            assert np.allclose(by_source, s._at(u), rtol=5e-16, atol=0.0), repr(s)
+
+    def test_the_caller_clock_is_never_overwritten(self):
+        u = np.arange(10.0)
+        for s in (sw.cosine(0.1, steps=9), sw.poly(0.1, steps=9), sw.exp_decay(0.1, 0.5, staircase=False)):
+            s._at(u)
+            assert u.tolist() == list(range(10))
