@@ -86,7 +86,7 @@ class Budget:
 
     def length(self, unit: str = "step") -> int:
         """The budget in ticks of ``unit``: updates for "step", epochs for "epoch"."""
-        if unit not in ("step", "epoch"):
+        if not isinstance(unit, str) or unit not in ("step", "epoch"):
             raise complain("Budget.length", "unit", unit, "one of 'step', 'epoch'")
         return self.steps if unit == "step" else self.epochs
 
@@ -118,7 +118,7 @@ class Budget:
 
     def describe(self, unit: str = "step") -> str:
         """The budget in words, e.g. ``90 epochs x 1,150 steps = 103,500 steps``."""
-        if unit not in ("step", "epoch"):
+        if not isinstance(unit, str) or unit not in ("step", "epoch"):
             raise complain("Budget.describe", "unit", unit, "one of 'step', 'epoch'")
         if unit == "epoch":
             return f"{self.epochs:,} epochs"
@@ -140,7 +140,7 @@ def check_length(s: Schedule, steps: int | Budget, unit: str = "step", owner: st
     """
     if not isinstance(s, Schedule):
         raise complain(owner, "s", s, "a Schedule")
-    if unit not in ("step", "epoch"):
+    if not isinstance(unit, str) or unit not in ("step", "epoch"):
         raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
     if isinstance(steps, Budget):
         n, where = steps.length(unit), f" ({steps.describe(unit)})"
@@ -266,9 +266,9 @@ def scale_for_batch(s: Schedule, from_batch: int, to_batch: int, rule: str = "li
         raise complain(owner, "s", s, "a Schedule")
     a = _positive_whole(owner, "from_batch", from_batch)
     b = _positive_whole(owner, "to_batch", to_batch)
-    if rule not in ("linear", "sqrt"):
+    if not isinstance(rule, str) or rule not in ("linear", "sqrt"):
         raise complain(owner, "rule", rule, "one of 'linear', 'sqrt'")
-    if keep not in ("samples", "steps"):
+    if not isinstance(keep, str) or keep not in ("samples", "steps"):
         raise complain(owner, "keep", keep, "one of 'samples', 'steps'",
                        "'samples' keeps joins at the same samples seen; 'steps' keeps them at the same tick")
     factor = b / a if rule == "linear" else math.sqrt(b / a)
@@ -347,7 +347,7 @@ def parse_length(text: Any, unit: str = "step", steps_per_epoch: int | None = No
         text = repr(text)
     if not isinstance(text, str) or len(text) > _TEXT_LIMIT:
         raise complain(owner, name, text if not isinstance(text, str) else text[:_TEXT_LIMIT] + "...", LENGTH_FORMS)
-    if unit not in ("step", "epoch"):
+    if not isinstance(unit, str) or unit not in ("step", "epoch"):
         raise complain(owner, "unit", unit, "one of 'step', 'epoch'")
     digits, word = _split(text)
     v = _number(digits)

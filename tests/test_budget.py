@@ -232,3 +232,14 @@ class TestTypedLengthsAndRates:
         assert length_words(3450, "step", 1150, 103_500) == "= 3 epochs · 3.3 % of the run"
         assert length_words(3, "epoch", 1150, 90) == "= 3,450 steps · 3.3 % of the run"
         assert length_words(7, "step") == ""
+
+
+def test_unit_rule_and_keep_that_are_not_strings_are_refused():
+    """A numpy array as unit, rule or keep is a ScheduleError naming it (its truth value raised ValueError)."""
+    bad = np.array([0.1, 0.2])
+    with pytest.raises(ScheduleError, match="unit must be one of 'step', 'epoch'"):
+        check_length(flat(0.1, steps=4), 4, unit=bad)
+    with pytest.raises(ScheduleError, match="rule must be one of 'linear', 'sqrt'"):
+        scale_for_batch(flat(0.1), 147_200, 96, rule=bad)
+    with pytest.raises(ScheduleError, match="keep must be one of 'samples', 'steps'"):
+        scale_for_batch(flat(0.1, steps=10), 128, 256, keep=bad)
