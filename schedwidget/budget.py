@@ -214,21 +214,22 @@ def _rescale_open(s: Schedule, a: int, b: int) -> Schedule | None:
     stages are moved to the same samples seen (the stages together, by one rounding, as ``stretch`` does);
     any other open-ended shape (a decay, restarts without an end) changes along an unbounded clock.
     """
-    from .combine import Clip, Scaled, Stages, Warmup
+    from .combine import Clip, Scaled, Stages
 
     if _constant_open(s):
         return s
     if isinstance(s, (Scaled, Clip)):
         inner = _rescale_open(s.target, a, b)
         return None if inner is None else replace(s, target=inner)
-    if isinstance(s, Warmup):
-        inner = _rescale_open(s.target, a, b)
+    if s._warmed() is not None:
+        inner = _rescale_open(s._warmed(), a, b)
         return None if inner is None else replace(s, target=inner, steps=max(1, round(s.steps * a / b)))
-    if isinstance(s, Stages):
-        last = _rescale_open(s.parts[-1], a, b)
+    parts = s._stage_parts()
+    if len(parts) > 1:
+        last = _rescale_open(parts[-1], a, b)
         if last is None:
             return None
-        head = s.parts[0] if len(s.parts) == 2 else Stages(parts=s.parts[:-1])
+        head = parts[0] if len(parts) == 2 else Stages(parts=parts[:-1])
         return Stages(parts=(head.stretch(max(1, round(head.length * a / b))), last))
     return None
 

@@ -55,6 +55,9 @@ class Restarts(Schedule):
     def children(self):
         return (self.target,)
 
+    def _repeated(self) -> Schedule:
+        return self.target
+
     def _top(self) -> float:
         return self.target._top()  # peak_decay <= 1: no cycle rises above the first
 

@@ -150,6 +150,15 @@ class Schedule:
         """The shape this node stretches (itself unless it is a stretch)."""
         return self
 
+    def _repeated(self) -> Schedule | None:
+        """The one cycle this node repeats when it is a repeat (restarts), else None."""
+        return None
+
+    def _warmed(self) -> Schedule | None:
+        """The schedule this node leads into when it is a warmup (its ``steps``, ``start`` and ``curve`` are the
+        warmup's own), else None."""
+        return None
+
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
         """The rate at integer tick(s) ``t``: a float for a scalar, a float64 array for an array."""

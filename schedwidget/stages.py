@@ -273,6 +273,9 @@ class Warmup(Schedule):
     def _lead_in(self) -> int:
         return int(self.steps)
 
+    def _warmed(self) -> Schedule:
+        return self.target
+
     def _source(self, w, u, bound, ind, sink):
         w.emit(self.as_stages(), u, bound, ind, sink)
 

@@ -17,9 +17,10 @@ from schedwidget.schedule import KINDS, Schedule
 
 PACKAGE = Path(sw.__file__).parent
 NODE_MODULES = {"schedule.py", "leaf.py", "shapes.py", "pieces.py", "stages.py", "restarts.py", "combine.py"}
-#: budget.py belongs to the designer's side of the project (issue 13) and still unwraps scale/clip/warmup/stages
-#: itself; it is listed here so that this check guards every other module meanwhile.
-ELSEWHERE = {"budget.py"}
+#: budget.py asks warmups, stages and restarts through the protocol (``_warmed``, ``_stage_parts``); it still looks
+#: through scales and clips and for an open knots or flat node itself, until those classes (combine.py, shapes.py)
+#: answer its two questions (an open constant rate, an open knots end) through protocol methods of their own.
+ELSEWHERE = {"budget.py": {"Scaled", "Clip", "Knots", "Flat"}}
 
 
 class TestRegistry:
@@ -45,14 +46,18 @@ class TestRegistry:
     def test_no_dispatch_on_node_classes_outside_the_node_modules(self):
         # the issue's grep: isinstance() against a node class appears only where the node classes live
         names = [c.__name__ for c in KINDS.values()] + ["_Leaf", "_Pair"]
-        found = []
-        for path in sorted(PACKAGE.glob("*.py")):
-            if path.name in NODE_MODULES | ELSEWHERE:
+        found, seen = [], set()
+        for path in sorted(PACKAGE.rglob("*.py")):  # every module, the designer's (widget/) included
+            name = path.relative_to(PACKAGE).as_posix()
+            seen.add(name)
+            if name in NODE_MODULES:
                 continue
+            asked = [n for n in names if n not in ELSEWHERE.get(name, ())]
             for i, line in enumerate(path.read_text().splitlines(), 1):
-                if "isinstance(" in line and any(f"{n}," in line or f"{n})" in line for n in names):
-                    found.append(f"{path.name}:{i}: {line.strip()}")
+                if "isinstance(" in line and any(f"{n}," in line or f"{n})" in line for n in asked):
+                    found.append(f"{name}:{i}: {line.strip()}")
         assert found == []
+        assert {"budget.py", "widget/form.py", "widget/stages.py"} <= seen  # the walk reaches the designer's modules
 
 
 class TestSiblings:
@@ -120,6 +125,13 @@ class TestNodeReadouts:
         assert lead_in(sw.ramp(0.1, 0.0, 5) >> sw.flat(0.1)) == 0
         assert lead_in(sw.ramp(0.0, 0.1, 5) >> sw.flat(0.1)) == 5
         assert lead_in(sw.ramp(0.0, 0.1, 5)) == 0  # a bare ramp is a design, not a warmup stage
+
+    def test_repeat_and_warmup_answer_through_the_protocol(self):
+        c = sw.cosine(0.1, steps=10)
+        r, w = sw.restarts(c, cycles=2), sw.warmup(c, steps=3)
+        assert r._repeated() == c and w._warmed() == c
+        assert r._warmed() is None and w._repeated() is None and c._repeated() is None and c._warmed() is None
+        assert sw.restarts(w, cycles=2)._warmed() is None  # a warmup inside restarts is not the design's warmup
 
     def test_half_life_through_a_stretch_not_through_restarts(self):
         s = sw.exp_decay(0.1, 0.5, steps=10)

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 from numbers import Integral
 from typing import Any
 
-from ..combine import Restarts, Stages, Warmup, restarts, stages, warmup
+from ..combine import Warmup, restarts, stages, warmup
 from ..schedule import Param, Schedule, ScheduleError, complain
 from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle, cosine
 
@@ -82,19 +82,18 @@ class Form:
 
     def signature(self) -> tuple:
         """What the controls depend on: the kind of each stage and whether it repeats."""
-        rows = tuple((leaf_of(s).kind, isinstance(s, Restarts)) for s in self.stages)
+        rows = tuple((leaf_of(s).kind, s._repeated() is not None) for s in self.stages)
         return (self.warm is not None,) + rows
 
 
 def leaf_of(stage: Schedule) -> Schedule:
     """The leaf shape of a stage (itself, or the shape a ``restarts`` repeats)."""
-    return stage.target if isinstance(stage, Restarts) else stage
+    cycle = stage._repeated()
+    return stage if cycle is None else cycle
 
 
 def _is_stage(s: Schedule) -> bool:
-    if isinstance(s, Restarts):
-        return type(s.target) in LEAVES.values()
-    return type(s) in LEAVES.values()
+    return type(leaf_of(s)) in LEAVES.values()
 
 
 def read_form(s: Schedule) -> Form | None:
@@ -106,10 +105,10 @@ def read_form(s: Schedule) -> Form | None:
     (10, ['cosine'])
     """
     warm = None
-    if isinstance(s, Warmup):
+    if s._warmed() is not None:
         warm = Warm(steps=s.steps, start=s.start, curve=s.curve)
-        s = s.target
-    parts = s.parts if isinstance(s, Stages) else (s,)
+        s = s._warmed()
+    parts = s._stage_parts()
     if not all(_is_stage(p) for p in parts):
         return None
     return Form(tuple(parts), warm)

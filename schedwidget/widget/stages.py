@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 import ipywidgets as W
 import numpy as np
 
-from ..combine import Restarts
+from ..combine import restarts
 from ..schedule import Schedule, ScheduleError, as_whole, complain
 from .controls import LABEL, Entry, ParamControl, number_text, put
 from ..budget import parse_length
@@ -172,7 +172,7 @@ class StagesPanel(Panel, W.VBox):
         s = form.stages[i]
         a = w + int(starts[i])
         span = f"from {u} {a:,}" if s.length is None else f"{u}s {a:,}–{a + s.length:,}"
-        return f"stage {i}{' (repeated)' if isinstance(s, Restarts) else ''} · {span}"  # as designer.control(i, ...)
+        return f"stage {i}{' (repeated)' if s._repeated() is not None else ''} · {span}"  # as designer.control(i, ...)
 
     def _rebuild(self, form: Form) -> None:
         boxes, self.controls = [], []
@@ -203,7 +203,7 @@ class StagesPanel(Panel, W.VBox):
                                   layout={"width": "10.5em", "flex": "0 0 auto"})
                 kind.add_class("sw-stage-shape")
                 kind.observe(self.d.guarded(lambda ch, w=where: self._reshape(w, ch["new"])), names="value")
-                rep = W.Checkbox(value=isinstance(obj, Restarts), description="repeat", indent=False,
+                rep = W.Checkbox(value=obj._repeated() is not None, description="repeat", indent=False,
                                  tooltip="repeat this stage (warm restarts)",
                                  layout={"width": "5.5em", "min_width": "5.5em", "flex": "0 0 auto"})
                 rep.observe(self.d.guarded(lambda ch, w=where: self._repeat(w, ch["new"])), names="value")
@@ -212,7 +212,7 @@ class StagesPanel(Panel, W.VBox):
                 insert.add_class("sw-insert")
                 insert.on_click(self.d.guarded(lambda _b, w=where: self._insert(int(w) + 1)))
                 head = [title, up, down, insert, remove, W.Box([fills, kind, rep], layout={"width": "100%"})]
-            parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if isinstance(obj, Restarts) else ["leaf"])
+            parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if obj._repeated() is not None else ["leaf"])
             for part in parts:
                 target = obj if part != "leaf" else leaf_of(obj)
                 params = Warm.params() if part == "warm" else type(target).params()
@@ -295,7 +295,7 @@ class StagesPanel(Panel, W.VBox):
         s = stages_[i]
         if part == "repeat":
             stages_[i] = dataclasses.replace(s, **{name: value})
-        elif isinstance(s, Restarts):
+        elif s._repeated() is not None:
             stages_[i] = dataclasses.replace(s, target=dataclasses.replace(s.target, **{name: value}))
         else:
             stages_[i] = dataclasses.replace(s, **{name: value})
@@ -318,7 +318,7 @@ class StagesPanel(Panel, W.VBox):
         stages_ = list(form.stages)
         s = stages_[i]
         new = reshape(s, kind)
-        stages_[i] = dataclasses.replace(s, target=new) if isinstance(s, Restarts) else new
+        stages_[i] = new if s._repeated() is None else dataclasses.replace(s, target=new)
         self._propose(Form(tuple(stages_), form.warm))
 
     def _insert(self, at: int) -> None:
@@ -350,9 +350,9 @@ class StagesPanel(Panel, W.VBox):
         i = int(where)
         stages_ = list(form.stages)
         s = stages_[i]
-        if on and not isinstance(s, Restarts):
-            stages_[i] = Restarts(target=s, cycles=2)
-        elif not on and isinstance(s, Restarts):
+        if on and s._repeated() is None:
+            stages_[i] = restarts(s, cycles=2)
+        elif not on and s._repeated() is not None:
             stages_[i] = s.target
         self._propose(Form(tuple(stages_), form.warm))
 
