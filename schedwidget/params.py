@@ -53,14 +53,18 @@ PARAM_KINDS: dict[str, ParamKind] = {}
 class ParamKind:
     """What every parameter of one kind shares; subclasses override what differs.
 
-    ``control`` names the designer's control: ``log_slider``, ``slider``, ``int_slider``, ``dropdown``,
-    ``checkbox``, ``ticklist`` (a text box of ticks), ``points`` (a text box of (tick, rate) pairs),
-    ``schedule`` (a nested design) or ``schedules`` (a list of them).
+    ``control`` names the designer's control: ``log_slider``, ``slider``, ``int_slider``, ``length`` (a text box
+    of a length in ticks, epochs or a share of the run), ``dropdown``, ``checkbox``, ``ticklist`` (a text box of
+    ticks), ``points`` (a text box of (tick, rate) pairs), ``schedule`` (a nested design) or ``schedules`` (a list
+    of them).  ``share_of`` says what a typed share ("6 %") of a value is a share of: "peak" for a rate, "run"
+    for a length, None when a share means nothing.  ``scaled`` is the value with every tick in it multiplied by a
+    ratio (the designer's proportional edits; ``budget.scale_ticks``).
     """
 
     name: ClassVar[str] = ""
     #: How many schedules a value holds: 0, one ("schedule") or a list ("schedules").
     nests: ClassVar[str] = ""
+    share_of: ClassVar[str | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
         super().__init_subclass__(**kwargs)
@@ -86,6 +90,16 @@ class ParamKind:
     def decode(self, p: Param, value: Any, build: Callable[[Any, str], Any], where: str) -> Any:
         """A spec's plain JSON value as the constructor takes it (``build`` reads a nested schedule)."""
         return value
+
+    def scaled(self, p: Param, value: Any, r: float, node: Callable[[Any], Any]) -> Any:
+        """``value`` with every tick in it multiplied by ``r``, rounded half up to whole ticks (``node`` scales a
+        nested schedule); a value that holds no tick is kept."""
+        return value
+
+
+def scaled_tick(v: int, r: float, lo: float) -> int:
+    """``v * r`` rounded half up to a whole tick, at least ``lo``."""
+    return max(int(lo), int(math.floor(v * r + 0.5)))
 
 
 class _Number(ParamKind):
@@ -127,10 +141,15 @@ class _Number(ParamKind):
 
 
 class Rate(_Number):
-    """An absolute learning rate."""
+    """An absolute learning rate: always a log slider (a rate spans decades; a rate of 0 sits at the slider's low
+    end), with a text box that also takes a share of the peak."""
 
     name = "rate"
     noun = "a finite rate"
+    share_of = "peak"
+
+    def control(self, p: Param) -> str:
+        return "log_slider"
 
 
 class Ratio(_Number):
@@ -163,9 +182,17 @@ class _Whole(ParamKind):
 
 
 class Ticks(_Whole):
-    """A whole number of clock ticks (a length, a period, a warmup)."""
+    """A whole number of clock ticks (a length, a period, a warmup): a length text box (ticks, epochs or a share
+    of the run), not a slider."""
 
     name = "ticks"
+    share_of = "run"
+
+    def control(self, p: Param) -> str:
+        return "length"
+
+    def scaled(self, p: Param, value: Any, r: float, node: Callable[[Any], Any]) -> Any:
+        return scaled_tick(value, r, p.lo or 1)
 
 
 class Count(_Whole):
@@ -229,6 +256,9 @@ class TickList(ParamKind):
     def decode(self, p: Param, value: Any, build: Callable[[Any, str], Any], where: str) -> Any:
         return tuple(value)
 
+    def scaled(self, p: Param, value: Any, r: float, node: Callable[[Any], Any]) -> Any:
+        return tuple(scaled_tick(t, r, p.lo or 0) for t in value)
+
 
 class Points(ParamKind):
     """(tick, rate) pairs; the kind that takes them checks them as a whole (knots)."""
@@ -247,6 +277,9 @@ class Points(ParamKind):
     def decode(self, p: Param, value: Any, build: Callable[[Any, str], Any], where: str) -> Any:
         return tuple((t, y) for t, y in value)
 
+    def scaled(self, p: Param, value: Any, r: float, node: Callable[[Any], Any]) -> Any:
+        return tuple((int(math.floor(t * r + 0.5)), y) for t, y in value)
+
 
 class Child(ParamKind):
     """One nested schedule (a combinator's target)."""
@@ -262,6 +295,9 @@ class Child(ParamKind):
 
     def decode(self, p: Param, value: Any, build: Callable[[Any, str], Any], where: str) -> Any:
         return build(value, where)
+
+    def scaled(self, p: Param, value: Any, r: float, node: Callable[[Any], Any]) -> Any:
+        return node(value)
 
 
 class Children(ParamKind):

@@ -154,8 +154,8 @@ class TestParamKinds:
     def test_every_declared_parameter_has_a_kind_object_and_a_control(self):
         from schedwidget.params import PARAM_KINDS
 
-        controls = {"log_slider", "slider", "int_slider", "dropdown", "checkbox", "ticklist", "points", "schedule",
-                    "schedules"}
+        controls = {"log_slider", "slider", "int_slider", "length", "dropdown", "checkbox", "ticklist", "points",
+                    "schedule", "schedules"}
         for cls in KINDS.values():
             for p in cls.params().values():
                 assert p.kind_of is PARAM_KINDS[p.kind] and p.control in controls
@@ -164,9 +164,27 @@ class TestParamKinds:
         from schedwidget.shapes import Cosine, ExpDecay
 
         cos, exp = Cosine.params(), ExpDecay.params()
-        assert cos["peak"].control == "log_slider" and cos["steps"].control == "int_slider"
+        # a length is a text box of ticks, epochs or a share of the run (the designer shows no slider for it)
+        assert cos["peak"].control == "log_slider" and cos["steps"].control == "length"
         assert exp["factor"].control == "slider" and exp["staircase"].control == "checkbox"
-        assert sw.restarts(sw.flat(0.1, steps=1)).params()["target"].control == "schedule"
+        r = sw.restarts(sw.flat(0.1, steps=1)).params()
+        assert r["target"].control == "schedule" and r["cycles"].control == "int_slider"
+        # every rate is a log slider whose text box takes a share of the peak, a rate of 0 included
+        assert sw.warmup(sw.flat(0.1, steps=2), 1).params()["start"].control == "log_slider"
+        assert cos["peak"].kind_of.share_of == "peak" and cos["steps"].kind_of.share_of == "run"
+        assert exp["factor"].kind_of.share_of is None
+
+    def test_a_kind_scales_the_ticks_it_holds(self):
+        from schedwidget.shapes import Drops, Knots
+
+        d, k, r = Drops.params(), Knots.params(), sw.restarts(sw.flat(0.1, steps=1)).params()
+        assert d["steps"].kind_of.scaled(d["steps"], 10, 0.25, None) == 3  # 2.5 rounds half up
+        assert d["steps"].kind_of.scaled(d["steps"], 1, 0.1, None) == 1  # a length stays >= its lower bound
+        assert d["at"].kind_of.scaled(d["at"], (10, 30), 0.5, None) == (5, 15)
+        assert k["points"].kind_of.scaled(k["points"], ((0, 0.1), (9, 0.2)), 0.5, None) == ((0, 0.1), (5, 0.2))
+        assert d["factor"].kind_of.scaled(d["factor"], 0.5, 3.0, None) == 0.5  # not a tick: kept
+        assert r["cycles"].kind_of.scaled(r["cycles"], 4, 3.0, None) == 4  # a count is not a length
+        assert r["target"].kind_of.scaled(r["target"], "child", 2.0, lambda c: c * 2) == "childchild"
 
     def test_an_unknown_kind_is_refused_at_declaration(self):
         from schedwidget.params import Param

@@ -184,20 +184,22 @@ class ParamControl:
         self.text: W.Widget | None = None
         self.none: W.Checkbox | None = None
         tip = p.doc
-        k = p.kind
-        if k == "rate":
+        # the declaration says which control (p.control) and what a typed share is of (rates: the peak)
+        k = self.control = p.control
+        self.of_peak = p.kind_of.share_of == "peak"
+        if k == "log_slider" and self.of_peak:
             lo, hi = self._rate_range(value)
             self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
                                            readout=False, style=style, layout=SLIDER_LAYOUT)
             self.slider.add_class("sw-rate")
             self.text = Entry(tooltip=tip + "; a number, or a share of the peak such as 1 %",
                               continuous_update=False, layout=BOX_LAYOUT)
-        elif k == "ratio" and p.log:
+        elif k == "log_slider":
             lo, hi = _log_range(p)
             self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
                                            readout=False, style=style, layout=SLIDER_LAYOUT)
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
-        elif k == "ticks":
+        elif k == "length":
             self.text = Entry(description=words, tooltip=tip + "; steps, epochs ('3 ep') or a share of the run "
                               "('6 %'); a share or part of an epoch rounds up", continuous_update=False,
                               style=style, layout={"width": "13em", "flex": "0 0 auto"})
@@ -207,12 +209,12 @@ class ParamControl:
             if p.optional:
                 self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
                                        layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
-        elif k == "ratio":
+        elif k == "slider":
             lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
             self.slider = W.FloatSlider(min=lo, max=hi, step=round_step(lo, hi), description=words, tooltip=tip,
                                         readout_format=".4g", style=style, layout=SLIDER_LAYOUT)
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
-        elif k == "count":
+        elif k == "int_slider":
             self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=words,
                                       tooltip=tip, style=style, layout=SLIDER_LAYOUT)
             self.text = W.IntText(tooltip=tip, layout=BOX_LAYOUT)
@@ -220,16 +222,17 @@ class ParamControl:
                 self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
                                        layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
                 self.slider.layout.width = "14.5em"
-        elif k == "choice":
+        elif k == "dropdown":
             self.text = W.Dropdown(options=list(p.choices), description=words, tooltip=tip, style=style)
-        elif k == "flag":
+        elif k == "checkbox":
             self.text = W.Checkbox(description=words, tooltip=tip, indent=False)
         elif k in ("ticklist", "points"):
             self.text = W.Text(description=words, tooltip=tip, continuous_update=False, style=style,
                                layout={"width": "23em"})
         else:
-            raise complain("designer", f"{owner}.{name}", k, "a parameter kind with a control")
-        if self.text is not None and k not in ("choice", "flag"):
+            raise complain("designer", f"{owner}.{name}", k, "a control the designer shows for a value "
+                           "(log_slider, slider, int_slider, length, dropdown, checkbox, ticklist, points)")
+        if self.text is not None and k not in ("dropdown", "checkbox"):
             self.text.add_class("sw-value")
         self.show(value, budget)
         parts = [w for w in (self.slider, self.text, self.none) if w is not None]
@@ -243,13 +246,8 @@ class ParamControl:
         return int(self.p.soft[0]) if self.p.soft else int(self.p.lo or 0)
 
     def _int_hi(self, budget: int, value: Any) -> int:
-        if self.p.kind == "ticks":
-            hi = max(int(budget), self._int_lo() + 1)
-        else:
-            hi = int(self.p.soft[1]) if self.p.soft else 100
-        if isinstance(value, int):
-            hi = max(hi, min(value, 10 ** 12)) if self.p.kind == "ticks" else hi
-        return hi
+        # an int slider is a count (cycles, patience): its usual range; lengths are text boxes (control "length")
+        return int(self.p.soft[1]) if self.p.soft else 100
 
     def _rate_range(self, value: Any) -> tuple[float, float]:
         """Exponents of a rate slider: RATE_SPAN decades either side of ``value`` (of the soft range when 0)."""
@@ -269,7 +267,7 @@ class ParamControl:
         """Write ``value`` (from the design) into the widgets; compares before writing, reports nothing."""
         self._quiet += 1
         try:
-            k = self.p.kind
+            k = self.control
             if isinstance(self.slider, W.IntSlider) and budget is not None:
                 hi = self._int_hi(budget, value)
                 if self.slider.max != hi:
@@ -285,15 +283,15 @@ class ParamControl:
                     put(self.words, "")
                     return
                 if value is None:  # park the slider where unticking "open-ended" should start from
-                    put(self.slider, self.slider.max if k == "ticks" else min(self.slider.min + 1, self.slider.max))
+                    put(self.slider, min(self.slider.min + 1, self.slider.max))
                     return
             self.value = value
-            if k == "ticks":
+            if k == "length":
                 put(self.text, number_text(value))
                 unit, spe, total, _peak = self.context()
                 put(self.words, html_words(length_words(value, unit, spe, total)))
                 return
-            if k == "rate" and isinstance(value, (int, float)):
+            if k == "log_slider" and self.of_peak and isinstance(value, (int, float)):
                 lo, hi = self.slider.min, self.slider.max
                 v = math.log10(value) if value > 0 else None
                 if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
@@ -361,14 +359,14 @@ class ParamControl:
                 value = None if change["new"] else max(1, int(self.context()[2] or 1))
             else:
                 value = None if change["new"] else self.slider.value
-        elif self.p.kind == "ticklist":
+        elif self.control == "ticklist":
             value = parse_ticklist(self.owner, self.name, change["new"])
-        elif self.p.kind == "points":
+        elif self.control == "points":
             value = parse_points(self.owner, self.name, change["new"])
-        elif self.p.kind == "ticks" and w is self.text:
+        elif self.control == "length" and w is self.text:
             unit, spe, total, _peak = self.context()
             value = parse_length(change["new"], unit, spe, total, self.owner, self.name, int(self.p.lo or 0))
-        elif self.p.kind == "rate" and w is self.text:
+        elif self.of_peak and w is self.text:
             value = parse_rate(change["new"], self.context()[3], self.owner, self.name)
         elif w is self.slider:
             value = self._slider_value(change["new"])
@@ -379,7 +377,7 @@ class ParamControl:
             # a moved slider shows what the design now holds, also when its value rounded to the design's
             # own (no redraw then, so nothing else would put it back)
             self.show(self.value)
-        elif w is self.text and self.p.kind in ("ticks", "rate"):
+        elif w is self.text and (self.control == "length" or self.of_peak):
             self.show(self.value)  # "3 ep" or "1 %" is shown as the value it became
 
     def widgets(self) -> list[W.Widget]:

@@ -55,7 +55,7 @@ class Warm:
     @staticmethod
     def params() -> dict[str, Param]:
         """Warmup's declared parameters except its target."""
-        return {k: p for k, p in Warmup.params().items() if p.kind != "schedule"}
+        return {k: p for k, p in Warmup.params().items() if p.control != "schedule"}
 
 
 @dataclass(frozen=True)
@@ -215,10 +215,6 @@ def reshape(stage: Schedule, kind: str) -> Schedule:
 
 
 # ------------------------------------------------------------------ proportions
-def _scaled_tick(v: int, r: float, lo: int) -> int:
-    return max(int(lo), int(math.floor(v * r + 0.5)))
-
-
 def _scale_node(s: Any, r: float) -> Any:
     """``s`` with every tick-valued parameter multiplied by ``r`` (rounded to whole ticks)."""
     params = Warm.params() if isinstance(s, Warm) else type(s).params()
@@ -227,14 +223,9 @@ def _scale_node(s: Any, r: float) -> Any:
         v = getattr(s, name)
         if v is None:
             continue
-        if p.kind == "ticks":
-            changes[name] = _scaled_tick(v, r, p.lo or 1)
-        elif p.kind == "ticklist":
-            changes[name] = tuple(_scaled_tick(t, r, p.lo or 0) for t in v)
-        elif p.kind == "points":
-            changes[name] = tuple((int(math.floor(t * r + 0.5)), y) for t, y in v)
-        elif p.kind == "schedule":
-            changes[name] = _scale_node(v, r)
+        new = p.kind_of.scaled(p, v, r, lambda c: _scale_node(c, r))
+        if new is not v:
+            changes[name] = new
     return dataclasses.replace(s, **changes) if changes else s
 
 

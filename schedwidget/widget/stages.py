@@ -217,7 +217,7 @@ class StagesPanel(Panel, W.VBox):
                 target = obj if part != "leaf" else leaf_of(obj)
                 params = Warm.params() if part == "warm" else type(target).params()
                 for name, p in params.items():
-                    if p.kind in ("schedule", "schedules"):
+                    if p.control in ("schedule", "schedules"):
                         continue
                     rows.append(self._control(where, part, target, name, p))
             head_row = W.HBox(head, layout={"flex_flow": "row wrap", "align_items": "center"})
