@@ -1,5 +1,6 @@
 """Adding a kind is one class: a toy kind defined here, in the test file only, gets evaluation, a spec
-round trip, schema validation, generated source equal at every tick and an SVG without touching the package.
+round trip, schema validation, generated source equal at every tick, an SVG and designer controls without
+touching the package.
 
 The class below is the worked example of DEVELOPERS.md ("How a node works"), word for word.
 """
@@ -120,6 +121,43 @@ class TestToyKind:
             assert sw.json_schema() == shipped_schema()
         finally:
             KINDS["halfway"] = saved
+
+
+class TestToyInTheDesigner:
+    """The designer (headless) builds the toy's controls from its declarations alone, and they edit the design."""
+
+    @pytest.fixture
+    def designer(self, Halfway):
+        from schedwidget import ScheduleDesigner
+
+        return ScheduleDesigner(sw.warmup(Halfway(high=0.1, low=0.01, steps=1000), 50))
+
+    def test_controls_come_from_the_declarations(self, designer):
+        d = designer
+        high, low, steps = (d.control(0, n) for n in ("high", "low", "steps"))
+        assert (high.control, low.control, steps.control) == ("log_slider", "log_slider", "length")
+        assert (high.text.value, low.text.value, steps.text.value) == ("0.1", "0.01", "1,000")
+        assert d.control("warmup", "steps").text.value == "50"
+        shapes = [w for w in _widgets(d.stages) if "sw-stage-shape" in w._dom_classes]
+        assert [w.value for w in shapes] == ["halfway"] and ("halfway", "halfway") in shapes[0].options
+
+    def test_a_changed_control_changes_the_design(self, designer, Halfway):
+        d = designer
+        d.control(0, "high").text.value = "0.2"
+        assert d.error == "" and d.schedule == sw.warmup(Halfway(high=0.2, low=0.01, steps=1000), 50)
+        d.control(0, "steps").text.value = "10 %"  # a share of the run of 1,050 ticks
+        assert d.error == "" and d.schedule == sw.warmup(Halfway(high=0.2, low=0.01, steps=105), 50)
+        d.control(0, "low").text.value = "0.5"  # the toy's own check refuses it; the design is kept
+        assert d.error == "halfway: low must be <= high = 0.2, got 0.5"
+        assert d.schedule == sw.warmup(Halfway(high=0.2, low=0.01, steps=105), 50)
+        d.control(0, "high").slider.value = 0.5  # the slider edits the same parameter
+        assert d.schedule.target.high == 0.5
+
+
+def _widgets(w):
+    yield w
+    for c in getattr(w, "children", ()):
+        yield from _widgets(c)
 
 
 def test_the_guide_shows_this_class_word_for_word():

@@ -92,8 +92,14 @@ def leaf_of(stage: Schedule) -> Schedule:
     return stage if cycle is None else cycle
 
 
+def is_leaf(s: Schedule) -> bool:
+    """Whether ``s`` is a leaf shape: a node built from no other schedule (one of ``LEAVES``, or a kind defined
+    outside the package: its controls come from its declarations like every other's)."""
+    return not s.children()
+
+
 def _is_stage(s: Schedule) -> bool:
-    return type(leaf_of(s)) in LEAVES.values()
+    return is_leaf(leaf_of(s))
 
 
 def read_form(s: Schedule) -> Form | None:
@@ -144,7 +150,7 @@ def new_stage(kind: str, rate: float, length: int) -> Schedule:
 # ------------------------------------------------------------------ the run as the frame
 def _fixed_length(stage: Schedule) -> bool:
     """Whether a stage's length is its own ``steps`` parameter (so it can fill the rest of the run)."""
-    return type(stage) in LEAVES.values() and "steps" in type(stage).params() and stage.steps is not None
+    return is_leaf(stage) and "steps" in type(stage).params() and stage.steps is not None
 
 
 def filler(form: Form, chosen: int | None = None) -> int | None:
@@ -266,7 +272,7 @@ def fit_total(form: Form, total: int) -> Form:
     stages_ = list(out.stages)
     for i in range(len(stages_) - 1, -1, -1):
         s = stages_[i]
-        if type(s) in LEAVES.values() and "steps" in type(s).params() and s.steps is not None:
+        if _fixed_length(s):
             stages_[i] = dataclasses.replace(s, steps=s.steps + (total - got))
             return Form(tuple(stages_), out.warm)
     return out

@@ -198,7 +198,9 @@ class StagesPanel(Panel, W.VBox):
                                    "length when other stages change", layout={"width": "9em", "flex": "0 0 auto"})
                 fills.add_class("sw-fills")
                 fills.observe(self.d.guarded(lambda ch, w=where: self._fills(w, ch["new"])), names="value")
-                kind = W.Dropdown(options=[(SHAPE_WORDS[k], k) for k in LEAVES], value=leaf_of(obj).kind,
+                own = leaf_of(obj).kind  # a kind defined outside the package is offered under its own name
+                shapes = [(SHAPE_WORDS[k], k) for k in LEAVES] + ([] if own in LEAVES else [(own, own)])
+                kind = W.Dropdown(options=shapes, value=own,
                                   tooltip="change this stage's shape: same span, same starting rate",
                                   layout={"width": "10.5em", "flex": "0 0 auto"})
                 kind.add_class("sw-stage-shape")
