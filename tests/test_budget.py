@@ -243,3 +243,52 @@ def test_unit_rule_and_keep_that_are_not_strings_are_refused():
         scale_for_batch(flat(0.1), 147_200, 96, rule=bad)
     with pytest.raises(ScheduleError, match="keep must be one of 'samples', 'steps'"):
         scale_for_batch(flat(0.1, steps=10), 128, 256, keep=bad)
+
+
+class TestBudgetModules:
+    """The budget arithmetic, one module per purpose (issue 11), with every name still importable from budget."""
+
+    def test_every_public_name_from_budget_and_the_package(self):
+        import schedwidget
+        from schedwidget import budget, lengths, proportion, rebatch
+
+        for name in budget.__all__:
+            assert getattr(budget, name) is not None
+        assert budget.parse_length is lengths.parse_length and budget.absorb is lengths.absorb
+        assert budget.scale_for_batch is rebatch.scale_for_batch is schedwidget.scale_for_batch
+        assert budget.rescale_for_batch is rebatch.rescale_for_batch and budget.Rescaled is rebatch.Rescaled
+        assert budget.scale_node is proportion.scale_node and schedwidget.Budget is budget.Budget
+
+    def test_rebatch_imported_first_still_finds_budget(self):
+        import subprocess
+        import sys
+
+        code = ("import schedwidget.rebatch as r; "
+                "print(r.rescale_for_batch(__import__('schedwidget').cosine(0.1, steps=100), 100, 'step', 10, "
+                "128, 256, 1, 'linear', 'samples').new_steps)")
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+        assert out.strip() == "50"  # 10 epochs of 10 steps at batch 128 = 10 epochs of 5 steps at batch 256
+
+    def test_scale_node_scales_every_tick_and_keeps_the_rest(self):
+        from schedwidget import cosine, drops, restarts, warmup
+        from schedwidget.proportion import scale_node
+
+        assert scale_node(drops(0.1, at=(30, 60), factor=0.1, steps=90), 1 / 3) == \
+            drops(0.1, at=(10, 20), factor=0.1, steps=30)
+        s = warmup(restarts(cosine(0.1, steps=10), cycles=3), 5)
+        assert scale_node(s, 2) == warmup(restarts(cosine(0.1, steps=20), cycles=3), 10)  # cycles is a count
+        assert scale_node(cosine(0.1, steps=3), 0.5).steps == 2  # 1.5 rounds half up
+        for bad in (0, -1.0, float("nan"), float("inf"), True, "2"):
+            with pytest.raises(ScheduleError, match="designer: scale must be a finite number > 0"):
+                scale_node(cosine(0.1, steps=3), bad)
+        with pytest.raises(ScheduleError, match="drops"):
+            scale_node(drops(0.1, at=(1, 2), factor=0.5, steps=10), 0.1)  # both drops land on tick 0
+
+    def test_absorb_rounding_takes_the_last_stage_with_its_own_length(self):
+        from schedwidget import cosine, flat, restarts
+        from schedwidget.proportion import absorb_rounding
+
+        parts = (flat(0.1, steps=3), cosine(0.1, steps=7), restarts(cosine(0.1, steps=5), cycles=2), flat(0.0))
+        out = absorb_rounding(parts, -2)
+        assert out == (parts[0], cosine(0.1, steps=5), parts[2], parts[3])
+        assert absorb_rounding((restarts(cosine(0.1, steps=5), cycles=2), flat(0.0)), 1) is None

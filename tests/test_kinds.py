@@ -17,10 +17,10 @@ from schedwidget.schedule import KINDS, Schedule
 
 PACKAGE = Path(sw.__file__).parent
 NODE_MODULES = {"schedule.py", "leaf.py", "shapes.py", "pieces.py", "stages.py", "restarts.py", "combine.py"}
-#: budget.py asks warmups, stages and restarts through the protocol (``_warmed``, ``_stage_parts``); it still looks
-#: through scales and clips and for an open knots or flat node itself, until those classes (combine.py, shapes.py)
-#: answer its two questions (an open constant rate, an open knots end) through protocol methods of their own.
-ELSEWHERE = {"budget.py": {"Scaled", "Clip", "Knots", "Flat"}}
+#: The budget arithmetic asks warmups, stages and restarts through the protocol (``_warmed``, ``_stage_parts``); it
+#: still looks through scales and clips for an open knots node (budget.py) or an open flat rate (rebatch.py) itself,
+#: until those classes (combine.py, shapes.py) answer these two questions through protocol methods of their own.
+ELSEWHERE = {"budget.py": {"Scaled", "Clip", "Knots"}, "rebatch.py": {"Scaled", "Clip", "Flat"}}
 
 
 class TestRegistry:
@@ -57,7 +57,7 @@ class TestRegistry:
                 if "isinstance(" in line and any(f"{n}," in line or f"{n})" in line for n in asked):
                     found.append(f"{name}:{i}: {line.strip()}")
         assert found == []
-        assert {"budget.py", "widget/form.py", "widget/stages.py"} <= seen  # the walk reaches the designer's modules
+        assert {"budget.py", "rebatch.py", "proportion.py", "widget/form.py", "widget/stages.py"} <= seen  # the walk reaches the designer's modules
 
 
 class TestSiblings:

@@ -23,6 +23,7 @@ from numbers import Integral
 from typing import Any
 
 from ..combine import Warmup, restarts, stages, warmup
+from ..proportion import absorb_rounding, has_own_length, scale_node
 from ..schedule import Param, Schedule, ScheduleError, complain
 from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle, cosine
 
@@ -150,7 +151,7 @@ def new_stage(kind: str, rate: float, length: int) -> Schedule:
 # ------------------------------------------------------------------ the run as the frame
 def _fixed_length(stage: Schedule) -> bool:
     """Whether a stage's length is its own ``steps`` parameter (so it can fill the rest of the run)."""
-    return is_leaf(stage) and "steps" in type(stage).params() and stage.steps is not None
+    return has_own_length(stage)
 
 
 def filler(form: Form, chosen: int | None = None) -> int | None:
@@ -220,21 +221,7 @@ def reshape(stage: Schedule, kind: str) -> Schedule:
     return new
 
 
-# ------------------------------------------------------------------ proportions
-def _scale_node(s: Any, r: float) -> Any:
-    """``s`` with every tick-valued parameter multiplied by ``r`` (rounded to whole ticks)."""
-    params = Warm.params() if isinstance(s, Warm) else type(s).params()
-    changes: dict[str, Any] = {}
-    for name, p in params.items():
-        v = getattr(s, name)
-        if v is None:
-            continue
-        new = p.kind_of.scaled(p, v, r, lambda c: _scale_node(c, r))
-        if new is not v:
-            changes[name] = new
-    return dataclasses.replace(s, **changes) if changes else s
-
-
+# ------------------------------------------------------------------ proportions (the core's arithmetic)
 def scale_ticks(form: Form, r: float) -> Form:
     """Every tick of every stage (and of the warmup) multiplied by ``r``, rounded to whole ticks.
 
@@ -247,8 +234,8 @@ def scale_ticks(form: Form, r: float) -> Form:
     """
     if not (r > 0 and math.isfinite(r)):
         raise complain("designer", "scale", r, "a finite number > 0")
-    warm = _scale_node(form.warm, r) if form.warm is not None else None
-    return Form(tuple(_scale_node(s, r) for s in form.stages), warm)
+    warm = scale_node(form.warm, r) if form.warm is not None else None
+    return Form(tuple(scale_node(s, r) for s in form.stages), warm)
 
 
 def fit_total(form: Form, total: int) -> Form:
@@ -269,13 +256,8 @@ def fit_total(form: Form, total: int) -> Form:
     got = out.build().length
     if got == total:
         return out
-    stages_ = list(out.stages)
-    for i in range(len(stages_) - 1, -1, -1):
-        s = stages_[i]
-        if _fixed_length(s):
-            stages_[i] = dataclasses.replace(s, steps=s.steps + (total - got))
-            return Form(tuple(stages_), out.warm)
-    return out
+    stages_ = absorb_rounding(out.stages, total - got)
+    return out if stages_ is None else Form(stages_, out.warm)
 
 
 def rescale(s: Schedule, budget: int, new_budget: int) -> Schedule:
