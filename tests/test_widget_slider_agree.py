@@ -121,3 +121,50 @@ class TestRandomSequences:
             elif (d.schedule, s.value) != before:
                 loose = False
             assert_agree(d, exact_slider=not loose)
+
+
+class TestRecentre:
+    """A typed rate far from the slider's range reaches the browser in messages it cannot clamp, in any key order."""
+
+    @staticmethod
+    def _messages(slider: W.FloatLogSlider, fn) -> list[dict]:
+        sent: list[dict] = []
+        original = slider.send_state
+
+        def record(key=None):
+            keys = [key] if isinstance(key, str) else list(key or ("min", "max", "value"))
+            sent.append({k: getattr(slider, k) for k in keys if k in ("min", "max", "value")})
+            return original(key=key)
+
+        slider.send_state = record
+        try:
+            fn()
+        finally:
+            slider.send_state = original
+        return [m for m in sent if m]
+
+    @staticmethod
+    def _browser(state: dict, message: dict, order: list[str]) -> None:
+        """A browser that applies a message's keys in the given order and clamps the value to its range."""
+        for key in order:
+            if key in message:
+                state[key] = message[key]
+            lo, hi = 10 ** state["min"], 10 ** state["max"]
+            assert lo <= state["value"] * (1 + 1e-12) and state["value"] <= hi * (1 + 1e-12), (state, message)
+
+    def test_typed_peak_far_below_the_range(self):
+        """0.1 -> 3e-4 typed in the box: no browser order ever sees the value outside the range (it sent back the
+        clamped 0.00316 or 0.0095 as a move, and the typed peak was lost)."""
+        d = ScheduleDesigner(warmup(cosine(0.1, steps=1000), steps=50))
+        c = d.control(0, "peak")
+        s = c.slider
+        start = {"min": s.min, "max": s.max, "value": s.value}
+        msgs = self._messages(s, lambda: setattr(c.text, "value", 3e-4))
+        assert msgs, "the slider must be recentred on the typed value"
+        for order in (["min", "max", "value"], ["value", "min", "max"], ["max", "value", "min"]):
+            state = dict(start)
+            for m in msgs:
+                self._browser(state, m, order)
+            assert state["value"] == 3e-4
+        assert d.schedule.target.peak == 3e-4 and s.value == 3e-4
+        assert s.min < math.log10(3e-4) < s.max

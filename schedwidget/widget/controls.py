@@ -46,6 +46,18 @@ RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range start
 RATE_SPAN = 1.5    # a rate slider spans this many decades either side of the value it was centred on
 
 
+def recentre(slider: W.FloatLogSlider, a: float, b: float, value: float) -> None:
+    """Move a log slider's exponent range to ``[a, b]`` and its value to ``value`` without the browser clamping.
+
+    A browser applies the keys of one message in an order of its own: given the range before the value it clamped
+    the old value to an end (0.1 -> 3e-4 gave 0.0095), given the value first it clamped the new value to the old
+    range (3e-4 gave 0.00316), and sent the clamp back as a move of the slider. So three messages, each leaving the
+    value inside the range whatever the order: widen to cover both ranges, move the value, narrow around it.
+    """
+    slider.min, slider.max = min(slider.min, a), max(slider.max, b)  # widening never clamps: the value stays inside
+    slider.value = value
+    slider.min, slider.max = a, b  # narrowing around the new value: inside the union, so inside [a, b]
+
 class Entry(W.Text):
     """A text box that also takes a number assigned from code (shown as its text)."""
 
@@ -295,15 +307,7 @@ class ParamControl:
                 lo, hi = self.slider.min, self.slider.max
                 v = math.log10(value) if value > 0 else None
                 if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
-                    a, b = self._rate_range(value)
-                    # one message with the range and the value: a browser given the new range before the new
-                    # value clamped the old value to an end and sent that back as a move (0.1 -> 3e-4 gave 0.0095)
-                    with self.slider.hold_sync():
-                        if a > self.slider.max:
-                            self.slider.max, self.slider.min = b, a
-                        else:
-                            self.slider.min, self.slider.max = a, b
-                        self.slider.value = value
+                    recentre(self.slider, *self._rate_range(value), value)
                     self._shown = value
             if k == "ticklist":
                 put(self.text, ", ".join(str(t) for t in value))
