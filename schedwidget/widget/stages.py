@@ -18,11 +18,10 @@ import ipywidgets as W
 import numpy as np
 
 from ..combine import restarts
-from ..schedule import Schedule, ScheduleError, as_whole, complain
+from ..schedule import ScheduleError, complain
 from .controls import LABEL, Entry, ParamControl, number_text, put
-from ..budget import parse_length
-from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, rescale, \
-    reshape, whole
+from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, reshape
+from .budget_row import BudgetMethods, BudgetRow
 from .guard import Panel, close_tree
 from .theme import BORDER
 
@@ -37,7 +36,7 @@ NOT_EDITABLE = ("This design is not a warmup plus a list of stages, so it cannot
                 "it is drawn and read out, and can be edited in code (designer.schedule = ...).")
 
 
-class StagesPanel(Panel, W.VBox):
+class StagesPanel(BudgetRow, Panel, W.VBox):
     """Budget row, 'add stage' row, one box per stage (class ``sw-stage``), and a note for other designs."""
 
     def __init__(self, designer: ScheduleDesigner) -> None:
@@ -397,76 +396,7 @@ class StagesPanel(Panel, W.VBox):
             return
         self._insert(len(form.stages))
 
-    # --------------------------------------------------------------- budget
-    def _unit_edited(self, change: dict) -> None:
-        if not self._quiet:
-            self.d.set_unit(change["new"])
-
-    def _spe_edited(self, change: dict) -> None:
-        if not self._quiet:
-            self.d.steps_per_epoch = _known("steps/epoch", change["new"])
-
-    def _total_edited(self, change: dict) -> None:
-        if not self._quiet:
-            d = self.d
-            self.d.set_total(parse_length(change["new"], d.unit, d.steps_per_epoch, None, "designer", "run length", 1))
-
-    def _batch_edited(self, change: dict) -> None:
-        if not self._quiet:
-            self.d.batch = _known("batch", change["new"])
-
-
-def _known(name: str, text: str) -> int | None:
-    """A typed whole number >= 1, or None for a blank box (unknown)."""
-    t = str(text).strip().replace(",", "").replace("_", "")
-    if not t or t == "0":
-        return None
-    try:
-        n = as_whole(float(t))
-    except ValueError:
-        n = None
-    if n is None or n < 1:
-        raise complain("designer", name, text, "a whole number >= 1, or blank for unknown")
-    return n
-
 
 def _owner(obj: Any, c: ParamControl) -> Any:
     """The object a control's parameter lives on: the stage, or the shape a repeated stage repeats."""
     return leaf_of(obj) if getattr(c, "part", "leaf") == "leaf" else obj
-
-
-class BudgetMethods:
-    """The designer's methods that change the budget or the clock with the design (the budget row calls them)."""
-
-    def set_total(self, total: int) -> None:
-        """A new budget; the design's ticks are scaled in proportion (stage by stage, or ``stretch``)."""
-        total = whole("designer", "total", total, False)
-        if total != self.steps:
-            new = rescale(self.schedule, self.steps, total)
-            with self._one_redraw():
-                self.steps = total
-                self.propose(new)
-
-    def set_unit(self, unit: str) -> None:
-        """Change the clock; with steps per epoch known the design is converted, otherwise relabelled."""
-        self._check_unit({"value": unit})
-        if unit == self.unit or not self.steps_per_epoch:
-            self.unit = unit
-            return
-        spe = self.steps_per_epoch
-        steps = self.steps * spe if unit == "step" else max(1, round(self.steps / spe))
-        new = rescale(self.schedule, self.steps, steps)
-        with self._one_redraw():
-            self.unit, self.steps = unit, steps
-            self.propose(new)
-            self.canvas.x_choice.value = "epochs" if unit == "epoch" else "steps"
-
-    def restore(self, s: Schedule, steps: int, unit: str, steps_per_epoch: int | None) -> None:
-        """Put a design back with its budget and clock (one redraw)."""
-        with self._one_redraw():
-            self.unit, self.steps_per_epoch, self.steps = unit, steps_per_epoch, steps
-            self.propose(s)
-
-    def control(self, stage: int | str, name: str) -> ParamControl:
-        """The control of parameter ``name`` of stage ``stage`` (0 = first stage; "warmup" = the warmup)."""
-        return self.stages.control(stage, name)
