@@ -34,6 +34,7 @@ import ipywidgets as W
 from traitlets import Any as AnyTrait
 from traitlets import validate
 
+from .guard import close_tree
 from ..budget import length_words, parse_length, parse_rate
 from ..schedule import Param, as_whole, complain
 
@@ -45,18 +46,6 @@ BOX_LAYOUT = {"width": "7em", "flex": "0 0 auto"}
 RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range starts at 0
 RATE_SPAN = 1.5    # a rate slider spans this many decades either side of the value it was centred on
 
-
-def recentre(slider: W.FloatLogSlider, a: float, b: float, value: float) -> None:
-    """Move a log slider's exponent range to ``[a, b]`` and its value to ``value`` without the browser clamping.
-
-    A browser applies the keys of one message in an order of its own: given the range before the value it clamped
-    the old value to an end (0.1 -> 3e-4 gave 0.0095), given the value first it clamped the new value to the old
-    range (3e-4 gave 0.00316), and sent the clamp back as a move of the slider. So three messages, each leaving the
-    value inside the range whatever the order: widen to cover both ranges, move the value, narrow around it.
-    """
-    slider.min, slider.max = min(slider.min, a), max(slider.max, b)  # widening never clamps: the value stays inside
-    slider.value = value
-    slider.min, slider.max = a, b  # narrowing around the new value: inside the union, so inside [a, b]
 
 class Entry(W.Text):
     """A text box that also takes a number assigned from code (shown as its text)."""
@@ -199,11 +188,10 @@ class ParamControl:
         # the declaration says which control (p.control) and what a typed share is of (rates: the peak)
         k = self.control = p.control
         self.of_peak = p.kind_of.share_of == "peak"
+        self._rate_args = {"description": words, "tooltip": tip, "style": style}
+        self._on_value: Callable | None = None  # the slider's observer, kept so a replacement slider gets it
         if k == "log_slider" and self.of_peak:
-            lo, hi = self._rate_range(value)
-            self.slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, description=words, tooltip=tip,
-                                           readout=False, style=style, layout=SLIDER_LAYOUT)
-            self.slider.add_class("sw-rate")
+            self.slider = self._rate_slider(*self._rate_range(value), value)
             self.text = Entry(tooltip=tip + "; a number, or a share of the peak such as 1 %",
                               continuous_update=False, layout=BOX_LAYOUT)
         elif k == "log_slider":
@@ -248,12 +236,39 @@ class ParamControl:
             self.text.add_class("sw-value")
         self.show(value, budget)
         parts = [w for w in (self.slider, self.text, self.none) if w is not None]
+        self._on_value = guard(self._edited)
         for w in parts:
-            w.observe(guard(self._edited), names="value")
+            w.observe(self._on_value, names="value")
         self.box = W.HBox(parts + ([self.words] if self.words is not None else []),
                           layout={"align_items": "center"})
 
     # ---------------------------------------------------------------- ranges
+    def _rate_slider(self, lo: float, hi: float, value: Any = None) -> W.FloatLogSlider:
+        kw = {} if not isinstance(value, (int, float)) or not lo <= math.log10(max(value, 1e-300)) <= hi \
+            else {"value": value}
+        slider = W.FloatLogSlider(min=lo, max=hi, base=10, step=0.01, readout=False, layout=SLIDER_LAYOUT,
+                                  **self._rate_args, **kw)
+        slider.add_class("sw-rate")
+        return slider
+
+    def _recentre(self, value: float) -> None:
+        """Put a rate slider around ``value`` by replacing it with a new slider built there (the old one closed).
+
+        Moving a shown slider's range cannot be made safe: a browser applies a message's keys in an order of its
+        own and re-snaps its value to the new grid when the range moves, sends that back, and then drops the
+        kernel's value while its own is unanswered (3e-4 typed became 0.0095 or 0.00316). A new slider arrives
+        with its range and value as one consistent first state.
+        """
+        old, new = self.slider, self._rate_slider(*self._rate_range(value), value)
+        new.layout.width = old.layout.width  # a panel may have widened its sliders
+        if self._on_value is not None:
+            new.observe(self._on_value, names="value")
+        self.slider, self._shown = new, value
+        box = getattr(self, "box", None)
+        if box is not None:
+            box.children = tuple(new if w is old else w for w in box.children)
+        close_tree(old)
+
     def _int_lo(self) -> int:
         return int(self.p.soft[0]) if self.p.soft else int(self.p.lo or 0)
 
@@ -307,8 +322,7 @@ class ParamControl:
                 lo, hi = self.slider.min, self.slider.max
                 v = math.log10(value) if value > 0 else None
                 if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
-                    recentre(self.slider, *self._rate_range(value), value)
-                    self._shown = value
+                    self._recentre(value)
             if k == "ticklist":
                 put(self.text, ", ".join(str(t) for t in value))
             elif k == "points":
