@@ -186,13 +186,10 @@ def _count(k: int, unit: str, more: str = "") -> str:
 
 
 def _open_knots(s: Schedule):
-    """The knots node that ends ``s`` without a ``steps`` of its own (through scales and clips), or None."""
-    from .combine import Clip, Scaled
-    from .shapes import Knots
-
-    while isinstance(s, (Scaled, Clip)):
-        s = s.target
-    return s if isinstance(s, Knots) and getattr(s, "steps", None) is None else None
+    """The knots table that ends ``s`` at its last entry (through scales and clips), or None."""
+    while s._pointwise_target() is not None:
+        s = s._pointwise_target()
+    return s if s._ends_at_last_entry() else None
 
 
 # the rest of the budget arithmetic, one module per purpose (imported last: they import Budget from here)

@@ -150,6 +150,15 @@ class Scaled(Schedule):
     def length(self) -> int | None:
         return self.target.length
 
+    def _pointwise_target(self):
+        return self.target
+
+    def _constant_open(self):
+        return self.target._constant_open()
+
+    def _ends_at_last_entry(self):
+        return self.target._ends_at_last_entry()
+
     def children(self):
         return (self.target,)
 
@@ -206,6 +215,15 @@ class Clip(Schedule):
     @property
     def length(self) -> int | None:
         return self.target.length
+
+    def _pointwise_target(self):
+        return self.target
+
+    def _constant_open(self):
+        return self.target._constant_open()
+
+    def _ends_at_last_entry(self):
+        return self.target._ends_at_last_entry()
 
     def children(self):
         return (self.target,)

@@ -178,6 +178,9 @@ class Knots(_Leaf):
     def length(self) -> int:
         return self.points[-1][0] if self.steps is None else self.steps
 
+    def _ends_at_last_entry(self) -> bool:
+        return self.steps is None
+
     def _top(self) -> float:
         return max(y for _, y in self.points)
 

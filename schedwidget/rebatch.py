@@ -22,12 +22,7 @@ def _positive_whole(owner: str, name: str, value: Any) -> int:
 
 def _constant_open(s: Schedule) -> bool:
     """Whether ``s`` is open-ended and the same rate at every tick (a flat rate, scaled or clipped)."""
-    from .combine import Clip, Scaled
-    from .shapes import Flat
-
-    while isinstance(s, (Scaled, Clip)):
-        s = s.target
-    return isinstance(s, Flat) and s.length is None
+    return s._constant_open()
 
 
 def _rescale_open(s: Schedule, a: int, b: int) -> Schedule | None:
@@ -37,12 +32,12 @@ def _rescale_open(s: Schedule, a: int, b: int) -> Schedule | None:
     stages are moved to the same samples seen (the stages together, by one rounding, as ``stretch`` does);
     any other open-ended shape (a decay, restarts without an end) changes along an unbounded clock.
     """
-    from .combine import Clip, Scaled, Stages
+    from .stages import Stages
 
     if _constant_open(s):
         return s
-    if isinstance(s, (Scaled, Clip)):
-        inner = _rescale_open(s.target, a, b)
+    if s._pointwise_target() is not None:
+        inner = _rescale_open(s._pointwise_target(), a, b)
         return None if inner is None else replace(s, target=inner)
     if s._warmed() is not None:
         inner = _rescale_open(s._warmed(), a, b)

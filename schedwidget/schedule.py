@@ -159,6 +159,18 @@ class Schedule:
         warmup's own), else None."""
         return None
 
+    def _pointwise_target(self) -> Schedule | None:
+        """The schedule this node maps tick by tick on the same clock (a scale, a clip), else None."""
+        return None
+
+    def _constant_open(self) -> bool:
+        """Whether this node is open-ended and the same rate at every tick (rescaling moves nothing on its clock)."""
+        return False
+
+    def _ends_at_last_entry(self) -> bool:
+        """Whether this node is a table of rates whose length is its last entry's tick (knots without steps)."""
+        return False
+
     # --------------------------------------------------------------- evaluation
     def __call__(self, t: Any) -> Any:
         """The rate at integer tick(s) ``t``: a float for a scalar, a float64 array for an array."""

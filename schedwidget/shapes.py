@@ -35,6 +35,9 @@ class Flat(ClosedForm):
     def _formula(self):
         return const(self.lr)
 
+    def _constant_open(self):
+        return self.steps is None
+
 
 @node
 class Ramp(ClosedForm):

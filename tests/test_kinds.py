@@ -17,10 +17,10 @@ from schedwidget.schedule import KINDS, Schedule
 
 PACKAGE = Path(sw.__file__).parent
 NODE_MODULES = {"schedule.py", "leaf.py", "shapes.py", "pieces.py", "stages.py", "restarts.py", "combine.py"}
-#: The budget arithmetic asks warmups, stages and restarts through the protocol (``_warmed``, ``_stage_parts``); it
-#: still looks through scales and clips for an open knots node (budget.py) or an open flat rate (rebatch.py) itself,
-#: until those classes (combine.py, shapes.py) answer these two questions through protocol methods of their own.
-ELSEWHERE = {"budget.py": {"Scaled", "Clip", "Knots"}, "rebatch.py": {"Scaled", "Clip", "Flat"}}
+#: No module outside the node classes is exempt: the budget arithmetic asks warmups, stages, restarts, scales, clips,
+#: open flat rates and knots tables through the protocol (``_warmed``, ``_stage_parts``, ``_pointwise_target``,
+#: ``_constant_open``, ``_ends_at_last_entry``).
+ELSEWHERE: dict[str, set[str]] = {}
 
 
 class TestRegistry:
