@@ -214,10 +214,13 @@ class TestNeverBroken:
         assert c.slider.min < np.log10(3.0) < c.slider.max
 
     def test_bad_tick_list_text(self):
-        """Unreadable drop ticks say which item and how to write them."""
+        """Unreadable drop positions say which item of which box, and how to write them (the box now reads
+        positions of the run, so the message names the box 'drops at' and the forms it takes, issue 13)."""
         d = ScheduleDesigner(drops(0.1, at=(30, 60), steps=90), unit="epoch")
         d.control(0, "at").text.value = "30, sixty"
-        assert d.error.startswith("drops: at[1] must be a whole number of ticks, got 'sixty'")
+        assert d.error == ("drops: drops at item 2 must be a position of the run: ticks (34500), epochs of the run "
+                           "('30 ep') or a share of the run ('33 %'); '+25 ep' counts from this stage's start; "
+                           "commas or semicolons between positions, got 'sixty'")
         d.control(0, "at").text.value = "60, 30"
         assert "ticks must increase strictly" in d.error
         d.control(0, "at").text.value = "20, 60"

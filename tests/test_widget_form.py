@@ -101,7 +101,7 @@ class TestParamControl:
         got = []
         c = ParamControl("cosine", "steps", Cosine.params()["steps"], 500, 2000, lambda n, v: got.append(v),
                          context=lambda: ("step", 100, 2000, None))
-        assert c.slider is None and c.text.value == "500" and "5 epochs · 25 % of the run" in c.words.value
+        assert c.slider is None and c.text.value == "500" and "5 epochs · 25\u2009% of the run" in c.words.value
         c.text.value = "3 ep"
         c.text.value = "6 %"
         c.text.value = "1,234"
@@ -113,7 +113,7 @@ class TestParamControl:
         assert isinstance(ParamControl("exp_decay", "staircase", ExpDecay.params()["staircase"], True, 10,
                                        print).text, W.Checkbox)
         c = ParamControl("drops", "at", Drops.params()["at"], (30, 60), 90, print)
-        assert c.text.value == "30, 60"
+        assert c.text.value == "30; 60"  # positions of the run, '; ' between them (a comma also marks thousands)
         k = ParamControl("knots", "points", Knots.params()["points"], ((0, 0.1), (5, 0.01)), 5, print)
         assert k.text.value == "0: 0.1, 5: 0.01"
 

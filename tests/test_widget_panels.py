@@ -101,7 +101,7 @@ class TestStagesPanel:
         """A length box reads the whole run; a rate floor of 0 leaves the log slider at its bottom."""
         d = ScheduleDesigner()
         assert d.control(0, "steps").text.value == "97,750"
-        assert "85 epochs · 94 % of the run" in d.control(0, "steps").words.value
+        assert "85 epochs · 94\u2009% of the run" in d.control(0, "steps").words.value
         floor = d.control(0, "floor")
         assert floor.text.value == "0" and floor.slider.value == pytest.approx(1e-6)
 
@@ -398,7 +398,7 @@ class TestRunIsTheFrame:
         box = d.control("warmup", "steps")
         box.text.value = "6 %"
         assert d.schedule.steps == 6210 and box.text.value == "6,210"
-        assert "5.4 epochs · 6 % of the run" in box.words.value
+        assert "5.4 epochs · 6\u2009% of the run" in box.words.value
         box.text.value = "3 epochs"
         assert d.schedule.steps == 3450
         box.text.value = "three epochs"

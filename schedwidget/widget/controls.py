@@ -21,8 +21,9 @@ text box stays authoritative.  A value set from code is never an echo, however
 small the change: it always becomes the design, so the box, the slider and the
 design agree after any sequence of changes.  Linear
 sliders use round steps (1, 2 or 5 times a power of ten) so common values lie
-on the grid; log sliders hide their readout (the exact box is beside them, and
-a value of 0 would read as the slider's lowest end).
+on the grid.  No slider shows a readout of its own: the exact box is beside every
+slider (a second number beside it only repeated the box, rounded differently, and a
+value of 0 read as a log slider's lowest end).
 """
 
 from __future__ import annotations
@@ -35,6 +36,8 @@ from traitlets import Any as AnyTrait
 from traitlets import validate
 
 from .guard import close_tree
+from .positions import POSITION_FORMS, parse_positions, positions_text, positions_words
+from .theme import pct
 from ..budget import length_words, parse_length, parse_rate
 from ..schedule import Param, as_whole, complain
 
@@ -171,10 +174,13 @@ class ParamControl:
     def __init__(self, owner: str, name: str, p: Param, value: Any, budget: int,
                  on_commit: Callable[[str, Any], None],
                  guard: Callable[[Callable], Callable] = lambda fn: fn, label: str | None = None,
-                 label_width: str | None = None, context: Callable[[], tuple] | None = None) -> None:
+                 label_width: str | None = None, context: Callable[[], tuple] | None = None,
+                 span: Callable[[], tuple[int, int | None]] | None = None) -> None:
         self.owner, self.name, self.p, self.on_commit = owner, name, p, on_commit
         # context() -> (unit, steps per epoch, run total, peak to take shares of); lengths and rates read it
         self.context = context or (lambda: ("step", None, budget, None))
+        # span() -> (the stage's first tick on the run's clock, its length): tick lists are positions of the run
+        self.span = span or (lambda: (0, None))
         self.value = value
         self.words: W.HTML | None = None
         words = label or WORDS.get(name, name)
@@ -212,11 +218,15 @@ class ParamControl:
         elif k == "slider":
             lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
             self.slider = W.FloatSlider(min=lo, max=hi, step=round_step(lo, hi), description=words, tooltip=tip,
-                                        readout_format=".4g", style=style, layout=SLIDER_LAYOUT)
+                                        readout=False, style=style, layout=SLIDER_LAYOUT)
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
+            if p.optional:  # None is allowed: a box to leave the value unset (the shape then works it out)
+                self.none = W.Checkbox(description="not set", indent=False, tooltip="None: " + tip,
+                                       layout={"width": "6.5em", "min_width": "6.5em", "flex": "0 0 auto"})
+                self.slider.layout.width = "14.5em"
         elif k == "int_slider":
             self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=words,
-                                      tooltip=tip, style=style, layout=SLIDER_LAYOUT)
+                                      tooltip=tip, readout=False, style=style, layout=SLIDER_LAYOUT)
             self.text = W.IntText(tooltip=tip, layout=BOX_LAYOUT)
             if p.optional:
                 self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
@@ -226,7 +236,14 @@ class ParamControl:
             self.text = W.Dropdown(options=list(p.choices), description=words, tooltip=tip, style=style)
         elif k == "checkbox":
             self.text = W.Checkbox(description=words, tooltip=tip, indent=False)
-        elif k in ("ticklist", "points"):
+        elif k == "ticklist":
+            self.text = W.Text(description=words, tooltip="positions on the run's clock, counted from the start of "
+                               "the run: " + POSITION_FORMS, continuous_update=False, style=style,
+                               layout={"width": "17em", "flex": "0 0 auto"})
+            self.text.add_class("sw-positions")
+            self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})
+            self.words.add_class("sw-positions-words")
+        elif k == "points":
             self.text = W.Text(description=words, tooltip=tip, continuous_update=False, style=style,
                                layout={"width": "23em"})
         else:
@@ -324,7 +341,10 @@ class ParamControl:
                 if v is not None and not (lo + 0.2 <= v <= hi - 0.2):  # near an end: centre on the value
                     self._recentre(value)
             if k == "ticklist":
-                put(self.text, ", ".join(str(t) for t in value))
+                unit, spe, _total, _peak = self.context()
+                start, _length = self.span()
+                put(self.text, positions_text(tuple(value), start, unit, spe))
+                put(self.words, html_words(positions_words(tuple(value), start, unit, spe)))
             elif k == "points":
                 put(self.text, format_points(value))
             else:
@@ -378,7 +398,10 @@ class ParamControl:
             else:
                 value = None if change["new"] else self.slider.value
         elif self.control == "ticklist":
-            value = parse_ticklist(self.owner, self.name, change["new"])
+            unit, spe, total, _peak = self.context()
+            start, length = self.span()
+            value = parse_positions(change["new"], unit, spe, total, start, length, self.owner,
+                                    WORDS.get(self.name, self.name))
         elif self.control == "points":
             value = parse_points(self.owner, self.name, change["new"])
         elif self.control == "length" and w is self.text:
@@ -395,7 +418,7 @@ class ParamControl:
             # a moved slider shows what the design now holds, also when its value rounded to the design's
             # own (no redraw then, so nothing else would put it back)
             self.show(self.value)
-        elif w is self.text and (self.control == "length" or self.of_peak):
+        elif w is self.text and (self.control in ("length", "ticklist") or self.of_peak):
             self.show(self.value)  # "3 ep" or "1 %" is shown as the value it became
 
     def widgets(self) -> list[W.Widget]:
@@ -404,7 +427,8 @@ class ParamControl:
 
 
 def html_words(text: str) -> str:
-    return f'<span style="color:#4b5563;font-size:12px">{text}</span>' if text else ""
+    """Grey words beside a box (``%`` with a thin space, as everywhere in the widget)."""
+    return f'<span style="color:#4b5563;font-size:12px">{pct(text)}</span>' if text else ""
 
 
 def from_browser(widget: W.Widget, trait: str) -> bool:

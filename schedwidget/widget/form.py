@@ -28,7 +28,7 @@ from ..schedule import Param, Schedule, ScheduleError, complain
 from ..shapes import Cosine, Drops, ExpDecay, Flat, InvSqrt, Knots, OneCycle, Poly, Ramp, Triangle, cosine
 
 __all__ = ["LEAVES", "SHAPE_WORDS", "Warm", "Form", "read_form", "new_stage", "scale_ticks", "fit_total", "rescale",
-           "demo_design", "whole", "filler", "fit_run", "stage_span", "reshape"]
+           "demo_design", "whole", "filler", "fit_run", "stage_span", "reshape", "keep_positions"]
 
 DEMO_STEPS_PER_EPOCH, DEMO_EPOCHS, DEMO_BATCH = 1150, 90, 128
 
@@ -55,8 +55,10 @@ class Warm:
 
     @staticmethod
     def params() -> dict[str, Param]:
-        """Warmup's declared parameters except its target."""
-        return {k: p for k, p in Warmup.params().items() if p.control != "schedule"}
+        """Warmup's declared parameters that the form edits: those it holds (not the target; a parameter the core
+        adds later, such as where the ramp is placed, is left at its default until the form holds it)."""
+        held = {f.name for f in dataclasses.fields(Warm)}
+        return {k: p for k, p in Warmup.params().items() if p.control != "schedule" and k in held}
 
 
 @dataclass(frozen=True)
@@ -113,6 +115,8 @@ def read_form(s: Schedule) -> Form | None:
     """
     warm = None
     if s._warmed() is not None:
+        if getattr(s, "place", "before") != "before":  # a ramp laid over the target: not this form's warmup
+            return None
         warm = Warm(steps=s.steps, start=s.start, curve=s.curve)
         s = s._warmed()
     parts = s._stage_parts()
@@ -203,6 +207,37 @@ def stage_span(form: Form, i: int) -> tuple[int, int | None]:
     for st in form.stages[:i]:
         start += st.length or 0
     return start, form.stages[i].length
+
+
+def keep_positions(old: Form, new: Form) -> Form:
+    """``new`` with each stage's positions (a drops stage's ``at``) kept where they were *on the run's clock*
+    when an edit of another stage moved the stage's start (a shorter warmup leaves "the drop at epoch 30" at
+    epoch 30).  Only stages whose positions the edit left alone, in a form of the same structure, move; a
+    position that would leave its stage keeps its place in the stage instead.
+
+    >>> from schedwidget import drops
+    >>> f = Form((drops(0.1, at=(25,), steps=85),), Warm(5))
+    >>> keep_positions(f, Form(f.stages, Warm(3))).stages[0].at
+    (27,)
+    """
+    if old.signature() != new.signature():
+        return new
+    stages_ = list(new.stages)
+    for i, (a, b) in enumerate(zip(old.stages, new.stages)):
+        shift = stage_span(old, i)[0] - stage_span(new, i)[0]
+        la, lb = leaf_of(a), leaf_of(b)
+        if not shift:
+            continue
+        moved = {}
+        for name, p in type(lb).params().items():
+            if p.control == "ticklist" and getattr(la, name) == getattr(lb, name):
+                at = tuple(t + shift for t in getattr(lb, name))
+                if at and at[0] >= max(1, int(p.lo or 0)) and (lb.length is None or at[-1] < lb.length):
+                    moved[name] = at
+        if moved:
+            leaf = dataclasses.replace(lb, **moved)
+            stages_[i] = leaf if b._repeated() is None else dataclasses.replace(b, target=leaf)
+    return Form(tuple(stages_), new.warm)
 
 
 def reshape(stage: Schedule, kind: str) -> Schedule:

@@ -20,7 +20,8 @@ import numpy as np
 from ..combine import restarts
 from ..schedule import ScheduleError, complain
 from .controls import LABEL, Entry, ParamControl, number_text, put
-from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, leaf_of, new_stage, read_form, reshape
+from .form import (LEAVES, SHAPE_WORDS, Form, Warm, filler, fit_run, keep_positions, leaf_of, new_stage, read_form,
+                   reshape, stage_span)
 from .budget_row import BudgetMethods, BudgetRow
 from .guard import Panel, close_tree
 from .theme import BORDER
@@ -214,13 +215,18 @@ class StagesPanel(BudgetRow, Panel, W.VBox):
                 insert.on_click(self.d.guarded(lambda _b, w=where: self._insert(int(w) + 1)))
                 head = [title, up, down, insert, remove, W.Box([fills, kind, rep], layout={"width": "100%"})]
             parts = ["warm"] if where == "warm" else (["leaf", "repeat"] if obj._repeated() is not None else ["leaf"])
-            for part in parts:
-                target = obj if part != "leaf" else leaf_of(obj)
-                params = Warm.params() if part == "warm" else type(target).params()
-                for name, p in params.items():
-                    if p.control in ("schedule", "schedules"):
-                        continue
-                    rows.append(self._control(where, part, target, name, p))
+            try:
+                for part in parts:
+                    target = obj if part != "leaf" else leaf_of(obj)
+                    params = Warm.params() if part == "warm" else type(target).params()
+                    for name, p in params.items():
+                        if p.control in ("schedule", "schedules"):
+                            continue
+                        rows.append(self._control(where, part, target, name, p))
+            except Exception:  # nothing half-built stays behind in the widget registry
+                for w in [*head, *(c.box for c in rows), *(b for b in boxes)]:
+                    close_tree(w)
+                raise
             head_row = W.HBox(head, layout={"flex_flow": "row wrap", "align_items": "center"})
             box = W.VBox([head_row] + [c.box for c in rows],
                          layout={"border": f"1px solid {BORDER}", "padding": "2px 4px", "margin": "2px 0"})
@@ -245,9 +251,17 @@ class StagesPanel(BudgetRow, Panel, W.VBox):
                 peak = d.facts.peak
             return d.unit, d.steps_per_epoch, d.steps, peak
 
+        def span(w: str = where) -> tuple[int, int | None]:
+            """The stage's first tick on the run's clock and its (first cycle's) length: positions of the run."""
+            form = self.form
+            if form is None or w == "warm" or int(w) >= len(form.stages):
+                return 0, None
+            start, _length = stage_span(form, int(w))
+            return start, leaf_of(form.stages[int(w)]).length
+
         c = ParamControl(owner, name, p, getattr(target, name), self.d.steps,
                          lambda n, v, w=where, pt=part: self._edit(w, pt, n, v), guard=self.d.guarded,
-                         context=context)
+                         context=context, span=span)
         c.part = part  # type: ignore[attr-defined]
         return c
 
@@ -277,6 +291,9 @@ class StagesPanel(BudgetRow, Panel, W.VBox):
         the stage whose own length was typed)."""
         if self.d.schedule.length == self.d.steps or self.d.schedule.length is None:
             form = fit_run(form, self.d.steps, self.fill, keep, edited + (self.d.unit,) if edited else None)
+        old = self.form
+        if old is not None:
+            form = keep_positions(old, form)  # drops stay at their positions of the run when a start moves
         self.d.propose(form.build())
 
     def _edit(self, where: str, part: str, name: str, value: Any) -> None:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import html
 import math
+import re
 import warnings
 
 import ipywidgets as W
@@ -24,7 +25,8 @@ with warnings.catch_warnings():
 
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
-           "rate", "count", "share", "RateAxes", "legend_html", "nice_ceiling"]
+           "rate", "rate_html", "count", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
+           "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
 AMBER = "#b45309"      # cautions
@@ -104,6 +106,10 @@ class Tabs(W.VBox):
 
 # ------------------------------------------------------------------ one number format for the whole widget
 TINY = 1e-9  # a rate this small relative to nothing else is shown as ~0 (the exact value goes in a tooltip)
+THIN = "\u2009"  # thin space: between a number and its % sign, everywhere on screen
+_PERCENT = re.compile(r"(\d)[ \u00a0\u202f]?%")
+#: A number written in exponent form (2.58e-11, 1.554e+04), with no digit or dot glued to its front.
+_EXPONENT = re.compile(r"(?<![\w.])-?\d+(?:\.\d+)?[eE][-+]?\d+(?![\w.])")
 
 
 def rate(x: float) -> str:
@@ -119,14 +125,59 @@ def rate(x: float) -> str:
     return f"{x:.3g}"
 
 
+def rate_html(x: float) -> str:
+    """A rate as HTML: ``rate(x)``, and a tiny value's exact value on hover (a ``title``).
+
+    >>> rate_html(2.58e-11), rate_html(0.1)
+    ('<span title="exactly 2.58e-11">~0</span>', '0.1')
+    """
+    shown = rate(x)
+    return f'<span title="exactly {x!r}">{shown}</span>' if shown == "~0" else html.escape(shown)
+
+
 def count(n: float) -> str:
     """A whole count with thousands separators: ``103,500``."""
     return f"{int(n):,}"
 
 
 def share(x: float) -> str:
-    """A share as a percentage with a space: ``3.3 %``."""
-    return f"{100 * x:.2g} %"
+    """A share as a percentage with a thin space: ``3.3\u2009%``.
+
+    >>> share(0.033) == "3.3" + THIN + "%"
+    True
+    """
+    return f"{100 * x:.2g}{THIN}%"
+
+
+def pct(text: str) -> str:
+    """``text`` with every ``%`` after a number set off by a thin space (``10%``, ``10 %`` -> ``10\u2009%``).
+
+    Words from the core (the facts sentence, length words, messages) go through this on their way to the
+    screen, so one format holds whatever their source writes.
+
+    >>> pct("under 10% of the peak; 6 % of the run") == f"under 10{THIN}% of the peak; 6{THIN}% of the run"
+    True
+    """
+    return _PERCENT.sub(lambda m: m.group(1) + THIN + "%", text)
+
+
+def _tiny(m: re.Match) -> str:
+    v = float(m.group(0))
+    if v != 0 and abs(v) < TINY:
+        return f'<span title="exactly {m.group(0)}">~0</span>'
+    if abs(v) >= 1e4 and float(v).is_integer():
+        return f"{v:,.0f}"
+    return m.group(0)
+
+
+def tidy_html(text: str) -> str:
+    """Plain ``text`` as HTML in the widget's one number format: escaped, ``%`` after a thin space, a tiny
+    number in exponent form as ``~0`` with its exact value on hover, a large whole one with separators.
+
+    >>> tidy_html("ends at 2.58e-11 at step 9, half-life 1.554e+04 steps")
+    'ends at <span title="exactly 2.58e-11">~0</span> at step 9, half-life 15,540 steps'
+    """
+    return _EXPONENT.sub(_tiny, pct(html.escape(text)))
 
 
 def nice_ceiling(x: float) -> float:
@@ -211,5 +262,6 @@ def legend_html(rows: list[tuple[str, str, float]]) -> str:
         out.append(f'<div class="sw-legend-item" style="display:flex;align-items:center;gap:6px;'
                    f'font-size:12px;line-height:1.5;white-space:nowrap;overflow:hidden;text-overflow:ellipsis">'
                    f'<span style="display:inline-block;width:18px;height:3px;background:{colour};flex:0 0 auto">'
-                   f'</span><span title="{html.escape(name)} (last rate {rate(last)})">{html.escape(name)}</span></div>')
+                   f'</span><span title="{html.escape(name)} (last rate {rate(last)}, exactly {last!r})">'
+                   f'{html.escape(name)}</span></div>')
     return "".join(out)
