@@ -21,7 +21,7 @@ from typing import Any
 from .schedule import MAX_TICKS, Schedule, ScheduleError, as_whole, complain, param
 
 __all__ = ["Budget", "check_length", "scale_for_batch", "parse_length", "parse_rate", "length_words", "absorb",
-           "ROUNDING", "LENGTH_FORMS", "RATE_FORMS", "Rescaled", "rescale_for_batch", "scale_node", "absorb_rounding"]
+           "ROUNDING", "ROUNDINGS", "share_ticks", "LENGTH_FORMS", "RATE_FORMS", "Rescaled", "rescale_for_batch", "scale_node", "absorb_rounding"]
 
 
 @dataclass(frozen=True)
@@ -121,6 +121,21 @@ class Budget:
             raise complain("Budget.steps_to_epochs", "steps", steps, "a whole number >= 0 and <= 2**53")
         return n / self.steps_per_epoch
 
+    def share(self, fraction: float, unit: str = "step", rounding: str = "up") -> int:
+        """``fraction`` (0 to 1) of the run as whole ticks of ``unit``, rounded by ``rounding``.
+
+        ``rounding`` is "up" (the default: common practice, no source; trainers that take a warmup as a ratio
+        of the updates round it up), "down" or "nearest" (halves up).  The product is exact: ``0.07`` of 100
+        updates is 7 (0.07 * 100 is 7.000000000000001 in floats, which rounding up would make 8).
+
+        >>> b = Budget(samples=14_976, batch=32, epochs=3)          # 468 updates per epoch, 1,404 in all
+        >>> b.share(0.06), b.share(0.06, rounding="down"), b.share(0.1, unit="epoch")
+        (85, 84, 1)
+        """
+        if not isinstance(unit, str) or unit not in ("step", "epoch"):
+            raise complain("Budget.share", "unit", unit, "one of 'step', 'epoch'")
+        return share_ticks(fraction, self.length(unit), rounding, "Budget.share", "fraction")
+
     def describe(self, unit: str = "step") -> str:
         """The budget in words, e.g. ``90 epochs x 1,150 steps = 103,500 steps``."""
         if not isinstance(unit, str) or unit not in ("step", "epoch"):
@@ -193,7 +208,7 @@ def _open_knots(s: Schedule):
 
 
 # the rest of the budget arithmetic, one module per purpose (imported last: they import Budget from here)
-from .lengths import (LENGTH_FORMS, RATE_FORMS, ROUNDING, absorb, length_words, parse_length,  # noqa: E402
-                      parse_rate)
+from .lengths import (LENGTH_FORMS, RATE_FORMS, ROUNDING, ROUNDINGS, absorb, length_words,  # noqa: E402
+                      parse_length, parse_rate, share_ticks)
 from .proportion import absorb_rounding, scale_node  # noqa: E402
 from .rebatch import Rescaled, rescale_for_batch, scale_for_batch  # noqa: E402

@@ -348,17 +348,28 @@ def stages(*parts: Schedule) -> Schedule:
     return Stages(parts=tuple(flatparts))
 
 
-def warmup(target: Schedule, steps: int, start: float = 0.0, curve: str = "linear") -> Schedule:
-    """A ramp from ``start`` up to ``target(0)`` over ``steps`` ticks, then ``target``.
+def warmup(target: Schedule, steps: int, start: float = 0.0, curve: str = "linear",
+           place: str = "before") -> Schedule:
+    """A ramp from ``start`` over ``steps`` ticks into ``target``, placed before it or over its first ticks.
 
-    The peak lands at tick ``steps``.
+    ``place="before"`` (the default): the ramp rises to ``target(0)`` and ``target`` follows on its own
+    clock, so the peak lands at tick ``steps`` and the length is ``steps + target.length``.
 
-    >>> from schedwidget import cosine
+    ``place="over"``: the ramp is laid over the first ``steps`` ticks of ``target`` on the run's clock: it
+    rises from ``start`` to ``target(steps)`` on ``[0, steps)``, and from ``t = steps`` on the rate is
+    ``target(t)``; the length is ``target.length`` and the target's drops and restarts keep their run
+    positions (Goyal et al. 2017, section 2.2: 5 epochs of gradual warmup in a run whose drops are
+    counted from its start).  ``steps`` may not exceed the target's length.
+
+    >>> from schedwidget import cosine, drops
     >>> s = warmup(cosine(0.1, steps=100), steps=10)
     >>> s(0), s(5), s(10)
     (0.0, 0.05, 0.1)
+    >>> g = warmup(drops(3.2, at=(30, 60, 80), steps=90), 5, start=0.1, place="over")
+    >>> g.length, g(0), g(5), g(29), round(g(30), 12)
+    (90, 0.1, 3.2, 3.2, 0.32)
     """
-    return Warmup(target=target, steps=steps, start=start, curve=curve)
+    return Warmup(target=target, steps=steps, start=start, curve=curve, place=place)
 
 
 def restarts(target: Schedule, cycles: int | None = None, growth: float = 1.0,

@@ -56,6 +56,10 @@ class Facts:
     joins: tuple[int, ...]
     boundary: tuple[tuple[str, int, float], ...]
     half_life: float | None
+    #: the half-life in epochs when steps per epoch are known (unit "step") or the clock counts epochs, else None
+    half_life_epochs: float | None = None
+    #: where the design's warmup goes ("before" its schedule or "over" its first ticks), None without a warmup
+    warmup_place: str | None = None
     #: first tick at or after the peak where the rate is down to 10 % (1 %) of the peak or below,
     #: within ``LEVEL_TOLERANCE`` relative (so an exact x0.1 drop counts at its own tick); None if never.
     under_10: int | None
@@ -91,8 +95,21 @@ def _half_life(s: Schedule) -> tuple[float, float, int] | None:
     return None
 
 
-def _g(x: float) -> str:
+#: A rate this far under the peak (relative) reads "~0" in the sentence, with its exact value beside it: a
+#: cosine to 0 is 2.58e-11 one tick before its end over 100,000 ticks, which reads as 0 to anyone.
+NEAR_ZERO = 1e-9
+
+
+def _g(x: float, peak: float | None = None) -> str:
+    """A rate to 3 significant digits; a positive rate under ``NEAR_ZERO`` of ``peak`` as ``~0 (2.58e-11)``."""
+    if peak is not None and x != 0 and abs(x) < NEAR_ZERO * peak:
+        return f"~0 ({x:.3g})"
     return f"{x:.3g}"
+
+
+def _amount(x: float) -> str:
+    """A count of ticks or epochs: 3 significant digits, whole with thousands separators from 1,000 on."""
+    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.3g}"
 
 
 def _when(t: float, unit: str, spe: int | None) -> str:
@@ -100,6 +117,59 @@ def _when(t: float, unit: str, spe: int | None) -> str:
     if spe and unit == "step":
         words += f" (epoch {t / spe:.1f})"
     return words
+
+
+def _span_words(t: float, unit: str, spe: int | None) -> str:
+    """A length: ``5 epochs`` or ``5,750 steps (5 epochs)``."""
+    words = f"{t:,.0f} {unit}{'' if t == 1 else 's'}"
+    if spe and unit == "step":
+        words += f" ({t / spe:,.3g} epochs)"
+    return words
+
+
+def _jumps(s: Schedule, brk: np.ndarray, joins: np.ndarray) -> list[tuple[int, str, float, float]]:
+    """Each jump that is not a stage join, as (tick, word, rate before, rate after).
+
+    A fall is a "drop"; a rise is a "restart" when the design repeats a cycle (a node's ``_repeated``), else a
+    "rise".  The words come from the rates and the protocol, never from asking which class a node is.
+    """
+    ticks = np.setdiff1d(brk.astype(np.int64), joins.astype(np.int64))
+    if not ticks.size:
+        return []
+    y = at_ticks(s, np.concatenate([ticks - 1, ticks]))
+    before, after = y[:ticks.size], y[ticks.size:]
+    up = "restart" if _repeats(s) else "rise"
+    return [(int(t), "drop" if a < b else up, float(b), float(a))
+            for t, b, a in zip(ticks.tolist(), before.tolist(), after.tolist())]
+
+
+def _repeats(s: Schedule) -> bool:
+    """Whether any node of ``s`` repeats a cycle (restarts), without recursion."""
+    stack = [s]
+    while stack:
+        node = stack.pop()
+        if node._repeated() is not None:
+            return True
+        stack.extend(node.children())
+    return False
+
+
+def warmup_of(s: Schedule) -> tuple[str, float] | None:
+    """(place, length in ticks) of the design's own warmup: ``s`` or what it scales, clips or stretches; else None.
+
+    A warmup inside restarts or a later stage is part of that cycle or stage, not the design's warmup.
+    """
+    scale = 1.0
+    while True:
+        if s._warmed() is not None:
+            return str(s.place), float(s.steps) * scale
+        inner = s._pointwise_target()
+        if inner is None and s._unstretched() is not s:
+            inner = s._unstretched()
+            scale *= s.length / inner.length
+        if inner is None:
+            return None
+        s = inner
 
 
 def _cautions(s: Schedule, f0: float, peak: float, n: int, batch: int | None, unit: str) -> list[str]:
@@ -184,20 +254,29 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
     first, final, after = float(ends[0]), float(ends[1]), float(ends[2])
     before_join, after_join = ends[3:3 + joins.size], ends[3 + joins.size:]
     rows: list[tuple[str, int, float]] = [("first tick", 0, first)]
-    for i, j in enumerate(joins.tolist()):
-        # numbered by join, not by stage: the designer numbers its stages its own way (warmup apart, from 0)
-        rows.append((f"join {i + 1}: last tick before", j - 1, float(before_join[i])))
-        rows.append((f"join {i + 1}: first tick after", j, float(after_join[i])))
+    events = [(j, "join", float(before_join[i]), float(after_join[i])) for i, j in enumerate(joins.tolist())]
+    events += _jumps(s, brk, joins)
+    events.sort(key=lambda e: e[0])  # by tick; a jump at a join is the join's own row
+    counts: dict[str, int] = {}
+    for j, word, before, after_ in events:
+        # numbered by kind, not by stage: the designer numbers its stages its own way (warmup apart, from 0)
+        counts[word] = k = counts.get(word, 0) + 1
+        rows.append((f"{word} {k}: last tick before", j - 1, before))
+        rows.append((f"{word} {k}: first tick after", j, after_))
     rows.append(("last tick", n - 1, final))
     rows.append(("held after the budget", n, after))
     under_10, under_1 = _first_under(s, grid, n, peak_at, (0.1 * peak, 0.01 * peak)) if peak > 0 else (None, None)
     hl = _half_life(s)
+    hl_epochs = None if hl is None else (hl[0] if unit == "epoch" else
+                                         hl[0] / steps_per_epoch if steps_per_epoch else None)
+    warm = warmup_of(s)
     sentence = _sentence(s, n, unit, steps_per_epoch, first, peak, peak_at, final, after,
-                         hl, under_10, len(brk), exact)
+                         hl, under_10, len(brk), exact, warm)
     return Facts(unit=unit, steps=n, steps_per_epoch=steps_per_epoch, exact=exact, first=first, peak=peak,
                  peak_at=peak_at, minimum=low, minimum_at=low_at, final=final, after=after, mean=total / size,
                  area=area, breaks=tuple(brk.tolist()), joins=tuple(joins.tolist()), boundary=tuple(rows),
-                 half_life=hl[0] if hl else None, under_10=under_10, under_1=under_1,
+                 half_life=hl[0] if hl else None, half_life_epochs=hl_epochs,
+                 warmup_place=None if warm is None else warm[0], under_10=under_10, under_1=under_1,
                  cautions=tuple(_cautions(s, first, peak, n, batch, unit)), sentence=sentence)
 
 
@@ -208,22 +287,35 @@ def _whole_or_none(owner: str, name: str, value) -> int:
     return n
 
 
-def _sentence(s, n, unit, spe, first, peak, peak_at, final, after, hl, under_10, nbreaks, exact) -> str:
+def _sentence(s, n, unit, spe, first, peak, peak_at, final, after, hl, under_10, nbreaks, exact, warm=None) -> str:
     approx = "" if exact else " (read from a grid of ticks; the budget is too long to read every one)"
     if hl is not None and peak > 0:
         life, factor, every = hl
-        per = unit if every == 1 else f"{every} {unit}s"
-        return (f"x{factor:g} per {per}: half-life {life:.3g} {unit}s; after {n:,} {unit}s "
-                f"the rate is {after / peak:.3g} of the peak ({after:.3g}){approx}.")
-    parts = [f"Starts at {_g(first)}"]
+        per = unit if every == 1 else f"{every:,} {unit}s"
+        life_words = f"{_amount(life)} {unit}s" + (f" ({_amount(life / spe)} epochs)" if spe and unit == "step" else "")
+        return (f"x{factor:g} per {per}: half-life {life_words}; after {n:,} {unit}s "
+                f"the rate is {after / peak:.3g} of the peak ({_g(after, peak)}){_warm_words(warm, unit, spe)}"
+                f"{approx}.")
+    parts = [f"Starts at {_g(first, peak)}"]
     if peak_at > 0:
         parts.append(f"peaks at {_g(peak)} at {_when(peak_at, unit, spe)}")
     else:
         parts[0] = f"Starts at its peak {_g(peak)}"
-    parts.append(f"ends at {_g(final)} at {_when(n - 1, unit, spe)}")
+    parts.append(f"ends at {_g(final, peak)} at {_when(n - 1, unit, spe)}")
     text = ", ".join(parts)
     if under_10 is not None:
-        text += f"; under 10% of the peak from {_when(under_10, unit, spe)}"
+        text += f"; under 10 % of the peak from {_when(under_10, unit, spe)}"
     if nbreaks:
         text += f"; {nbreaks} jump{'s' if nbreaks != 1 else ''}"
-    return text + approx + "."
+    return text + _warm_words(warm, unit, spe) + approx + "."
+
+
+def _warm_words(warm: tuple[str, float] | None, unit: str, spe: int | None) -> str:
+    """Which warmup the design has: before its schedule (whose ticks then start later) or over its first ticks."""
+    if warm is None:
+        return ""
+    place, steps = warm
+    length = _span_words(steps, unit, spe)
+    if place == "over":
+        return f"; warmup laid over the schedule's first {length}"
+    return f"; warmup of {length} before the schedule"

@@ -4,23 +4,82 @@ and the stage that absorbs the rest of the run (``absorb``).  Part of the budget
 from __future__ import annotations
 
 import math
+from decimal import Decimal
+from fractions import Fraction
 from numbers import Real
 from typing import Any
 
 from .schedule import MAX_TICKS, as_whole, complain
 
-__all__ = ["parse_length", "parse_rate", "length_words", "absorb", "ROUNDING", "LENGTH_FORMS", "RATE_FORMS"]
+__all__ = ["parse_length", "parse_rate", "length_words", "absorb", "share_ticks", "ROUNDING", "ROUNDINGS",
+           "LENGTH_FORMS", "RATE_FORMS"]
 
 
 # ------------------------------------------------------------------ lengths and rates as people write them
 #: The rounding rule for lengths that are not whole ticks (shown on screen beside the length boxes).
 ROUNDING = ("a share of the run or a fraction of an epoch rounds up to a whole tick "
             "(common practice, no source: trainers round warmup shares up)")
+#: How a share of the run that is not a whole tick becomes one (``share_ticks``, ``Budget.share``): "up" (the
+#: default: common practice, no source; trainers that take a warmup as a ratio of the updates round it up), "down"
+#: or "nearest" (halves up).  Our own names.
+ROUNDINGS = ("up", "down", "nearest")
 LENGTH_FORMS = "a whole number of ticks (3450), epochs ('3 ep'), steps ('3450 steps') or a share of the run ('6 %')"
 RATE_FORMS = "a rate (3e-4, 0.001) or a share of the peak ('1 %')"
 _TEXT_LIMIT = 64
 _EPOCH_WORDS = ("ep", "eps", "epoch", "epochs")
 _STEP_WORDS = ("st", "step", "steps", "it", "iter", "iters", "update", "updates")
+
+
+def _exact(x: Real) -> Fraction:
+    """``x`` as an exact fraction: a float is read as the shortest decimal that gives it back (what was typed), so
+    ``0.07`` is 7/100, not the binary float just above it, and 0.07 of 100 ticks is 7, never 7.000000000000001."""
+    if isinstance(x, int):
+        return Fraction(x)
+    if isinstance(x, Fraction):
+        return x
+    return Fraction(Decimal(repr(float(x))))
+
+
+def _rounded(x: Fraction, rounding: str) -> int:
+    if rounding == "up":
+        return math.ceil(x)
+    if rounding == "down":
+        return math.floor(x)
+    return math.floor(x + Fraction(1, 2))  # nearest, halves up
+
+
+def _rounding(owner: str, rounding: Any) -> str:
+    if not isinstance(rounding, str) or rounding not in ROUNDINGS:
+        raise complain(owner, "rounding", rounding, "one of " + ", ".join(repr(r) for r in ROUNDINGS),
+                       "'up' (the default) never gives a share less than asked, as trainers do with a warmup ratio")
+    return rounding
+
+
+def share_ticks(fraction: Any, total: Any, rounding: str = "up", owner: str = "share", name: str = "fraction") -> int:
+    """``fraction`` of a run of ``total`` ticks, as whole ticks, rounded by ``rounding`` (``ROUNDINGS``).
+
+    The product is exact: a float fraction is read as the decimal it was written as, so no float artefact moves
+    the result by a tick.  "up" is the default (common practice, no source: trainers that take the warmup as a
+    ratio of the updates round it up); "down" and "nearest" (halves up) are the other two.
+
+    >>> share_ticks(0.06, 1404), share_ticks(0.06, 1404, "down"), share_ticks(0.06, 1404, "nearest")
+    (85, 84, 84)
+    >>> share_ticks(0.07, 100)          # 0.07 * 100 is 7.000000000000001 in floats
+    7
+    """
+    rounding = _rounding(owner, rounding)
+    ok = isinstance(fraction, Real) and not isinstance(fraction, bool)
+    try:
+        ok = ok and math.isfinite(fraction) and 0 <= fraction <= 1
+    except (OverflowError, TypeError, ValueError):
+        ok = False
+    if not ok:
+        raise complain(owner, name, fraction, "a share of the run between 0 and 1 (0.06 for 6 %)",
+                       "a share in percent is written '6 %' in a length box")
+    n = as_whole(total)
+    if n is None or not 0 <= n <= MAX_TICKS:
+        raise complain(owner, "total", total, "a whole number of ticks >= 0 and <= 2**53")
+    return _rounded(_exact(fraction) * n, rounding)
 
 
 def _number(text: str) -> float | None:
@@ -78,18 +137,18 @@ def parse_length(text: Any, unit: str = "step", steps_per_epoch: int | None = No
             raise complain(owner, name, text, "a length in ticks or epochs", "a share needs the run's total length")
         if v > 100:
             raise complain(owner, name, text, "a share of the run between 0 % and 100 %")
-        ticks = math.ceil(total * v / 100 - 1e-9)
+        ticks = share_ticks(_exact(v) / 100, total, "up", owner, name)  # exact: 7 % of 100 is 7, not 8
     elif word in _EPOCH_WORDS or word in _STEP_WORDS:
         given = "epoch" if word in _EPOCH_WORDS else "step"
         if given == unit:
-            ticks = math.ceil(v - 1e-9)
+            ticks = math.ceil(_exact(v))
         elif not steps_per_epoch:
             raise complain(owner, name, text, f"a length in {unit}s",
                            "steps per epoch are unknown, so epochs and steps cannot be converted")
         elif given == "epoch":
-            ticks = math.ceil(v * steps_per_epoch - 1e-9)
+            ticks = math.ceil(_exact(v) * steps_per_epoch)
         else:
-            ticks = math.ceil(v / steps_per_epoch - 1e-9)
+            ticks = math.ceil(_exact(v) / steps_per_epoch)
     elif word:
         raise complain(owner, name, text, LENGTH_FORMS)
     else:

@@ -14,10 +14,13 @@ import numpy as np
 
 from .codegen import num
 from .leaf import node
-from .schedule import EDGE_CAP, MAX_TICKS, Schedule, complain, param, window
+from .schedule import EDGE_CAP, MAX_TICKS, Schedule, complain, literal, param, window
 from .shapes import Ramp
 
-__all__ = ["Stages", "Warmup"]
+__all__ = ["Stages", "Warmup", "PLACES"]
+
+#: Where a warmup goes: in front of its target (its own clock starts after the warmup) or over its first ticks.
+PLACES = ("before", "over")
 
 
 def _cap(x: np.ndarray) -> np.ndarray:
@@ -224,50 +227,82 @@ class Stages(Schedule):
 
 @node
 class Warmup(Schedule):
-    """A ramp from ``start`` to the target's first rate over ``steps`` ticks, then the target."""
+    """A ramp from ``start`` into a target over ``steps`` ticks, placed before the target or over its first ticks.
+
+    ``place="before"``: the ramp ends at the target's first rate, then the target runs on its own clock
+    (length ``steps + target.length``; the peak lands at tick ``steps``).  ``place="over"``: the ramp is laid
+    over the first ``steps`` ticks of the target on the run's clock: it rises from ``start`` to
+    ``target(steps)`` on ``[0, steps)`` and the rate is ``target(t)`` from ``t = steps`` on (length
+    ``target.length``; the target's drops and restarts keep their run positions, Goyal et al. 2017 as written).
+    """
 
     kind: ClassVar[str] = "warmup"
     target: Schedule = param(kind="schedule", doc="the schedule the warmup leads into")
-    steps: int = param(kind="ticks", lo=1, soft=(1, 20_000), doc="warmup length; the peak lands at this tick")
+    steps: int = param(kind="ticks", lo=1, soft=(1, 20_000), doc="warmup length; the ramp hands over at this tick")
     start: float = param(0.0, kind="rate", lo=0.0, soft=(0.0, 1.0), doc="rate at tick 0")
     curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine"),
                        doc="shape of the warmup ramp")
-    _stages: Stages = field(init=False, repr=False, compare=False)  # derived once, for evaluation
+    place: str = param("before", kind="choice", choices=PLACES,
+                       doc="'before': the warmup comes first, then the target on its own clock; "
+                           "'over': laid over the target's first ticks on the run's clock",
+                       hint="'before' adds the warmup to the length; 'over' keeps the target's ticks where they are")
+    _stages: Stages | None = field(init=False, repr=False, compare=False)  # derived once (place="before")
+    _ramp: Schedule = field(init=False, repr=False, compare=False)  # the warmup ramp itself, derived once
+    _ceil: float = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         _schedule("warmup", "target", self.target)
         self._validate()
         n = self.target.length
         if n is not None and self.steps > n:
+            if self.place == "over":
+                raise complain("warmup", "steps", self.steps, f"<= {n} (the length of the schedule it is laid over)",
+                               "with place='over' the warmup covers the target's first ticks, so it cannot be "
+                               "longer than the target; place='before' puts it in front instead")
             raise complain("warmup", "steps", self.steps, f"<= {n} (the length of the schedule it leads into)",
                            "a warmup longer than the run it warms up is usually a steps/epochs mix-up")
         if self.curve == "geometric" and self.start <= 0:
             raise complain("warmup", "start", self.start, "a rate > 0 with curve='geometric'",
                            "a geometric warmup multiplies by a constant ratio from start; pass start=peak/100, say")
-        # building the ramp validates start/curve against the target's first rate
-        ramp = Ramp(start=self.start, end=self.target(0), steps=self.steps, curve=self.curve)
-        object.__setattr__(self, "_stages", Stages(parts=(ramp, self.target)))
+        # the rate the ramp reaches: the target's first rate (before), or the target's own rate at tick
+        # ``steps`` on the run's clock (over), read from the target itself so the handover is exact
+        end = self.target(0) if self.place == "before" else self.target(int(self.steps))
+        if self.curve == "geometric" and end <= 0:
+            where = "first rate" if self.place == "before" else f"rate at tick {self.steps}"
+            raise complain("warmup", "target", self.target, f"a schedule whose {where} is > 0 with curve='geometric'",
+                           "a geometric warmup cannot end at 0; use curve='linear'")
+        ramp = Ramp(start=self.start, end=end, steps=self.steps, curve=self.curve)
+        object.__setattr__(self, "_ramp", ramp)
+        object.__setattr__(self, "_stages", Stages(parts=(ramp, self.target)) if self.place == "before" else None)
+        object.__setattr__(self, "_ceil", max(ramp._top(), self.target._top()))
 
     def _top(self) -> float:
-        return self._stages._top()
+        return self._ceil
 
     def ramp(self) -> Schedule:
-        """The warmup ramp itself."""
-        return self._stages.parts[0]
+        """The warmup ramp itself (on ``[0, steps)`` of the run's clock, whichever the place)."""
+        return self._ramp
 
     def as_stages(self) -> Stages:
-        """The same design as two plain stages: the ramp, then the target."""
+        """The same design as two plain stages: the ramp, then the target (``place="before"`` only)."""
+        if self._stages is None:
+            raise complain("warmup", "place", self.place, "'before' for as_stages()",
+                           "a warmup laid over its target's first ticks is not two stages one after the other")
         return self._stages
 
     @property
     def length(self) -> int | None:
         n = self.target.length
+        if self.place == "over":
+            return n
         return None if n is None else n + self.steps
 
     def children(self):
         return (self.target,)
 
     def _window(self) -> int:
+        if self.place == "over":  # the target's own window, and at least the handover plus a quarter
+            return max(window(self.target), self.steps + max(1, math.ceil(self.steps / 4)))
         return self.steps + window(self.target)
 
     def _lead_in(self) -> int:
@@ -276,17 +311,74 @@ class Warmup(Schedule):
     def _warmed(self) -> Schedule:
         return self.target
 
+    def __repr__(self) -> str:
+        # place="before" is the default and written only when it is not: reprs of earlier designs stay the same
+        names = [n for n in self.params() if n != "place" or self.place != "before"]
+        return "warmup(" + ", ".join(f"{n}={literal(getattr(self, n))}" for n in names) + ")"
+
+    # ------------------------------------------------------------ evaluation: two places
     def _source(self, w, u, bound, ind, sink):
-        w.emit(self.as_stages(), u, bound, ind, sink)
+        if self._stages is not None:
+            w.emit(self._stages, u, bound, ind, sink)
+            return
+        ramp, target, cut = self._ramp, self.target, float(self.steps)
+
+        def branch(i, j):
+            if i == 0:  # u < steps: the ramp on the run's clock, which cannot pass its length
+                w.emit(ramp, u, cut, j, sink)
+            else:  # the target on the run's own clock (as _at: read held)
+                v, pb = w.held(target, u, bound, j)
+                w.emit(target, v, pb, j, sink)
+        w.chain(u, ind, [cut], branch)
 
     def _at(self, u):
-        return self.as_stages()._at(u)
+        if self._stages is not None:
+            return self._stages._at(u)
+        u = np.asarray(u, dtype=float)
+        cut = float(self.steps)
+        out = np.empty(np.shape(u))
+        flat_u, flat_out = u.reshape(-1), out.reshape(-1)
+        early = flat_u < cut
+        if early.all():
+            flat_out[:] = self._ramp._at(flat_u)
+        elif not early.any():
+            flat_out[:] = self.target._held(flat_u)
+        else:
+            flat_out[early] = self._ramp._at(flat_u[early])
+            flat_out[~early] = self.target._held(flat_u[~early])
+        return out
 
     def _edges(self, hi):
-        return self.as_stages()._edges(hi)
+        if self._stages is not None:
+            return self._stages._edges(hi)
+        cut = float(self.steps)
+        if hi < cut:
+            return np.empty(0)
+        # the handover (a possible jump, as a stage join is) and the target's own jumps after it; a jump of the
+        # target inside [0, steps) is covered by the ramp and never happens
+        inner = self.target._edges(hi)
+        return _cap(np.concatenate([[cut], inner[inner > cut]]))
 
     def _joins(self):
-        return self.as_stages()._joins()
+        if self._stages is not None:
+            return self._stages._joins()
+        cut = float(self.steps)
+        inner = self.target._joins()
+        return np.unique(np.concatenate([[cut], inner[inner > cut]]))
 
     def _range(self, a, b):
-        return self.as_stages()._range(a, b)
+        if self._stages is not None:
+            return self._stages._range(a, b)
+        cut = float(self.steps)
+        shape = np.shape(a)
+        a, b = np.asarray(a, float).reshape(-1), np.asarray(b, float).reshape(-1)
+        lo, hi = np.full(a.size, np.inf), np.full(a.size, -np.inf)
+        early = a < cut  # meets the ramp: [a, min(b, steps)] (the ramp reaches target(steps) at steps exactly)
+        if early.any():
+            rlo, rhi = self._ramp._span(a[early], np.minimum(b[early], cut))
+            lo[early], hi[early] = rlo, rhi
+        late = b >= cut  # meets the target: [max(a, steps), b]
+        if late.any():
+            tlo, thi = self.target._span(np.maximum(a[late], cut), b[late])
+            lo[late], hi[late] = np.minimum(lo[late], tlo), np.maximum(hi[late], thi)
+        return lo.reshape(shape), hi.reshape(shape)

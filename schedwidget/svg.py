@@ -18,6 +18,7 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
+from .facts import warmup_of
 from .sample import Trace, budget_of, trace
 from .schedule import OPEN_WINDOW, Schedule, complain, window
 
@@ -240,8 +241,13 @@ def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: 
     p = _Plot(n, [cur.y, cur.band_hi, *[t.y for _, t in others], *[t.band_hi for _, t in others]],
               bool(log), int(width), int(height), TOP)
     title = f"learning-rate schedule over {n:,} {unit}s" + (f", with {len(others)} pinned" if others else "")
+    warm = warmup_of(s)  # which warmup the design has, in the title a reader hovers over and as data
+    if warm is not None:
+        title += (f"; warmup laid over the first {warm[1]:,.0f} {unit}s" if warm[0] == "over"
+                  else f"; warmup of {warm[1]:,.0f} {unit}s before the schedule")
+    place = "" if warm is None else f' data-warmup="{warm[0]}"'
     body = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
-            f'viewBox="0 0 {width} {height}" font-family="sans-serif" data-steps="{n}">',
+            f'viewBox="0 0 {width} {height}" font-family="sans-serif" data-steps="{n}"{place}>',
             f"<title>{_xml(title, 200)}</title>",
             f'<rect width="{width}" height="{height}" fill="#ffffff"/>']
     body += _axes(p, unit, steps_per_epoch)
