@@ -2,7 +2,7 @@
 as generated source from the same nodes, so the two cannot drift apart.
 
 A leaf builds its formula from ``clock()`` (the real clock ``u``), numbers and the operators ``+ - * / **``
-and ``cos``, ``exp``, ``floor``; ``evaluate(u)`` gives the float64 array (in place where a node owns its
+and ``cos``, ``exp``, ``floor``, ``sqrt``; ``evaluate(u)`` gives the float64 array (in place where a node owns its
 intermediate array, as hand-written numpy would) and ``source(u)`` the expression for ``math``-only code.
 Both apply the same operations in the same order; the differential tests compare them at every tick.
 """
@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["Formula", "clock", "const", "cos", "exp", "floor"]
+__all__ = ["Formula", "clock", "const", "cos", "exp", "floor", "sqrt"]
 
 _NP = {"+": np.add, "-": np.subtract, "*": np.multiply, "/": np.divide, "**": np.power}
 _COMMUTES = {"+", "*"}
@@ -116,7 +116,7 @@ class _Bin(Formula):
 class _Call(Formula):
     __slots__ = ("name", "arg")
 
-    _NP = {"cos": np.cos, "exp": np.exp, "floor": np.floor}
+    _NP = {"cos": np.cos, "exp": np.exp, "floor": np.floor, "sqrt": np.sqrt}
 
     def __init__(self, name: str, arg: Formula) -> None:
         self.name, self.arg = name, arg
@@ -170,3 +170,8 @@ def exp(x: Formula) -> Formula:
 
 def floor(x: Formula) -> Formula:
     return _Call("floor", _term(x))
+
+
+def sqrt(x: Formula) -> Formula:
+    """The square root (numpy's and ``math.sqrt`` are both correctly rounded, so the two outputs agree bit for bit)."""
+    return _Call("sqrt", _term(x))

@@ -21,20 +21,39 @@ __all__ = ["triangle", "one_cycle", "knots"]
 
 @node
 class Triangle(_Leaf):
-    """Triangular cycles between ``low`` and ``high`` (Smith 2017); amplitude times ``shrink`` each cycle."""
+    """Triangular cycles between ``low`` and ``high`` (Smith 2017); amplitude times ``shrink`` each cycle.
+
+    A cycle rises for ``half_period`` ticks and falls for ``fall`` ticks (``half_period`` when None: the
+    symmetric cycle of Smith 2017, eq. (1)-(3)).
+    """
 
     kind: ClassVar[str] = "triangle"
     low: float = _rate("rate at the start of every cycle")
     high: float = _rate("rate at the apex of the first cycle")
-    half_period: int = param(kind="ticks", lo=1, soft=(1, 20_000), doc="ticks from low to apex")
+    half_period: int = param(kind="ticks", lo=1, soft=(1, 20_000), doc="ticks from low to apex (the rise)")
     shrink: float = param(1.0, kind="ratio", lo=0.0, lo_open=True, hi=1.0, soft=(0.3, 1.0),
                           doc="amplitude multiplier per cycle; 0.5 halves it each cycle")
     steps: int | None = _steps(optional=True)
+    fall: int | None = param(None, kind="ticks", lo=1, soft=(1, 20_000), optional=True,
+                             doc="ticks from the apex back to low; None: half_period (a symmetric cycle)")
 
     def __post_init__(self) -> None:
         self._validate()
         if self.low > self.high:
             raise complain("triangle", "low", self.low, f"<= high = {self.high!r}")
+        if self.fall is not None and self.half_period + self.fall > MAX_TICKS:
+            raise complain("triangle", "fall", self.fall, f"a whole number <= {MAX_TICKS - self.half_period}",
+                           "a cycle (half_period + fall) must stay within 2**53 ticks")
+
+    def __repr__(self) -> str:
+        text = Schedule.__repr__(self)  # fall=None (the default) is left out, so older reprs read the same
+        return text.replace(", fall=None)", ")") if self.fall is None else text
+
+    def _even(self) -> bool:
+        return self.fall is None or self.fall == self.half_period
+
+    def _period(self) -> float:
+        return float(self.half_period) * 2.0 if self._even() else float(self.half_period + self.fall)
 
     def _cycle(self, u):
         return np.floor(1.0 + u / (2.0 * self.half_period))
@@ -42,30 +61,43 @@ class Triangle(_Leaf):
     def _source(self, w, u, bound, ind, sink):
         h = float(self.half_period)
         c, x = w.fresh("c"), w.fresh("x")
-        w.put(ind, f"{c} = math.floor(1.0 + {u} / {num(2.0 * h)})  # cycle number, from 1")
-        w.put(ind, f"{x} = abs({u} / {num(h)} - 2.0 * {c} + 1.0)")
-        rest = f"max(0.0, 1.0 - {x})" + ("" if self.shrink == 1.0 else f" * {num(self.shrink)} ** ({c} - 1.0)")
-        w.put(ind, sink(plus(self.low, self.high - self.low, rest)))
+        amp = "" if self.shrink == 1.0 else f" * {num(self.shrink)} ** ({c} - 1.0)"
+        if self._even():
+            w.put(ind, f"{c} = math.floor(1.0 + {u} / {num(2.0 * h)})  # cycle number, from 1")
+            w.put(ind, f"{x} = abs({u} / {num(h)} - 2.0 * {c} + 1.0)")
+            w.put(ind, sink(plus(self.low, self.high - self.low, f"max(0.0, 1.0 - {x})" + amp)))
+            return
+        p, d = self._period(), float(self.fall)
+        w.put(ind, f"{c} = math.floor(1.0 + {u} / {num(p)})  # cycle number, from 1")
+        w.put(ind, f"{x} = {u} - ({c} - 1.0) * {num(p)}  # ticks into the cycle")
+        w.put(ind, f"{x} = {x} / {num(h)} if {x} < {num(h)} else ({num(p)} - {x}) / {num(d)}")
+        w.put(ind, sink(plus(self.low, self.high - self.low, f"max(0.0, {x})" + amp)))
 
     def _at(self, u):
         h = float(self.half_period)
-        c = self._cycle(u)
-        x = np.abs(u / h - 2.0 * c + 1.0)
-        return self.low + (self.high - self.low) * np.maximum(0.0, 1.0 - x) * np.power(self.shrink, c - 1.0)
+        if self._even():
+            c = self._cycle(u)
+            x = np.abs(u / h - 2.0 * c + 1.0)
+            return self.low + (self.high - self.low) * np.maximum(0.0, 1.0 - x) * np.power(self.shrink, c - 1.0)
+        p, d = self._period(), float(self.fall)
+        c = np.floor(1.0 + u / p)
+        x = u - (c - 1.0) * p
+        x = np.where(x < h, x / h, (p - x) / d)
+        return self.low + (self.high - self.low) * np.maximum(0.0, x) * np.power(self.shrink, c - 1.0)
 
     def _range(self, a, b):
-        h = float(self.half_period)
+        h, p = float(self.half_period), self._period()
         fa, fb = self._at(a), self._at(b)
-        trough = np.ceil(a / (2 * h)) * 2 * h <= b
+        trough = np.ceil(a / p) * p <= b
         lo = np.where(trough, self.low, np.minimum(fa, fb))
-        c0 = np.ceil((a / h + 1.0) / 2.0)
-        apex = (2.0 * c0 - 1.0) * h <= b
+        c0 = np.ceil((a - h) / p) + 1.0  # the first cycle whose apex, at (c - 1) * p + h, is at or after a
+        apex = (c0 - 1.0) * p + h <= b
         top = self.low + (self.high - self.low) * np.power(self.shrink, c0 - 1.0)
         hi = np.maximum(np.maximum(fa, fb), np.where(apex, top, -np.inf))
         return lo, hi
 
     def _window(self) -> int:  # three cycles
-        return 6 * self.half_period
+        return int(3 * self._period())
 
 
 def _piecewise(xs: np.ndarray, ys: np.ndarray, u: np.ndarray, curve: str) -> np.ndarray:
@@ -105,7 +137,8 @@ def _piecewise_range(f, xs: np.ndarray, ys: np.ndarray, a, b):
 
 @node
 class OneCycle(_Leaf):
-    """One-cycle policy (Smith 2018): ``low`` up to ``peak``, back to ``low``, then down to ``final``."""
+    """One-cycle policy: ``low`` up to ``peak``, then (``phases=3``, Smith 2018) back to ``low`` and down to
+    ``final`` in a tail, or (``phases=2``) straight down to ``final``."""
 
     kind: ClassVar[str] = "one_cycle"
     peak: float = _rate("highest rate, reached at the middle of the cycle", positive=True)
@@ -113,13 +146,26 @@ class OneCycle(_Leaf):
     low: float = _rate("rate at the start and the end of the cycle")
     final: float = _rate("rate at the last tick, after the annihilation tail")
     tail: float = param(0.1, kind="ratio", lo=0.0, lo_open=True, hi=1.0, hi_open=True, soft=(0.01, 0.5),
-                        doc="fraction of the budget after the cycle, spent going from low to final")
+                        doc="fraction of the budget after the cycle, spent going from low to final (phases=3)")
     curve: str = param("linear", kind="choice", choices=("linear", "cosine"), doc="shape of each phase")
+    phases: int = param(3, kind="count", lo=2, hi=3,
+                        doc="3: rise, fall back to low, tail to final (Smith 2018); 2: rise, then one fall to final")
+    rise: float | None = param(None, kind="ratio", lo=0.0, lo_open=True, hi=1.0, hi_open=True, soft=(0.05, 0.5),
+                               optional=True,
+                               doc="share of the budget spent rising to the peak with phases=2; None with phases=3 "
+                                   "(its rise is (1 - tail) / 2)")
 
     def __post_init__(self) -> None:
         self._validate()
         if self.low > self.peak:
             raise complain("one_cycle", "low", self.low, f"<= peak = {self.peak!r}")
+        if self.phases == 2:
+            self._check_two()
+            return
+        if self.rise is not None:
+            raise complain("one_cycle", "rise", self.rise, "None with phases=3",
+                           "the three-phase cycle rises for (1 - tail) / 2 of the budget; for another share use "
+                           "phases=2")
         if self.final > self.low:
             raise complain("one_cycle", "final", self.final, f"<= low = {self.low!r}",
                            "the tail anneals below the cycle's low rate")
@@ -130,7 +176,28 @@ class OneCycle(_Leaf):
             raise complain("one_cycle", "steps", self.steps, f"at least {math.ceil(2 / (1 - self.tail))} with tail={self.tail!r}",
                            "each half of the cycle needs at least one tick")
 
+    def _check_two(self) -> None:
+        if self.rise is None:
+            raise complain("one_cycle", "rise", None, "a share in (0, 1) with phases=2",
+                           "the share of the budget spent rising to the peak, e.g. 0.3")
+        if self.final > self.peak:
+            raise complain("one_cycle", "final", self.final, f"<= peak = {self.peak!r}",
+                           "the second phase anneals down from the peak")
+        r = self.rise * self.steps
+        if not (r >= 1.0 and self.steps - r >= 1.0):
+            raise complain("one_cycle", "rise", self.rise,
+                           f"a share that leaves at least one tick to each phase of {self.steps} "
+                           f"(between {1.0 / self.steps:.3g} and {1.0 - 1.0 / self.steps:.3g})",
+                           "each phase needs at least one tick")
+
+    def __repr__(self) -> str:
+        text = Schedule.__repr__(self)  # the three-phase defaults are left out, so older reprs read the same
+        return text.replace(", phases=3, rise=None)", ")") if self.phases == 3 and self.rise is None else text
+
     def _knots(self) -> tuple[np.ndarray, np.ndarray]:
+        if self.phases == 2:  # the peak at rise * steps, final reached at tick steps (the continuous clock)
+            return (np.array([0.0, self.rise * self.steps, float(self.steps)]),
+                    np.array([self.low, self.peak, self.final]))
         r = (1.0 - self.tail) * self.steps / 2.0
         return (np.array([0.0, r, 2.0 * r, float(self.steps)]),
                 np.array([self.low, self.peak, self.low, self.final]))
@@ -267,32 +334,45 @@ def _check_points(points) -> tuple[tuple[int, float], ...]:
 
 
 def triangle(low: float, high: float, half_period: int, shrink: float = 1.0,
-             steps: int | None = None) -> Schedule:
+             steps: int | None = None, fall: int | None = None) -> Schedule:
     """Triangular cyclical rates (Smith 2017): ``low`` at t = 0, ``high`` at ``half_period``.
+
+    Each cycle rises for ``half_period`` ticks and falls back to ``low`` in ``fall`` ticks (None: the same
+    ``half_period``, the symmetric cycle), so the rise takes ``half_period / (half_period + fall)`` of a cycle.
 
     >>> s = triangle(0.0, 1.0, half_period=2, shrink=0.5)
     >>> s(2), s(6)
     (1.0, 0.5)
+    >>> u = triangle(0.0, 1.0, half_period=1, fall=3)
+    >>> u(1), u(2), u(4)
+    (1.0, 0.6666666666666666, 0.0)
     """
-    return Triangle(low=low, high=high, half_period=half_period, shrink=shrink, steps=steps)
+    return Triangle(low=low, high=high, half_period=half_period, shrink=shrink, steps=steps, fall=fall)
 
 
 def one_cycle(peak: float, steps: int, low: float | None = None, final: float | None = None,
-              tail: float = 0.1, curve: str = "linear") -> Schedule:
-    """The one-cycle policy (Smith 2018): a rise and an equal fall, then an annihilation tail.
+              tail: float = 0.1, curve: str = "linear", phases: int = 3, rise: float | None = None) -> Schedule:
+    """The one-cycle policy: a rise to ``peak``, then back down.
 
-    The cycle takes ``(1 - tail) * steps`` ticks, peaking at its middle; ``low``
-    defaults to ``peak / 10`` and ``final`` to ``low / 100`` (from memory of the
-    paper's advice: a cycle range of about one decade and a tail that goes
-    "several orders of magnitude" lower).
+    ``phases=3`` (Smith 2018): a rise and an equal fall over ``(1 - tail) * steps`` ticks, peaking at its
+    middle, then an annihilation tail from ``low`` to ``final``.  ``phases=2``: a rise over ``rise * steps``
+    ticks, then one fall from ``peak`` to ``final`` over the rest; with ``curve="cosine"`` both are half cosines,
+    the form most training code uses today (``rise`` defaults to 0.3: common practice, no source).  ``final``
+    is reached at tick ``steps``, as every shape here reaches its end; ``low`` defaults to ``peak / 10`` and
+    ``final`` to ``low / 100`` (from memory of Smith 2018's advice: a cycle range of about one decade and a
+    tail that goes "several orders of magnitude" lower).
 
     >>> s = one_cycle(1.0, steps=100, tail=0.2)
     >>> s(0), s(40), s(80), s(100)
     (0.1, 1.0, 0.1, 0.001)
+    >>> c = one_cycle(1.0, steps=100, phases=2, rise=0.25, curve="cosine")
+    >>> c(0), c(25), round(c(100), 12)
+    (0.1, 1.0, 0.001)
     """
     lo = peak / 10.0 if low is None else low
     fin = lo / 100.0 if final is None else final
-    return OneCycle(peak=peak, steps=steps, low=lo, final=fin, tail=tail, curve=curve)
+    share = 0.3 if rise is None and phases == 2 else rise
+    return OneCycle(peak=peak, steps=steps, low=lo, final=fin, tail=tail, curve=curve, phases=phases, rise=share)
 
 
 def knots(points: Sequence[tuple[int, float]], interp: str = "linear", steps: int | None = None) -> Schedule:

@@ -14,7 +14,7 @@ from typing import ClassVar, Sequence
 import numpy as np
 
 from .codegen import CHAIN_MAX, num, plus
-from .formula import clock, const, cos, exp, floor
+from .formula import clock, const, cos, exp, floor, sqrt
 from .leaf import RATE_SOFT, TICK_SOFT, ClosedForm, _Leaf, _floor_not_above_peak, _rate, _steps, node  # noqa: F401
 from .schedule import EDGE_CAP, Schedule, complain, monotone_range, param
 
@@ -47,8 +47,9 @@ class Ramp(ClosedForm):
     start: float = _rate("rate at tick 0")
     end: float = _rate("rate reached at tick steps (the next stage's first tick)")
     steps: int = _steps()
-    curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine"),
-                       doc="linear, geometric (constant ratio per tick) or a half cosine")
+    curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine", "sqrt"),
+                       doc="linear, geometric (constant ratio per tick), a half cosine, or sqrt: "
+                           "end + (start - end) * (1 - sqrt(t / steps)), the 1-sqrt cooldown")
 
     def __post_init__(self) -> None:
         self._validate()
@@ -64,6 +65,8 @@ class Ramp(ClosedForm):
             return self.start + (self.end - self.start) * x
         if self.curve == "geometric":
             return exp(math.log(self.start) + (math.log(self.end) - math.log(self.start)) * x)
+        if self.curve == "sqrt":  # Hägele et al. 2024's (1-sqrt) cooldown; end = 0 leaves start * (1 - sqrt(x))
+            return self.end + (self.start - self.end) * (1.0 - sqrt(x))
         return self.end + (self.start - self.end) * (1.0 + cos(math.pi * x)) / 2.0
 
     def _rise(self) -> int:
@@ -234,7 +237,13 @@ def flat(lr: float, steps: int | None = None) -> Schedule:
 def ramp(start: float, end: float, steps: int, curve: str = "linear") -> Schedule:
     """From ``start`` at tick 0 to ``end`` at tick ``steps`` (the next stage's first tick).
 
+    ``curve="sqrt"`` is the (1-sqrt) cooldown of warmup-stable-decay runs (Hägele et al. 2024):
+    ``end + (start - end) * (1 - sqrt(t / steps))``, which for ``end = 0`` is ``start * (1 - sqrt(t / steps))``;
+    ``end > 0`` is a floor the cooldown ends on.
+
     >>> ramp(0.0, 1.0, 4)(2)
+    0.5
+    >>> ramp(1.0, 0.0, 4, curve="sqrt")(1)
     0.5
     """
     return Ramp(start=start, end=end, steps=steps, curve=curve)
