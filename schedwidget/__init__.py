@@ -16,6 +16,7 @@ from .metrics import read_metric
 from .plateau import PlateauReplay, plateau_source, replay_plateau
 from .schedule import Schedule, ScheduleError
 from .shapes import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, triangle
+from .solve import solve
 from .spec import Design, from_spec, json_schema, load, load_design, save, to_spec
 
 __version__ = "0.1.0"
@@ -24,7 +25,7 @@ __all__ = [
     "Schedule", "ScheduleError",
     "flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots",
     "stages", "warmup", "restarts",
-    "Facts", "facts",
+    "Facts", "facts", "solve",
     "replay_plateau", "plateau_source", "PlateauReplay", "read_metric",
     "to_python", "to_torch", "torch_factor", "RateFactor", "make_scheduler",
     "Budget", "check_length", "scale_for_batch",
