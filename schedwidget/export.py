@@ -19,9 +19,18 @@ from .factor import (  # noqa: F401
     _BUILT, _CHECKED, _COMPILED, COMPILED_MAX, FIELDS, MAX_GROUPS, RESUME_CHOICES, RateFactor, _brief, _design_text,
     _multipliers, _positive, _schedule, _Shown, torch_factor)
 from .scheduler import make_scheduler  # noqa: F401
+
+
+def __getattr__(name: str) -> Any:
+    if name == "to_torch_tracks":  # the snippet for tracks lives in track_export.py (it imports this module)
+        from .track_export import to_torch_tracks
+
+        return to_torch_tracks
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 from .schedule import MAX_TICKS, Schedule, complain
 
-__all__ = ["to_python", "make_scheduler", "torch_factor", "to_torch", "RateFactor"]
+__all__ = ["to_python", "make_scheduler", "torch_factor", "to_torch", "RateFactor", "to_torch_tracks",
+           "track_function_names"]
 
 #: Names the torch snippet defines itself besides the function.
 SNIPPET_NAMES = frozenset({"torch", "BASE_LR", "GROUP_MULTIPLIERS", "ExportedFactor", "make_scheduler"})
@@ -65,10 +74,74 @@ def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_ep
     >>> namespace["lr_at"](5_750)
     0.1
     """
+    if _tracked(s):
+        return _track_functions("to_python", s, name, _unit("to_python", unit),
+                                _spe("to_python", steps_per_epoch))[0]
     _schedule("to_python", s)
     check_name("to_python", name)
     body, modules = function_source(s, name, _unit("to_python", unit), _spe("to_python", steps_per_epoch))
     return "".join(f"import {m}\n" for m in sorted(modules)) + "\n\n" + body
+
+
+# ------------------------------------------------------------------ tracks and per-group designs
+#: Each track's function name (the rate's is the ``name`` argument); per group, the group's name or
+#: ``group<i>`` goes first: ``head_momentum_at``, ``group0_lr_at``.
+TRACK_FUNCTIONS = {"momentum": "momentum_at", "beta2": "beta2_at", "weight_decay": "weight_decay_at"}
+TRACK_WORDS = {"momentum": "Momentum (SGD momentum or the first Adam beta)", "beta2": "Second Adam beta",
+               "weight_decay": "Weight decay"}
+
+
+def _tracked(s: Any) -> bool:
+    from collections.abc import Mapping
+
+    from .tracks import GroupDesigns, Tracks
+
+    return isinstance(s, (Tracks, GroupDesigns, Mapping, list, tuple))
+
+
+def track_function_names(design: Any, name: str = "lr_at") -> list[dict[str, str]]:
+    """The generated function's name for every track of every group: ``[{"rate": "lr_at", ...}, ...]``."""
+    from .tracks import as_groups
+
+    g = as_groups("to_python", design)
+    assert g is not None
+    out = []
+    for i, t in enumerate(g.groups):
+        prefix = "" if len(g) == 1 and g.names is None else f"{g.names[i] if g.names else f'group{i}'}_"
+        out.append({track: prefix + (name if track == "rate" else TRACK_FUNCTIONS[track]) for track, _ in t.items()})
+    return out
+
+
+def _track_functions(owner: str, design: Any, name: str, unit: str, spe: int | None,
+                     taken: frozenset[str] = TAKEN) -> tuple[str, list[dict[str, str]], set[str]]:
+    """Source of one function per track and group (imports first), their names, and the modules imported."""
+    from .tracks import as_groups
+
+    check_name(owner, name, taken)
+    g = as_groups(owner, design)
+    assert g is not None
+    names = track_function_names(g, name)
+    bodies, modules, seen = [], set(), set()
+    for t, fns in zip(g.groups, names):
+        for track, s in t.items():
+            fn = check_name(owner, fns[track], taken)
+            if fn in seen:
+                raise complain(owner, "name", name, f"a name that no track's function repeats ({fn!r} twice)")
+            seen.add(fn)
+            body, mods = function_source(s, fn, unit, spe)
+            if track != "rate":  # the writer's docstring speaks of a rate; say which hyperparameter this is
+                body = body.replace('"""Learning rate at tick t', f'"""{TRACK_WORDS[track]} at tick t', 1)
+            bodies.append(body)
+            modules |= mods
+    text = "".join(f"import {m}\n" for m in sorted(modules)) + "\n\n" + "\n\n".join(bodies)
+    return text, names, modules
+
+
+def _tracks_torch(s: Any, unit: str, groups: Any, steps: Any, name: str, spe: Any) -> str:
+    from .track_export import to_torch_tracks
+    from .tracks import as_groups
+
+    return to_torch_tracks(as_groups("to_torch", s, groups), unit, steps, name, spe)
 
 
 # ------------------------------------------------------------------ factor objects
@@ -183,7 +256,7 @@ def _snippet_name(name: Any) -> str:
     return name
 
 
-def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[float] | None = None,
+def to_torch(s: Any, base_lr: float | None = None, unit: str = "step", groups: Sequence[float] | None = None,
              steps: int | None = None, name: str = "lr_at", steps_per_epoch: int | None = None) -> str:
     """A ready torch snippet: the generated function, a picklable factor class and ``make_scheduler``.
 
@@ -194,10 +267,14 @@ def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[f
     ``groups=[1.0, 0.1, ...]`` the group count is checked when the scheduler is
     built; every group must start at ``lr=base_lr``.
 
+    For ``tracks(...)`` or per-group designs (a list or mapping, one per param group), the snippet is
+    ``to_torch_tracks``'s: one function per track and group and a small clock class that sets each
+    group's lr and tracked keys; ``base_lr`` must then be None.
+
     Parameters
     ----------
-    s : the schedule.
-    base_lr : the optimizer's lr for every param group (> 0).
+    s : the schedule (or tracks, or one design per param group).
+    base_lr : the optimizer's lr for every param group (> 0); required for a single schedule.
     unit : "step" (scheduler.step() after every update) or "epoch" (after every epoch).
     groups : one rate multiplier per param group, or None for the same rate in every group.
     steps : the budget the snippet is for, in ticks of ``unit``, or a ``Budget``; a design of
@@ -216,6 +293,13 @@ def to_torch(s: Schedule, base_lr: float, unit: str = "step", groups: Sequence[f
     """
     from string import Template
 
+    if _tracked(s):
+        if base_lr is not None:
+            raise complain("to_torch", "base_lr", _brief(base_lr), "None with tracks or per-group designs",
+                           "their rates are absolute: the snippet sets each group's lr directly")
+        return _tracks_torch(s, unit, groups, steps, name, steps_per_epoch)
+    if base_lr is None:
+        raise complain("to_torch", "base_lr", None, "a rate > 0 for a single design (the optimizer's lr)")
     _schedule("to_torch", s)
     _snippet_name(name)
     _unit("to_torch", unit)

@@ -94,6 +94,60 @@ def _tick(start_tick: Any) -> int:
     return start_tick
 
 
+def _is_tracks(design: Any) -> bool:
+    """Whether ``design`` is tracks or per-group designs (a ``TrackClock`` runs them), not one Schedule."""
+    from collections.abc import Mapping
+
+    from .spec import Design
+    from .tracks import GroupDesigns, Tracks
+
+    if isinstance(design, Design):
+        return design.tracks is not None
+    return isinstance(design, (Tracks, GroupDesigns, Mapping, list, tuple))
+
+
+def _track_clock(optimizer: Any, design: Any, base_lr: Any, groups: Any, start_tick: Any, state: Any,
+                 resume_with: Any) -> Any:
+    """make_scheduler's route for tracks and per-group designs: a ``TrackClock`` (absolute rates, no base lr)."""
+    from .clock import TrackClock, saved_design
+    from .tracks import Tracks
+
+    owner = "make_scheduler"
+    if base_lr is not None:
+        raise complain(owner, "base_lr", _brief(base_lr), "None with tracks or per-group designs",
+                       "their rates are absolute and set each group's lr directly; give a group its share "
+                       "with groups=[1, 0.1, ...] or its own design")
+    tick = _tick(start_tick)
+    if resume_with is not None and resume_with not in RESUME_CHOICES:
+        raise complain(owner, "resume_with", _brief(resume_with), "None, 'saved' or 'new'",
+                       "'saved' continues on the checkpoint's design, 'new' on the new design from the saved tick")
+    if state is None and resume_with is not None:
+        raise complain(owner, "resume_with", resume_with, "None when no state is given",
+                       "it chooses between a checkpoint's design and the new one: pass state=<the saved "
+                       "scheduler.state_dict()> too")
+    if state is not None and tick:
+        raise complain(owner, "start_tick", tick, "0 when state is given (the state carries its tick)")
+    value = design.tracks if hasattr(design, "tracks") and not isinstance(design, Tracks) else design
+    if isinstance(value, Tracks) and groups is None:
+        starts = _start_lrs(optimizer, resuming=False)
+        if len(set(starts)) > 1:
+            shown = ", ".join(f"{v!r}" for v in starts[:6]) + (", ..." if len(starts) > 6 else "")
+            raise complain(owner, "groups", None, f"given when the param groups start at different lrs ({shown})",
+                           "the tracks set every group's lr to the rate design; pass groups=[...] with each "
+                           "group's multiplier, or one design per group")
+    if state is not None and resume_with == "saved":
+        clock = TrackClock(optimizer, saved_design(owner, state))
+    else:
+        clock = TrackClock(optimizer, value, start_tick=tick, multipliers=groups)
+    if state is not None:
+        if resume_with == "new":
+            saved_design(owner, state)  # a valid checkpoint, even when its design is not kept
+            clock.load_state_dict({**state, "design": clock.state_dict()["design"]})
+        else:
+            clock.load_state_dict(state)
+    return clock
+
+
 def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
                    groups: Sequence[float] | None = None, start_tick: int = 0, *,
                    state: dict[str, Any] | None = None, resume_with: str | None = None) -> Any:
@@ -128,9 +182,18 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
         on ``design`` from the saved tick.  Without it a difference is a ScheduleError naming both designs.
         A plain ``scheduler.load_state_dict(...)`` of another design is refused too, at the next step.
 
+    Tracks and per-group designs: ``design`` may also be ``tracks(rate, momentum=..., beta2=...,
+    weight_decay=...)`` (with ``groups`` multipliers of its rate, or None), or a list or mapping of designs
+    (Schedules or tracks), one per param group in ``optimizer.param_groups`` order.  Then the result is a
+    ``TrackClock`` (``schedwidget.clock``), which sets each group's ``lr`` and tracked keys (``momentum`` or
+    ``betas[0]``, ``betas[1]``, ``weight_decay``) at every ``step()``, with ``state_dict()`` and
+    ``load_state_dict()``; ``base_lr`` must be None (their rates are absolute), and ``state`` is a saved
+    ``TrackClock.state_dict()``.
+
     Returns
     -------
-    torch.optim.lr_scheduler.LambdaLR with one ``RateFactor`` per param group.
+    torch.optim.lr_scheduler.LambdaLR with one ``RateFactor`` per param group (a ``TrackClock`` for tracks or
+    per-group designs).
 
     Raises
     ------
@@ -167,6 +230,8 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
     ...
     schedwidget.schedule.ScheduleError: make_scheduler: param_groups[1]['lr'] must be base_lr=0.0003 when groups[1]=10 sets its share (it starts at 10x base_lr, and the multiplier would apply on top: a 100x rate), got 0.003 (set that group's lr to base_lr, or pass groups=[1, 1] to keep the 10x its lr already gives)
     """
+    if _is_tracks(design):
+        return _track_clock(optimizer, design, base_lr, groups, start_tick, state, resume_with)
     lambda_lr = _lambda_lr(optimizer)
     from .spec import Design
 

@@ -18,6 +18,10 @@ __all__ = ["json_schema", "shipped_schema", "FORMAT_VERSION", "UNITS", "SCHEMA_F
 
 FORMAT_VERSION = 1
 UNITS = ("step", "epoch")
+#: The tracks a spec may hold besides the rate, and what each one is.
+TRACK_WORDS = {"momentum": "SGD momentum or the first Adam beta, in [0, 1) at every tick",
+               "beta2": "the second Adam beta, in [0, 1) at every tick",
+               "weight_decay": "the optimizer's weight decay, >= 0 at every tick"}
 
 
 # ------------------------------------------------------------------- schema
@@ -43,18 +47,37 @@ def json_schema() -> dict[str, Any]:
         "allOf": [{"if": {"properties": {"kind": {"const": k}}, "required": ["kind"]},
                    "then": {"$ref": f"#/$defs/{k}"}} for k in KINDS],
     }
+    defs["tracks"] = {
+        "type": "object",
+        "properties": {name: {"$ref": "#/$defs/node", "description": words} for name, words in TRACK_WORDS.items()},
+        "additionalProperties": False,
+        "description": "designs of other hyperparameters on the rate's clock (each checked for its own range "
+                       "when loaded)",
+    }
+    defs["group"] = {
+        "type": "object", "required": ["schedule"],
+        "properties": {"name": {"type": "string", "description": "the param group's name (a Python identifier)"},
+                       "schedule": {"$ref": "#/$defs/node"}, "tracks": {"$ref": "#/$defs/tracks"}},
+        "additionalProperties": False,
+        "description": "one param group's design: its rate and optional tracks",
+    }
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "$id": "urn:schedwidget:spec:1",
         "title": "schedwidget schedule spec",
         "type": "object",
-        "required": ["version", "schedule"],
+        "required": ["version"],
+        "anyOf": [{"required": ["schedule"]}, {"required": ["groups"]}],
         "properties": {
             "version": {"type": "integer", "minimum": 1, "maximum": FORMAT_VERSION},
             "unit": {"enum": list(UNITS)},
             "steps_per_epoch": {"anyOf": [{"type": "integer", "minimum": 1}, {"type": "null"}]},
             "note": {"type": "string"},
-            "schedule": {"$ref": "#/$defs/node"},
+            "schedule": {"$ref": "#/$defs/node", "description": "the rate design"},
+            "tracks": {"$ref": "#/$defs/tracks"},
+            "groups": {"type": "array", "minItems": 1, "items": {"$ref": "#/$defs/group"},
+                       "description": "one design per param group, in optimizer.param_groups order "
+                                      "(instead of schedule and tracks)"},
         },
         "additionalProperties": False,
         "$defs": defs,

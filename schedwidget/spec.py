@@ -49,6 +49,9 @@ class Design:
     schedule: Schedule
     unit: str = "step"
     steps_per_epoch: int | None = None
+    #: the whole value when the spec holds more than one rate design: ``tracks(...)`` or ``per_group(...)``
+    #: (``schedule`` is then its rate, or the first group's rate); None for a single schedule.
+    tracks: Any = None
 
 
 # ------------------------------------------------------------------- writing
@@ -79,16 +82,41 @@ def _check_size(s: Schedule, owner: str) -> None:
         todo.extend((c, level + 1) for c in node.children())
 
 
-def to_spec(s: Schedule, unit: str | None = None, steps_per_epoch: int | None = None) -> dict[str, Any]:
+def _track_nodes(t: Any, owner: str) -> dict[str, Any]:
+    """The tracks besides the rate, as ``{"momentum": node, ...}`` (each checked like a design)."""
+    out = {}
+    for name, s in t.items():
+        if name != "rate":
+            _check_size(s, owner)
+            out[name] = _node(s)
+    return out
+
+
+def _group_node(t: Any, name: str | None, owner: str) -> dict[str, Any]:
+    _check_size(t.rate, owner)
+    out: dict[str, Any] = {} if name is None else {"name": name}
+    out["schedule"] = _node(t.rate)
+    more = _track_nodes(t, owner)
+    if more:
+        out["tracks"] = more
+    return out
+
+
+def to_spec(s: Any, unit: str | None = None, steps_per_epoch: int | None = None) -> dict[str, Any]:
     """Plain-JSON spec of ``s`` with the format version (and the clock's unit when given).
 
     ``s`` must be a Schedule at most ``MAX_DEPTH`` deep with at most ``MAX_NODES``
-    schedules (what a spec file may hold); anything else is a ScheduleError.
+    schedules (what a spec file may hold), ``tracks(...)`` (the rate under
+    ``"schedule"``, the other tracks under ``"tracks"``) or ``per_group(...)``
+    (a list under ``"groups"``); anything else is a ScheduleError.
     """
-    if not isinstance(s, Schedule):
+    from .tracks import GroupDesigns, Tracks
+
+    if not isinstance(s, (Schedule, Tracks, GroupDesigns)):
         raise complain("to_spec", "s", None if s is None else _type_words(s),
-                       "a Schedule (built with flat, cosine, stages, ...)")
-    _check_size(s, "to_spec")
+                       "a Schedule (built with flat, cosine, stages, ...), tracks(...) or per_group(...)")
+    if isinstance(s, Schedule):
+        _check_size(s, "to_spec")
     spec: dict[str, Any] = {"version": FORMAT_VERSION}
     if unit is not None:
         if not isinstance(unit, str) or unit not in UNITS:  # an array or a 5,000-digit int: compare and show safely
@@ -99,7 +127,13 @@ def to_spec(s: Schedule, unit: str | None = None, steps_per_epoch: int | None = 
         if spe is None or spe < 1:
             raise complain("to_spec", "steps_per_epoch", steps_per_epoch, "a whole number >= 1 or None")
         spec["steps_per_epoch"] = spe
-    spec["schedule"] = _node(s)
+    if isinstance(s, Schedule):
+        spec["schedule"] = _node(s)
+    elif isinstance(s, Tracks):
+        spec.update(_group_node(s, None, "to_spec"))
+    else:
+        spec["groups"] = [_group_node(t, None if s.names is None else s.names[i], "to_spec")
+                          for i, t in enumerate(s.groups)]
     return spec
 
 
@@ -124,13 +158,54 @@ def read_design(d: Any) -> Design:
 
     Any input gets a Design or a ScheduleError, in bounded time (see the module's limits).
     """
+    if isinstance(d, dict) and "schedule" not in d and "groups" not in d and "version" in d:
+        raise ScheduleError("spec: a spec must hold 'schedule' (one design, with optional 'tracks') or 'groups' "
+                            "(one design per param group), got neither (rebuild the file with schedwidget.save)")
     _check_schema(d)
-    return Design(_build(d["schedule"], "schedule"), d.get("unit", "step"), d.get("steps_per_epoch"))
+    unit, spe = d.get("unit", "step"), d.get("steps_per_epoch")
+    if "groups" in d and ("schedule" in d or "tracks" in d):
+        raise ScheduleError("spec: a spec holds either 'schedule' (one design, with optional 'tracks') or "
+                            "'groups' (one design per param group), got both (keep one of them)")
+    if "groups" in d:
+        from .tracks import GroupDesigns
+
+        groups = [_build_group(g, f"groups[{i}]") for i, g in enumerate(d["groups"])]
+        names = [g.get("name") for g in d["groups"]]
+        if any(n is None for n in names) and any(n is not None for n in names):
+            raise ScheduleError("spec: groups: either every group has a 'name' or none has, got names for "
+                                f"{sum(n is not None for n in names)} of {len(names)} groups")
+        try:
+            value = GroupDesigns(tuple(groups), None if names[0] is None else tuple(names))
+        except ScheduleError as exc:
+            raise ScheduleError(f"spec: groups: {exc}") from None
+        return Design(value.groups[0].rate, unit, spe, value)
+    if "tracks" in d:
+        value = _build_group(d, "")
+        return Design(value.rate, unit, spe, value)
+    return Design(_build(d["schedule"], "schedule"), unit, spe)
 
 
-def from_spec(d: Any) -> Schedule:
-    """Rebuild a schedule from its spec (validated first; nothing is executed)."""
-    return read_design(d).schedule
+def _build_group(g: dict[str, Any], where: str) -> Any:
+    """tracks(...) from a node holding "schedule" and optional "tracks" (each checked for its range)."""
+    from .tracks import Tracks
+
+    dot = f"{where}." if where else ""
+    rate = _build(g["schedule"], f"{dot}schedule")
+    more = {name: _build(node, f"{dot}tracks.{name}") for name, node in g.get("tracks", {}).items()}
+    try:
+        return Tracks(rate, **more)
+    except ScheduleError as exc:  # the message starts with "tracks: ..."
+        raise ScheduleError(f"spec: {where}: {exc}" if where else f"spec: {exc}") from None
+
+
+def from_spec(d: Any) -> Any:
+    """Rebuild a design from its spec (validated first; nothing is executed).
+
+    A Schedule, or for a spec with ``"tracks"`` or ``"groups"`` the ``tracks(...)`` or ``per_group(...)``
+    value it was written from.
+    """
+    design = read_design(d)
+    return design.schedule if design.tracks is None else design.tracks
 
 
 def check_path(owner: str, path: Any, name: str = "path") -> str:
@@ -236,9 +311,10 @@ def load_design(path: str | os.PathLike) -> Design:
     return read_design(_read(path, "load"))
 
 
-def load(path: str | os.PathLike) -> Schedule:
-    """Read a spec file into a Schedule (validated; loading never runs code)."""
-    return load_design(path).schedule
+def load(path: str | os.PathLike) -> Any:
+    """Read a spec file into a Schedule (or the tracks or per-group designs it holds; loading never runs code)."""
+    design = load_design(path)
+    return design.schedule if design.tracks is None else design.tracks
 
 
 def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,
@@ -251,8 +327,10 @@ def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,
     symbolic link is written through: its target is replaced and the link stays.
     Only a regular file (or a new name) can be written.
     """
-    if not isinstance(s, Schedule):
-        raise ScheduleError(f"save: s must be a Schedule, got {type(s).__name__}")
+    from .tracks import GroupDesigns, Tracks
+
+    if not isinstance(s, (Schedule, Tracks, GroupDesigns)):
+        raise ScheduleError(f"save: s must be a Schedule, tracks(...) or per_group(...), got {type(s).__name__}")
     target = Path(check_path("save", path))
     text = json.dumps(to_spec(s, unit, steps_per_epoch), indent=2) + "\n"
     write_atomic(target, text, owner="save")

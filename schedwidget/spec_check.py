@@ -38,7 +38,13 @@ def _problems(d: dict[str, Any], plain: bool = False) -> list[tuple[list, str, s
     """
     found = [(list(e.absolute_path), e.message, e.validator) for e in _validator().iter_errors(d)]
     table = _table() if plain else {}
-    todo = [(d.get("schedule"), ["schedule"])]
+    todo = [(d.get("schedule"), ["schedule"])] + _track_todo(d, [])
+    groups = d.get("groups")
+    if isinstance(groups, list):
+        for i, g in enumerate(groups):
+            if isinstance(g, dict):
+                todo.append((g.get("schedule"), ["groups", i, "schedule"]))
+                todo += _track_todo(g, ["groups", i])
     while todo:
         node, path = todo.pop()
         kind = node.get("kind") if isinstance(node, dict) else None
@@ -55,6 +61,14 @@ def _problems(d: dict[str, Any], plain: bool = False) -> list[tuple[list, str, s
             elif p.kind_of.nests == "list" and isinstance(child, list):
                 todo.extend((c, path + [name, i]) for i, c in enumerate(child))
     return found
+
+
+def _track_todo(holder: dict[str, Any], path: list) -> list[tuple[Any, list]]:
+    """The track designs under ``holder["tracks"]`` with their JSON paths (each is checked like a schedule)."""
+    found = holder.get("tracks")
+    if not isinstance(found, dict):
+        return []
+    return [(node, path + ["tracks", name]) for name, node in found.items() if isinstance(name, str)]
 
 
 #: A valid node that stands in for a child while its parent's own fields are checked (the child is checked itself).
