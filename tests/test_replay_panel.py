@@ -221,11 +221,12 @@ class TestReplayReading:
         p.controls["floor"].text.value = 0.0
         p.controls["patience"].text.value = 1
         assert min(p.replay.rates) < 1e-6 * 0.1  # demo a at patience 1 drops often enough
-        assert "below 1e-06 x the start rate" in html.unescape(p.caution.value)
-        assert "history demo a" in p.whatif.value and "floor 0" in p.whatif.value
+        # the panel's own words and number format (issue 13): "lowest rate", not "floor"; 1e-5, not 1e-05
+        assert "below a millionth of the start rate 0.1" in html.unescape(p.caution.value)
+        assert "history demo a" in p.whatif.value and "lowest rate 0," in p.whatif.value
         p.controls["floor"].text.value = 1e-5
         assert p.caution.value == ""
-        assert "floor 1e-05" in p.whatif.value
+        assert "lowest rate 1e-5," in p.whatif.value
 
     def test_drop_after_the_run_is_not_counted(self):
         """A drop from epoch >= the history's length is marked and not counted."""

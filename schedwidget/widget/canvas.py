@@ -168,6 +168,11 @@ class CurvePanel(Panel, W.VBox):
         words = self.read(self.d.schedule, None if x is None else [x])
         if words and self.hover_label.value != words:
             self.hover_label.value = words
+            t = self.tick_at(x)
+            exact = float(self.d.schedule(t)) if t is not None else None
+            tip = f"rate exactly {exact!r}" if exact is not None and rate(exact) == "~0" else ""
+            if self.hover_label.tooltip != tip:
+                self.hover_label.tooltip = tip  # a tiny rate reads ~0; its exact value on hover
         if x is not None:
             with self.hover_line.hold_sync():
                 self.hover_line.x = np.array([[x, x]])

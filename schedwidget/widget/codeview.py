@@ -23,7 +23,7 @@ from ..budget import parse_rate
 from ..schedule import complain
 from .controls import Entry
 from .guard import Panel
-from .theme import AMBER, BORDER, ERROR_RED, OK
+from .theme import AMBER, BORDER, ERROR_RED, OK, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -193,7 +193,7 @@ class ExportPanel(Panel, W.VBox):
         self._say(f"{verb} {done}", OK)
 
     def _say(self, text: str, colour: str) -> None:
-        self.message.value = f'<span style="color:{colour}">{html.escape(text)}</span>'
+        self.message.value = f'<span style="color:{colour}">{tidy_html(text)}</span>'
 
 
 class FileMethods:

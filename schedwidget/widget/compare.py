@@ -25,7 +25,7 @@ from ..facts import Facts
 from ..sample import Trace, breaks
 from ..schedule import Schedule, complain
 from .guard import Panel
-from .theme import cell, rate
+from .theme import cell, number, pct, rate_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -61,23 +61,25 @@ def near(jumps: Sequence[int] | np.ndarray) -> np.ndarray:
 
 
 def cells(f: Facts, unit: str | None = None, steps_per_epoch: int | None = None) -> list[str]:
-    """The escaped table cells of a design's facts: peak, where, final, sum of rates, under 10 %, run length;
+    """The HTML table cells of a design's facts: peak, where, final, sum of rates, under 10 %, run length;
     converted to the clock ``unit`` (the designer's) when the design counts in the other unit and steps per
     epoch are known (positions then read ``epoch 3.0`` or ``step 3,450``; the sum of rates per step is the
-    sum per epoch times steps per epoch)."""
+    sum per epoch times steps per epoch).  Rates are the readout's (``theme.rate_html``: a tiny one is ``~0``
+    with its exact value on hover)."""
     unit = unit or f.unit
     spe = steps_per_epoch or f.steps_per_epoch
+    e = html.escape
     if unit == f.unit or not spe:
-        return [html.escape(c) for c in (rate(f.peak), at(f.peak_at, f.unit), rate(f.final), number(f.area),
-                                         at(f.under_10, f.unit), f"{f.steps:,} {f.unit}s")]
+        return [rate_html(f.peak), e(at(f.peak_at, f.unit)), rate_html(f.final), e(number(f.area)),
+                e(at(f.under_10, f.unit)), e(f"{f.steps:,} {f.unit}s")]
     if unit == "step":  # an epoch design read on the step clock
         where = (lambda t: None if t is None else at(t * spe, "step"))
         area, length = f.area * spe, f"{f.steps * spe:,} steps"
     else:
         where = (lambda t: None if t is None else f"epoch {t / spe:,.1f}")
         area, length = f.area / spe, f"{f.steps / spe:,.4g} epochs"
-    return [html.escape(c or "—") for c in (rate(f.peak), where(f.peak_at), rate(f.final), number(area),
-                                            where(f.under_10), length)]
+    return [rate_html(f.peak), e(where(f.peak_at) or "—"), rate_html(f.final), e(number(area)),
+            e(where(f.under_10) or "—"), e(length)]
 
 
 def ticks_of(tr: Trace | None, n: int) -> np.ndarray | None:
@@ -115,17 +117,8 @@ def largest_difference(a: Schedule, b: Schedule, steps: int) -> tuple[float, int
 
 
 NO_PINS = "<i>No pins yet: name the current design under the curve and press Pin.</i>"
-ROWS = ("peak rate", "peak at", "final rate", "sum of rates", "under 10 % of the peak from", "run length",
+ROWS = ("peak rate", "peak at", "final rate", "sum of rates", pct("under 10 % of the peak from"), "run length",
         "largest rate difference from current", "sum of rates / current")
-
-
-def number(x: float) -> str:
-    """The one number format of the Compare table: 4 significant digits, thousands separated.
-
-    >>> number(0.1), number(4975.04), number(1.0)
-    ('0.1', '4,975', '1')
-    """
-    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.4g}"
 
 
 def at(tick: int | None, unit: str) -> str:
@@ -273,13 +266,13 @@ class ComparePanel(Panel, W.VBox):
         for p in d.pinned:
             f = self._facts_of(p)
             if p.unit != d.unit:
-                diff, ratio = f"n/a (pinned in {p.unit}s)", "n/a"
+                diff, ratio = e(f"n/a (pinned in {p.unit}s)"), "n/a"
             else:
                 v, t = self.difference(p)
-                diff = f"{number(v)} at {at(t, d.unit)}"
-                ratio = number(f.area / cur.area) if cur.area > 0 else "—"
+                diff = rate_html(v) + e(f" at {at(t, d.unit)}")
+                ratio = e(number(f.area / cur.area)) if cur.area > 0 else "—"
             names.append(e(p.name))
-            cols.append(self._facts[(id(p), d.unit, d.steps_per_epoch)][2] + [e(diff), e(ratio)])
+            cols.append(self._facts[(id(p), d.unit, d.steps_per_epoch)][2] + [diff, ratio])
         head = f"<tr><th {left}></th>" + "".join(f"<th {right}>{n}</th>" for n in names) + "</tr>"
         body = "".join(f"<tr><th {left}>{e(r)}</th>" + "".join(f"<td {right}>{c[i]}</td>" for c in cols) + "</tr>"
                        for i, r in enumerate(ROWS))

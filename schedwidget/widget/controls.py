@@ -198,7 +198,7 @@ class ParamControl:
         self._on_value: Callable | None = None  # the slider's observer, kept so a replacement slider gets it
         if k == "log_slider" and self.of_peak:
             self.slider = self._rate_slider(*self._rate_range(value), value)
-            self.text = Entry(tooltip=tip + "; a number, or a share of the peak such as 1 %",
+            self.text = Entry(tooltip=tip + "; a number, or a share of the peak such as 1\u2009%",
                               continuous_update=False, layout=BOX_LAYOUT)
         elif k == "log_slider":
             lo, hi = _log_range(p)
@@ -207,7 +207,7 @@ class ParamControl:
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
         elif k == "length":
             self.text = Entry(description=words, tooltip=tip + "; steps, epochs ('3 ep') or a share of the run "
-                              "('6 %'); a share or part of an epoch rounds up", continuous_update=False,
+                              "('6\u2009%'); a share or part of an epoch rounds up", continuous_update=False,
                               style=style, layout={"width": "13em", "flex": "0 0 auto"})
             self.text.add_class("sw-length")
             self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})

@@ -99,16 +99,16 @@ def positions_text(at: tuple[int, ...], start: int, unit: str, spe: int | None) 
 
 
 def positions_words(at: tuple[int, ...], start: int, unit: str, spe: int | None) -> str:
-    """Where the positions are in the stage, beside the box: ``of the run = 25 ep; 55 ep into this stage``.
+    """Beside the box, in plain words: positions count from the start of the run, and where they are in the stage.
 
     >>> positions_words((28750,), 5750, "step", 1150)
-    'of the run = 25 ep into this stage'
+    'counted from the start of the run = 25 ep into this stage'
     >>> positions_words((30,), 0, "epoch", None)
-    'of the run (this stage starts with the run)'
+    'counted from the start of the run (where this stage starts)'
     """
     if start == 0:
-        return "of the run (this stage starts with the run)"
+        return "counted from the start of the run (where this stage starts)"
     ticks = list(at)
     shown = _as_epochs(ticks, unit, spe) or [f"{t:,}" for t in ticks]
     tail = "" if _as_epochs(ticks, unit, spe) else f" {unit}s"
-    return f"of the run = {'; '.join(shown)}{tail} into this stage"
+    return f"counted from the start of the run = {'; '.join(shown)}{tail} into this stage"

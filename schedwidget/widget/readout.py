@@ -14,7 +14,7 @@ import ipywidgets as W
 from ..facts import Facts
 from ..svg import render_svg
 from .guard import Panel
-from .theme import AMBER, rate
+from .theme import AMBER, number, pct, rate, rate_html, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -60,39 +60,40 @@ def facts_html(f: Facts) -> str:
     """The readout as HTML: sentence, a table of numbers, the boundary table."""
     e = html.escape
     unit = f.unit
-    half = "—" if f.half_life is None else _length(f.half_life, f)
-    rows = [
-        ("peak", f"{_g(f.peak)} at {when(f.peak_at, f)}"),
-        ("final", f"{_g(f.final)} at {when(f.steps - 1, f)}; {_g(f.after)} after the run"),
-        ("minimum", f"{_g(f.minimum)} at {when(f.minimum_at, f)}"),
-        ("sum of rates", f"{f.area:,.4g} over the run (mean rate {_g(f.mean)})"),
+    half = "—" if f.half_life is None else e(_length(f.half_life, f))
+    rh = rate_html
+    rows = [  # (label, cell as HTML)
+        ("peak", f"{rh(f.peak)} at {e(when(f.peak_at, f))}"),
+        ("final", f"{rh(f.final)} at {e(when(f.steps - 1, f))}; {rh(f.after)} after the run"),
+        ("minimum", f"{rh(f.minimum)} at {e(when(f.minimum_at, f))}"),
+        ("sum of rates", e(f"{number(f.area)} over the run (mean rate ") + rh(f.mean) + ")"),
         ("half-life", half),
-        ("under 10 % of peak", f"from {when(f.under_10, f)}" if f.under_10 is not None else "never"),
-        ("under 1 % of peak", f"from {when(f.under_1, f)}" if f.under_1 is not None else "never"),
-        ("sudden drops or jumps", f"{len(f.breaks):,}" + (f" (first at {when(f.breaks[0], f)})"
-                                                          if f.breaks else "")),
+        (pct("under 10 % of peak"), e(f"from {when(f.under_10, f)}" if f.under_10 is not None else "never")),
+        (pct("under 1 % of peak"), e(f"from {when(f.under_1, f)}" if f.under_1 is not None else "never")),
+        ("sudden drops or jumps", e(f"{len(f.breaks):,}" + (f" (first at {when(f.breaks[0], f)})"
+                                                            if f.breaks else ""))),
     ]
     if not f.exact:
-        rows.append(("read from", f"an even grid of {unit}s plus every jump and stage change (the run is long)"))
+        rows.append(("read from", e(f"an even grid of {unit}s plus every jump and stage change (the run is long)")))
     cell = 'style="text-align:left;padding:0 10px 0 0;line-height:1.5"'
-    num = f"<table>{''.join(f'<tr><th {cell}>{e(k)}</th><td {cell}>{e(v)}</td></tr>' for k, v in rows)}</table>"
+    num = f"<table>{''.join(f'<tr><th {cell}>{e(k)}</th><td {cell}>{v}</td></tr>' for k, v in rows)}</table>"
     head = "".join(f"<th {cell}>{e(h)}</th>" for h in ("where stages change", unit,
                                                        "epoch" if f.steps_per_epoch and unit == "step" else "",
                                                        "rate"))
     body = []
     for label, t, r in f.boundary:
         ep = f"{t / f.steps_per_epoch:,.3f}" if f.steps_per_epoch and unit == "step" else ""
-        shown = f'<span title="{r!r}">{e(_g(r))}</span>'
+        shown = f'<span title="exactly {r!r}">{e(_g(r))}</span>'
         body.append("<tr>" + "".join(f"<td {cell}>{c}</td>" for c in (e(_plain(label, unit)), f"{t:,}", ep, shown))
                     + "</tr>")
     boundary = f"<table><tr>{head}</tr>{''.join(body)}</table>"
-    return (f"<div style=\"margin:0 0 4px 0;line-height:1.4\">{e(f.sentence)}</div>"
+    return (f"<div style=\"margin:0 0 4px 0;line-height:1.4\">{tidy_html(f.sentence)}</div>"
             f"<div style=\"display:flex;flex-wrap:wrap;gap:4px 24px;align-items:flex-start\">{num}{boundary}</div>")
 
 
 def cautions_html(f: Facts) -> str:
     """The cautions as HTML lines (empty string when there are none)."""
-    return "".join(f"<div>&#9888; {html.escape(c)}</div>" for c in f.cautions)
+    return "".join(f"<div>&#9888; {tidy_html(c)}</div>" for c in f.cautions)
 
 
 class ReadoutPanel(Panel, W.VBox):
@@ -129,7 +130,7 @@ class ReadoutPanel(Panel, W.VBox):
         text, warn = facts_html(f), cautions_html(f)
         if self.text.value != text:
             self.text.value = text
-        said = f'<div style="line-height:1.4;color:#374151">{html.escape(f.sentence)}</div>'
+        said = f'<div style="line-height:1.4;color:#374151">{tidy_html(f.sentence)}</div>'
         if self.sentence.value != said:
             self.sentence.value = said
         if self.cautions.value != warn:

@@ -31,7 +31,7 @@ from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
 from .guard import Panel, quietly
-from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, RateAxes, figure_layout
+from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, RateAxes, figure_layout, rate, rate_html, tidy_html
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -181,7 +181,6 @@ class ReplayPanel(Panel, W.VBox):
                                   colors=[CURVE], marker="triangle-down", default_size=48, visible=False)
         self.x_axis = Axis(scale=self.xs, label="epoch (metric read at each epoch's end)", tick_format="d",
                            tick_values=np.array(nice_ticks(90)))
-        self.rates.log.tick_format = ".1e"
         axes = [self.x_axis, *self.rates.axes,
                 Axis(scale=self.ms, side="right", label="metric", tick_format=".3~g", label_offset="4em",
                      color=METRIC, grid_lines="none")]
@@ -222,7 +221,7 @@ class ReplayPanel(Panel, W.VBox):
         return quietly(fn, self._say, "the last replay is kept")
 
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
-        value = html.escape(text)
+        value = tidy_html(text)
         if self.message.style.text_color != colour:
             self.message.style.text_color = colour
         if self.message.value != value:
@@ -314,8 +313,8 @@ class ReplayPanel(Panel, W.VBox):
         n = len(self.values)
         inside = sum(1 for d in r.drops if d.epoch < n)
         after = " (+1 after the run)" if inside < len(r.drops) else ""
-        words = html.escape(f"{self.source_name}: {n} evaluations, best {r.best:.6g} at epoch {r.best_at}, "
-                            f"{inside} drops{after}, final rate {r.next_rate:.3g}")
+        words = (html.escape(f"{self.source_name}: {n:,} evaluations, best {r.best:.6g} at epoch {r.best_at:,}, "
+                             f"{inside:,} drops{after}, final rate ") + rate_html(r.next_rate))
         if self.status.value != words:
             self.status.value = words
         caution = self._caution(r, start)
@@ -329,9 +328,9 @@ class ReplayPanel(Panel, W.VBox):
         low = float(np.min(np.append(r.rates, r.next_rate)))
         if not ref > 0 or low >= TINY * ref:
             return ""
-        return html.escape(f"Caution: the replayed rate falls to {low:.3g}, below {TINY:g} x the start rate "
-                           f"{ref:.3g} (floor {self.rule['floor']:g}); such a rate no longer trains. "
-                           "Set a floor, or fewer drops.")
+        return tidy_html(f"Caution: the replayed rate falls to {rate(low)}, below a millionth of the start rate "
+                         f"{rate(ref)} (lowest rate {rate(self.rule['floor'])}); such a rate no longer trains. "
+                         "Set a lowest rate, or fewer drops.")
 
     def rate_of(self, r: PlateauReplay, epoch: int) -> float:
         """The combined rate used in ``epoch`` (``next_rate`` just past the history)."""
@@ -381,8 +380,8 @@ class ReplayPanel(Panel, W.VBox):
             reading = ("faithful if the logged run used this rate up to here" if i == 0 else "indicative")
             if d.epoch >= n:
                 reading += " (after the run)"
-            cells = (d.epoch, f"{self.rate_of(r, d.epoch - 1):.4g}", f"{self.rate_of(r, d.epoch):.4g}",
-                     f"{d.best:.6g}", d.best_at, d.stale)
+            cells = (f"{d.epoch:,}", rate_html(self.rate_of(r, d.epoch - 1)), rate_html(self.rate_of(r, d.epoch)),
+                     f"{d.best:.6g}", f"{d.best_at:,}", f"{d.stale:,}")
             rows.append("<tr>" + "".join(f"<td {NUM}>{c}</td>" for c in cells) + f"<td {TXT}>{reading}</td></tr>")
         return f"<p><b>Drops</b></p><table>{head}{''.join(rows)}</table>"
 
@@ -399,22 +398,22 @@ class ReplayPanel(Panel, W.VBox):
 
     def what_if_title(self) -> str:
         """Which history and floor the what-if strip used."""
-        return (f"history {self.source_name}, factor {self.rule['factor']:g}, floor {self.rule['floor']:g}, "
-                f"wait after drop {self.rule['wait_after_drop']}")
+        return (f"history {self.source_name}, multiply rate by {self.rule['factor']:g}, lowest rate "
+                f"{rate(self.rule['floor'])}, pause after a drop {self.rule['wait_after_drop']}")
 
     def _what_if_html(self, what_if: dict[int, PlateauReplay]) -> str:
         rows = []
         for p, r in what_if.items():
             shown, count = self._epochs_words(list(r.drop_epochs))
             bold = p == self.rule["patience"]  # the row of the current rule
-            cells = [(p, NUM), (shown or "none", TXT), (count, NUM), (f"{r.next_rate:.3g}", NUM)]
+            cells = [(p, NUM), (shown or "none", TXT), (count, NUM), (rate_html(r.next_rate), NUM)]
             rows.append("<tr>" + "".join(f"<td {a}><b>{c}</b></td>" if bold else f"<td {a}>{c}</td>"
                                          for c, a in cells) + "</tr>")
-        head = (f"<tr><th {NUM}>patience</th><th {TXT}>drop epochs</th><th {NUM}>drops in the run</th>"
+        head = (f"<tr><th {NUM}>evaluations to wait</th><th {TXT}>drop epochs</th><th {NUM}>drops in the run</th>"
                 f"<th {NUM}>final rate</th></tr>")
         title = html.escape(self.what_if_title())
-        return (f"<p><b>What if</b>: the same history and rule at patience 1..8 ({title}; drops after the first "
-                f"are indicative)</p><table>{head}{''.join(rows)}</table>")
+        return (f"<p><b>What if</b>: the same history and rule, waiting 1 to 8 evaluations ({title}; drops after "
+                f"the first are indicative)</p><table>{head}{''.join(rows)}</table>")
 
     def what_if_text(self) -> str:
         """The what-if strip as plain lines: ``patience 3: 24, 42, 46``."""

@@ -31,7 +31,7 @@ from ..sample import trace
 from ..svg import nice_ticks
 from ..schedule import complain
 from .guard import Panel, quietly
-from .theme import AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, figure_layout
+from .theme import AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, figure_layout, rate_html, tidy_html
 from .theme import METRIC as OLD  # muted grey: the design as it is
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -61,7 +61,8 @@ class RescalePanel(Panel, W.VBox):
                                tooltip="samples per batch on each process")
         self.processes = W.IntText(value=1, description="processes", style=label, layout={"width": "14em"},
                                    tooltip="data-parallel processes: the global batch is batch x processes")
-        self.rule = W.ToggleButtons(options=["linear", "sqrt"], value="linear", description="rate rule",
+        self.rule = W.ToggleButtons(options=[("linear", "linear"), ("square root", "sqrt")], value="linear",
+                                    description="rate rule",
                                     tooltips=["rates x new/old batch (Goyal et al. 2017)",
                                               "rates x sqrt(new/old batch) (Krizhevsky 2014; from memory)"],
                                     style={"button_width": "7em", "description_width": "5em"})
@@ -110,7 +111,7 @@ class RescalePanel(Panel, W.VBox):
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
         if self.message.style.text_color != colour:
             self.message.style.text_color = colour
-        value = html.escape(text)
+        value = tidy_html(text)
         if self.message.value != value:
             self.message.value = value
 
@@ -172,7 +173,7 @@ class RescalePanel(Panel, W.VBox):
         peak_old, peak_new = float(np.max(to.y)), float(np.max(tn.y))
         unit = r.unit
         rows = [("global batch", f"{r.old_batch:,}", f"{r.new_batch:,}"),
-                ("peak rate", f"{peak_old:.4g}", f"{peak_new:.4g}"),
+                ("peak rate", rate_html(peak_old), rate_html(peak_new)),
                 (f"run length ({unit}s)", f"{r.old_steps:,}", f"{r.new_steps:,}")]
         if r.old_spe:
             rows.append(("steps per epoch", f"{r.old_spe:,}", f"{r.new_spe:,}" if r.new_spe else "?"))

@@ -68,9 +68,9 @@ class StagesPanel(BudgetRow, Panel, W.VBox):
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
         self.note = W.HTML("")
-        self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3450, '
-                           '3 ep or 6 % of the run (parts of a step round up: common practice, no source); rates '
-                           'as 3e-4 or 1 % of the peak.</div>')
+        self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3,450, '
+                           '3 ep or 6\u2009% of the run (parts of a step round up: common practice, no source); '
+                           'rates as 3e-4 or 1\u2009% of the peak.</div>')
         self.rule.add_class("sw-rule")
         self.fill: int | None = None  # the stage chosen to fill the rest of the run (None: the longest)
         self.list = W.VBox([])
@@ -112,9 +112,9 @@ class StagesPanel(BudgetRow, Panel, W.VBox):
         try:
             d = self.d
             put(self.unit, d.unit)
-            put(self.spe, f"{d.steps_per_epoch}" if d.steps_per_epoch else "")
+            put(self.spe, f"{d.steps_per_epoch:,}" if d.steps_per_epoch else "")
             put(self.total, number_text(d.steps))
-            put(self.batch, f"{d.batch}" if d.batch else "")
+            put(self.batch, f"{d.batch:,}" if d.batch else "")
             words = f"the run: {d.steps:,} {d.unit}s"
             if d.steps_per_epoch and d.unit == "step":
                 words += f" = {d.steps / d.steps_per_epoch:,.4g} epochs of {d.steps_per_epoch:,} steps"

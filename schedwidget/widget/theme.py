@@ -25,7 +25,7 @@ with warnings.catch_warnings():
 
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
-           "rate", "rate_html", "count", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
+           "rate", "rate_html", "number", "count", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
            "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
@@ -112,17 +112,21 @@ _PERCENT = re.compile(r"(\d)[ \u00a0\u202f]?%")
 _EXPONENT = re.compile(r"(?<![\w.])-?\d+(?:\.\d+)?[eE][-+]?\d+(?![\w.])")
 
 
+#: "~0 (5.16e-11)": a tiny value the core already wrote as ~0 with its exact value beside it.
+_SAID_TINY = re.compile(r"~0 \((-?\d+(?:\.\d+)?[eE][-+]?\d+)\)")
+
+
 def rate(x: float) -> str:
     """A rate to 3 significant digits; a tiny positive value as ``~0``.
 
-    >>> rate(0.1), rate(3e-4), rate(2.58e-11), rate(0.0), rate(0.099982)
-    ('0.1', '0.0003', '~0', '0', '0.1')
+    >>> rate(0.1), rate(3e-4), rate(2.58e-11), rate(0.0), rate(0.099982), rate(3e-5)
+    ('0.1', '0.0003', '~0', '0', '0.1', '3e-5')
     """
     if x == 0 or not math.isfinite(x):
         return f"{x:g}"
     if abs(x) < TINY:
         return "~0"
-    return f"{x:.3g}"
+    return f"{x:.3g}".replace("e-0", "e-").replace("e+0", "e+")  # 3e-5 as the log axis writes it, not 3e-05
 
 
 def rate_html(x: float) -> str:
@@ -133,6 +137,20 @@ def rate_html(x: float) -> str:
     """
     shown = rate(x)
     return f'<span title="exactly {x!r}">{shown}</span>' if shown == "~0" else html.escape(shown)
+
+
+def number(x: float) -> str:
+    """Any other quantity (a sum of rates, a ratio): 4 significant digits, thousands separated, no exponent
+    for large values, ``~0`` for tiny ones.
+
+    >>> number(0.1), number(4975.04), number(1.0), number(51_750.3), number(2e-12)
+    ('0.1', '4,975', '1', '51,750', '~0')
+    """
+    if x != 0 and math.isfinite(x) and abs(x) < TINY:
+        return "~0"
+    if abs(x) >= 1000:
+        return f"{x:,.0f}"
+    return f"{x:.4g}".replace("e-0", "e-")
 
 
 def count(n: float) -> str:
@@ -161,7 +179,12 @@ def pct(text: str) -> str:
     return _PERCENT.sub(lambda m: m.group(1) + THIN + "%", text)
 
 
+_NUMBERS = re.compile(f"{_SAID_TINY.pattern}|{_EXPONENT.pattern}")
+
+
 def _tiny(m: re.Match) -> str:
+    if m.group(1) is not None:  # "~0 (5.16e-11)"
+        return f'<span title="exactly {m.group(1)}">~0</span>'
     v = float(m.group(0))
     if v != 0 and abs(v) < TINY:
         return f'<span title="exactly {m.group(0)}">~0</span>'
@@ -176,8 +199,10 @@ def tidy_html(text: str) -> str:
 
     >>> tidy_html("ends at 2.58e-11 at step 9, half-life 1.554e+04 steps")
     'ends at <span title="exactly 2.58e-11">~0</span> at step 9, half-life 15,540 steps'
+    >>> tidy_html("ends at ~0 (5.16e-11) at step 9")
+    'ends at <span title="exactly 5.16e-11">~0</span> at step 9'
     """
-    return _EXPONENT.sub(_tiny, pct(html.escape(text)))
+    return _NUMBERS.sub(_tiny, pct(html.escape(text)))
 
 
 def nice_ceiling(x: float) -> float:
