@@ -154,6 +154,11 @@ class OneCycle(_Leaf):
                                optional=True,
                                doc="share of the budget spent rising to the peak with phases=2; None with phases=3 "
                                    "(its rise is (1 - tail) / 2)")
+    ends: str = param("after", kind="choice", choices=("after", "on"),
+                      doc="with phases=2, where each phase's end value lands: 'after' the phase, at the next tick "
+                          "(the peak at rise * steps, final at tick steps, the continuous clock of every shape), or "
+                          "'on' its own last tick (the peak on tick rise * steps - 1, final on the last tick "
+                          "steps - 1)")
 
     def __post_init__(self) -> None:
         self._validate()
@@ -162,6 +167,9 @@ class OneCycle(_Leaf):
         if self.phases == 2:
             self._check_two()
             return
+        if self.ends != "after":
+            raise complain("one_cycle", "ends", self.ends, "'after' with phases=3",
+                           "the three-phase cycle ends its phases on the continuous clock")
         if self.rise is not None:
             raise complain("one_cycle", "rise", self.rise, "None with phases=3",
                            "the three-phase cycle rises for (1 - tail) / 2 of the budget; for another share use "
@@ -183,31 +191,43 @@ class OneCycle(_Leaf):
         if self.final > self.peak:
             raise complain("one_cycle", "final", self.final, f"<= peak = {self.peak!r}",
                            "the second phase anneals down from the peak")
-        r = self.rise * self.steps
-        if not (r >= 1.0 and self.steps - r >= 1.0):
+        xs = self._knots()[0]
+        if not (xs[1] - xs[0] >= 1.0 and xs[2] - xs[1] >= 1.0):
+            extra = 1 if self.ends == "on" else 0
             raise complain("one_cycle", "rise", self.rise,
                            f"a share that leaves at least one tick to each phase of {self.steps} "
-                           f"(between {1.0 / self.steps:.3g} and {1.0 - 1.0 / self.steps:.3g})",
+                           f"(between {(1 + extra) / self.steps:.3g} and {1.0 - 1.0 / self.steps:.3g}"
+                           + (" with ends='on')" if extra else ")"),
                            "each phase needs at least one tick")
 
     def __repr__(self) -> str:
-        text = Schedule.__repr__(self)  # the three-phase defaults are left out, so older reprs read the same
+        text = Schedule.__repr__(self)  # the new parameters at their defaults are left out: older reprs read the same
+        if self.ends == "after":
+            text = text.replace(", ends='after')", ")")
         return text.replace(", phases=3, rise=None)", ")") if self.phases == 3 and self.rise is None else text
 
     def _knots(self) -> tuple[np.ndarray, np.ndarray]:
         if self.phases == 2:  # the peak at rise * steps, final reached at tick steps (the continuous clock)
-            return (np.array([0.0, self.rise * self.steps, float(self.steps)]),
-                    np.array([self.low, self.peak, self.final]))
+            top, end = float(self.rise * self.steps), float(self.steps)
+            if self.ends == "on":  # each phase's end value on its own last tick
+                top, end = top - 1.0, end - 1.0
+            return np.array([0.0, top, end]), np.array([self.low, self.peak, self.final])
         r = (1.0 - self.tail) * self.steps / 2.0
         return (np.array([0.0, r, 2.0 * r, float(self.steps)]),
                 np.array([self.low, self.peak, self.low, self.final]))
 
     def _source(self, w, u, bound, ind, sink):
         xs, ys = (a.tolist() for a in self._knots())
+        if xs[-1] < self.steps and (bound is None or bound > xs[-1]):  # ends='on': held from the last tick on
+            v = w.fresh("u")
+            w.put(ind, f"{v} = {u} if {u} < {num(xs[-1])} else {num(xs[-1])}")
+            u = v
         w.pieces(xs, ys, u, ind, sink, self.curve, ys[-1])
 
     def _at(self, u):
         xs, ys = self._knots()
+        if xs[-1] < self.steps:  # ends='on': the final rate from the last tick on (a half cosine would run on)
+            u = np.minimum(u, xs[-1])
         return _piecewise(xs, ys, u, self.curve)
 
     def _range(self, a, b):
@@ -351,14 +371,17 @@ def triangle(low: float, high: float, half_period: int, shrink: float = 1.0,
 
 
 def one_cycle(peak: float, steps: int, low: float | None = None, final: float | None = None,
-              tail: float = 0.1, curve: str = "linear", phases: int = 3, rise: float | None = None) -> Schedule:
+              tail: float = 0.1, curve: str = "linear", phases: int = 3, rise: float | None = None,
+              ends: str = "after") -> Schedule:
     """The one-cycle policy: a rise to ``peak``, then back down.
 
     ``phases=3`` (Smith 2018): a rise and an equal fall over ``(1 - tail) * steps`` ticks, peaking at its
     middle, then an annihilation tail from ``low`` to ``final``.  ``phases=2``: a rise over ``rise * steps``
     ticks, then one fall from ``peak`` to ``final`` over the rest; with ``curve="cosine"`` both are half cosines,
     the form most training code uses today (``rise`` defaults to 0.3: common practice, no source).  ``final``
-    is reached at tick ``steps``, as every shape here reaches its end; ``low`` defaults to ``peak / 10`` and
+    is reached at tick ``steps``, as every shape here reaches its end; with two phases ``ends="on"`` puts each
+    phase's end value on its own last tick instead (the peak on tick ``rise * steps - 1``, ``final`` on the
+    last tick ``steps - 1``), the ticks torch's one-cycle scheduler uses.  ``low`` defaults to ``peak / 10`` and
     ``final`` to ``low / 100`` (from memory of Smith 2018's advice: a cycle range of about one decade and a
     tail that goes "several orders of magnitude" lower).
 
@@ -372,7 +395,8 @@ def one_cycle(peak: float, steps: int, low: float | None = None, final: float | 
     lo = peak / 10.0 if low is None else low
     fin = lo / 100.0 if final is None else final
     share = 0.3 if rise is None and phases == 2 else rise
-    return OneCycle(peak=peak, steps=steps, low=lo, final=fin, tail=tail, curve=curve, phases=phases, rise=share)
+    return OneCycle(peak=peak, steps=steps, low=lo, final=fin, tail=tail, curve=curve, phases=phases, rise=share,
+                    ends=ends)
 
 
 def knots(points: Sequence[tuple[int, float]], interp: str = "linear", steps: int | None = None) -> Schedule:

@@ -119,23 +119,22 @@ class TestTwoPhaseOneCycle:
     def test_against_torch_tick_by_tick(self, torch, n, rise, curve):
         """torch 2.13's OneCycleLR(three_phase=False) ends each phase on a tick of its own: found by running it
         (see test_torch_conventions), the peak lands on tick rise * n - 1 and the final rate on the last tick
-        n - 1.  Our one_cycle reads the share on the continuous clock as every shape here does: the peak at
-        tick rise * n and the final rate reached at tick n (held after), which is the published form above
-        (positions as shares of training done).  torch's ticks are therefore our design over n - 1 ticks with
-        the peak at the same tick, followed by the final rate for the last tick; that design matches torch at
-        every tick."""
+        n - 1.  Our default (ends='after') reads the share on the continuous clock as every shape here does and
+        as the published form above does (positions as shares of training done): the peak at tick rise * n and
+        the final rate reached at tick n, held after it; the same curve one tick later.  ends='on' is torch's
+        convention and matches it at every tick."""
         peak, div, final_div = 0.5, 25.0, 1e4
         low = peak / div
         ref = torch_rates(torch, n, max_lr=peak, pct_start=rise, anneal_strategy="cos" if curve == "cosine" else "linear",
                           three_phase=False, div_factor=div, final_div_factor=final_div)
-        top = float(rise * n) - 1.0  # torch's first phase end, as torch computes it
-        same = stages(one_cycle(peak, n - 1, low=low, final=low / final_div, phases=2, rise=top / (n - 1), curve=curve),
-                      flat(low / final_div, steps=1))
-        assert same.length == n
-        np.testing.assert_allclose(same(np.arange(n)), ref, rtol=1e-12, atol=1e-15)
-        ours = one_cycle(peak, n, low=low, final=low / final_div, phases=2, rise=rise, curve=curve)
-        # our own form: the same curve one tick later (the peak at rise * n, not rise * n - 1)
-        assert int(np.argmax(ours(np.arange(n)))) == round(rise * n) and int(np.argmax(ref)) == round(rise * n) - 1
+        on = one_cycle(peak, n, low=low, final=low / final_div, phases=2, rise=rise, curve=curve, ends="on")
+        np.testing.assert_allclose(on(np.arange(n)), ref, rtol=1e-12, atol=1e-15)
+        assert on(n - 1) == on(n + 5) == pytest.approx(low / final_div, rel=1e-9)  # held from the last tick on
+        after = one_cycle(peak, n, low=low, final=low / final_div, phases=2, rise=rise, curve=curve)
+        assert int(np.argmax(after(np.arange(n)))) == round(rise * n) and int(np.argmax(ref)) == round(rise * n) - 1
+        # the two conventions are the same curve shifted by one tick over the fall
+        k = np.arange(round(rise * n) + 1, n)
+        np.testing.assert_allclose(after(k), ref[k - 1], rtol=1e-9, atol=1e-15)
 
     def test_torch_conventions(self, torch):
         """torch 2.13 OneCycleLR, two phases, found by running it: tick 0 is max_lr / div_factor, the peak is on
@@ -159,6 +158,10 @@ class TestTwoPhaseOneCycle:
             one_cycle(1.0, 10, phases=2, final=2.0)
         with pytest.raises(ScheduleError, match=r"one_cycle: phases must be a whole number >= 2 and <= 3"):
             one_cycle(1.0, 10, phases=4)
+        with pytest.raises(ScheduleError, match=r"one_cycle: ends must be 'after' with phases=3"):
+            one_cycle(1.0, 10, ends="on")
+        with pytest.raises(ScheduleError, match=r"one_cycle: rise must be a share .* with ends='on'"):
+            one_cycle(1.0, 10, phases=2, rise=0.15, ends="on")  # the peak would be on tick 0.5
         assert one_cycle(1.0, 100, phases=2).rise == 0.3  # common practice, no source
         # two phases may end above low (one fall from the peak)
         assert one_cycle(1.0, 10, low=0.1, final=0.2, phases=2, rise=0.5)(10) == pytest.approx(0.2)
@@ -166,7 +169,11 @@ class TestTwoPhaseOneCycle:
     @pytest.mark.parametrize("s", [one_cycle(0.4, 41, phases=2, rise=0.3, curve="cosine"),
                                    one_cycle(0.4, 97, phases=2, rise=0.25),
                                    warmup(one_cycle(0.2, 50, phases=2, rise=0.5, curve="cosine"), 5),
-                                   stages(one_cycle(0.1, 30, phases=2, rise=0.2), flat(0.001, steps=5))], ids=repr)
+                                   stages(one_cycle(0.1, 30, phases=2, rise=0.2), flat(0.001, steps=5)),
+                                   one_cycle(0.3, 23, phases=2, rise=0.3, curve="cosine", ends="on"),
+                                   stages(one_cycle(0.1, 30, phases=2, rise=0.2, ends="on"), flat(0.01, steps=5)),
+                                   warmup(one_cycle(0.2, 17, phases=2, rise=0.4, ends="on", curve="cosine"), 3)],
+                         ids=repr)
     def test_every_route_equals_the_core(self, s):
         assert_every_route(s)
 
