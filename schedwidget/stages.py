@@ -308,6 +308,9 @@ class Warmup(Schedule):
     def _lead_in(self) -> int:
         return int(self.steps)
 
+    def _rise(self) -> int:  # as a design's first stage, a rising warmup is its lead-in (either place)
+        return int(self.steps) if self._ramp._rise() else 0
+
     def _warmed(self) -> Schedule:
         return self.target
 

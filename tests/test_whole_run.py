@@ -225,6 +225,10 @@ class TestOver:
     def test_lead_in_and_rescale(self):
         s = warmup(flat(0.1), 5, place="over")
         assert sw.plateau.lead_in(s) == 5
+        # a rising warmup as a design's first stage is the design's lead-in, in either place
+        assert sw.plateau.lead_in(stages(warmup(flat(0.1, steps=10), 5, place="over"), flat(0.01))) == 5
+        assert sw.plateau.lead_in(stages(warmup(flat(0.1, steps=10), 5), flat(0.01))) == 5
+        assert sw.plateau.lead_in(stages(warmup(flat(0.1, steps=10), 5, start=0.2), flat(0.01))) == 0  # falls
         big = sw.scale_for_batch(s, 128, 1024)  # open-ended and constant after the warmup: the warmup moves
         moved = big._pointwise_target()  # the rates x8 (linear rule), the warmup to the same samples seen
         assert moved.place == "over" and moved.steps == 1 and big(1) == pytest.approx(0.8)
