@@ -248,9 +248,20 @@ def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
            if unit == "step" else "one tick is one epoch: call scheduler.step() once after each epoch")
     ep = f" ({n / spe:g} epochs of {spe:,} steps)" if spe and unit == "step" and n is not None else ""
     first = "the first update" if unit == "step" else "the first epoch"
+    from .facts import warmup_of  # lazy, as _peak's facts: the readouts import the sampler, not the writer
+
+    warm = warmup_of(s)
+    if warm is None:
+        warm_line = []
+    elif warm[0] == "over":
+        warm_line = [f"Warmup: laid over the first {warm[1]:,.0f} {unit}s; every later tick (drops, restarts) "
+                     "counts from the start of the run."]
+    else:
+        warm_line = [f"Warmup: {warm[1]:,.0f} {unit}s before the schedule, whose own ticks start after it."]
     lines = [f"Learning rate at tick t (an int >= 0; t = 0 is {first}).", "",
              f"Unit: {unit} ({per}).",
              f"Budget: {n:,} {unit}s{ep}." if n is not None else "Budget: open-ended (no planned length).",
+             *warm_line,
              f"Peak: {peak!r} at {unit} {peak_at:,}" + ("" if exact else " (read from a grid of ticks)")
              + ("." if n is not None else f" (first {span:,} {unit}s)."),
              (f"Past the end (t >= {n:,}) the rate stays at {s(n)!r}, the value the design reaches at t = {n:,}."

@@ -154,19 +154,20 @@ def _repeats(s: Schedule) -> bool:
     return False
 
 
-def warmup_of(s: Schedule) -> tuple[str, float] | None:
+def warmup_of(s: Schedule) -> tuple[str, int] | None:
     """(place, length in ticks) of the design's own warmup: ``s`` or what it scales, clips or stretches; else None.
 
-    A warmup inside restarts or a later stage is part of that cycle or stage, not the design's warmup.
+    Through a stretch the length moves in proportion to the first whole tick at or after it (as the plateau
+    lead-in does).  A warmup inside restarts or a later stage is part of that cycle or stage, not the design's.
     """
-    scale = 1.0
+    num, den = 1, 1  # the clock scale of the stretches passed, as an exact fraction
     while True:
         if s._warmed() is not None:
-            return str(s.place), float(s.steps) * scale
+            return str(s.place), -(-int(s.steps) * num // den)
         inner = s._pointwise_target()
         if inner is None and s._unstretched() is not s:
             inner = s._unstretched()
-            scale *= s.length / inner.length
+            num, den = num * int(s.length), den * int(inner.length)
         if inner is None:
             return None
         s = inner

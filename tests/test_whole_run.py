@@ -119,6 +119,22 @@ class TestGoyal:
         assert before.warmup_place == "before" and "; warmup of 780 steps (5 epochs) before the schedule." in before.sentence
         assert facts(GOYAL.target).warmup_place is None and "warmup" not in facts(GOYAL.target).sentence
 
+    def test_readout_through_stretch_scale_and_clip(self):
+        from schedwidget.facts import warmup_of
+
+        assert warmup_of(GOYAL) == ("over", 5 * E)
+        assert warmup_of((GOYAL * 0.5).clip(high=1.0)) == ("over", 5 * E)
+        assert warmup_of(GOYAL.stretch(45 * E)) == ("over", math.ceil(5 * E / 2))  # the first whole tick at or after
+        assert warmup_of(restarts(warmup(cosine(0.1, steps=9), 2), cycles=2)) is None  # a cycle's, not the design's
+        assert warmup_of(stages(flat(0.1, steps=3), warmup(cosine(0.1, steps=9), 2))) is None
+
+    def test_generated_docstring_says_which_warmup(self):
+        text = to_python(GOYAL, steps_per_epoch=E)
+        assert "Warmup: laid over the first 780 steps; every later tick (drops, restarts) counts from the start" in text
+        before = to_python(warmup(cosine(0.1, steps=50), 5))
+        assert "Warmup: 5 steps before the schedule, whose own ticks start after it." in before
+        assert "Warmup" not in to_python(cosine(0.1, steps=50))
+
     def test_svg_says_which_warmup(self):
         svg = render_svg(GOYAL, steps_per_epoch=E)
         assert 'data-warmup="over"' in svg and "warmup laid over the first 780 steps" in svg
