@@ -64,14 +64,15 @@ class PlateauReplay:
 def lead_in(base: Schedule | None) -> int:
     """Epochs at the start of ``base`` during which no drop can be decided: its warmup.
 
-    A ``warmup(...)`` node gives its ``steps``; ``stages(ramp(...), ...)`` whose
+    A ``warmup(...)`` node gives its ``steps`` (placed before its schedule or laid over its first epochs
+    alike); ``stages(ramp(...), ...)`` whose
     first stage rises gives that ramp's length; ``s.stretch(n)`` gives its
     target's lead-in moved in proportion (the first whole epoch at or after it);
     anything else gives 0.
 
     >>> from schedwidget import cosine, flat, warmup
-    >>> lead_in(warmup(flat(0.1), 5)), lead_in(flat(0.1)), lead_in(None)
-    (5, 0, 0)
+    >>> lead_in(warmup(flat(0.1), 5)), lead_in(warmup(flat(0.1), 5, place="over")), lead_in(None)
+    (5, 5, 0)
     >>> lead_in(warmup(cosine(0.1, steps=850), 50).stretch(90))  # a design in steps read once per epoch
     5
     """
