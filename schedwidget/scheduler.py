@@ -228,7 +228,7 @@ def make_scheduler(optimizer: Any, design: Any, base_lr: float | None = None,
     >>> make_scheduler(head_at_10x, warmup(cosine(3e-4, steps=900), steps=100), base_lr=3e-4, groups=[1, 10])
     Traceback (most recent call last):
     ...
-    schedwidget.schedule.ScheduleError: make_scheduler: param_groups[1]['lr'] must be base_lr=0.0003 when groups[1]=10 sets its share (it starts at 10x base_lr, and the multiplier would apply on top: a 100x rate), got 0.003 (set that group's lr to base_lr, or pass groups=[1, 1] to keep the 10x its lr already gives)
+    schedwidget.params.ScheduleError: make_scheduler: param_groups[1]['lr'] must be base_lr=0.0003 when groups[1]=10 sets its share (it starts at 10x base_lr, and the multiplier would apply on top: a 100x rate), got 0.003 (set that group's lr to base_lr, or pass groups=[1, 1] to keep the 10x its lr already gives)
     """
     if _is_tracks(design):
         return _track_clock(optimizer, design, base_lr, groups, start_tick, state, resume_with)
