@@ -13,8 +13,8 @@ import pytest
 from schedwidget import ScheduleError, cosine, flat, from_spec, load, ramp, save, stages, to_python, to_spec
 from schedwidget import one_cycle, triangle, warmup
 from schedwidget.pieces import _piecewise
-from schedwidget.tracks import (GroupDesigns, Tracks, decay_per_step, inverse_momentum, per_group, track_facts,
-                                tracks, tracks_sentence, tracks_svg)
+from schedwidget.track_readouts import decay_per_step, track_facts, tracks_sentence, tracks_svg
+from schedwidget.tracks import GroupDesigns, Tracks, inverse_momentum, per_group, tracks
 
 
 def close(ours, ref, rel=1e-12):
