@@ -346,6 +346,7 @@ class _Search:
                 if ys[j] == self.goal - 0.5:
                     return self.at(ok[j])[0]
         if not hits:
+            self.extremes(ok, ys)  # a rise and fall between grid values may reach the goal: refused, not monotone
             finite = [y for y in ys if math.isfinite(y)] or ys
             raise self.refuse(f"reachable: {min(finite)!r} to {max(finite)!r} (over {self.name} = {ok[0]!r} to "
                               f"{ok[-1]!r})", "move another parameter, or change the design")
@@ -391,6 +392,35 @@ class _Search:
         if self.side(y) != 0 and not self.close(y, y0, jump=True):
             raise self.refuse(f"it jumps from {y0!r} at {self.name} = {before!r} to {y!r} at {v!r}")
         return self.at(before)[0] if abs(y0 - self.goal) < abs(y - self.goal) else s
+
+    def extremes(self, ok, ys) -> None:
+        """Around each interior highest or lowest grid value, the true extreme (ternary search over the values
+        between its neighbours); a ScheduleError when one reaches the goal (the target is then hit on both sides
+        of it, or only between grid values: either way not one answer found by bracketing)."""
+        for j in range(1, len(ys) - 1):
+            for sign in (1, -1):
+                if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]:
+                    a, b = self.key(ok[j - 1]), self.key(ok[j + 1])
+                    best = ys[j]
+                    for _ in range(2 * HALVINGS):
+                        if b - a <= 2:
+                            break
+                        m1, m2 = a + (b - a) // 3, b - (b - a) // 3
+                        y1, y2 = self.at(self.unkey(m1))[1], self.at(self.unkey(m2))[1]
+                        if y1 is None or y2 is None:
+                            break
+                        best = max(best, y1, y2) if sign > 0 else min(best, y1, y2)
+                        if sign * y1 < sign * y2:
+                            a = m1
+                        else:
+                            b = m2
+                    for k in range(a, b + 1):
+                        y = self.at(self.unkey(k))[1]
+                        if y is not None:
+                            best = max(best, y) if sign > 0 else min(best, y)
+                    if self.side(best) == 0 or self.side(best) != self.side(ys[j]):
+                        raise self.not_monotone([(ok[j - 1], ys[j - 1]), (ok[j], ys[j]), (ok[j + 1], ys[j + 1])])
+                    ys[j] = best
 
     # ----------------------------------------------------------------- helpers
     def side(self, y: float, strict: bool = False) -> int:
