@@ -62,43 +62,45 @@ def _node(s: Schedule) -> dict[str, Any]:
     return out
 
 
-def _check_size(s: Schedule, owner: str) -> None:
-    """Refuse a design a spec file cannot hold: deeper than MAX_DEPTH or with more than MAX_NODES schedules.
+def _check_size(s: Schedule, owner: str, room: int = MAX_DEPTH, seen: int = 0) -> int:
+    """Refuse a design a spec file cannot hold: deeper than ``room`` (MAX_DEPTH, less the objects a spec of
+    tracks or groups puts above it) or with more than MAX_NODES schedules counting ``seen`` (the objects
+    written before it in the same spec); the new count.
 
     Walks the design without recursion, so any design gets an answer in bounded time
     (a design that reuses one sub-design many times is counted as the tree it writes).
     """
-    todo, seen = [(s, 1)], 0
+    todo = [(s, 1)]
     while todo:
         node, level = todo.pop()
         seen += 1
-        if level > MAX_DEPTH:
-            raise complain(owner, "s", f"a design more than {MAX_DEPTH} schedules deep",
-                           f"at most {MAX_DEPTH} nested schedules (the limit of spec files)",
+        if level > room:
+            raise complain(owner, "s", f"a design more than {room} schedules deep",
+                           f"at most {room} nested schedules (the limit of spec files)",
                            "a design this deep is almost certainly built by mistake, e.g. in a loop")
         if seen > MAX_NODES:
             raise complain(owner, "s", f"a design of more than {MAX_NODES:,} schedules",
                            f"at most {MAX_NODES:,} schedules (the limit of spec files)")
         todo.extend((c, level + 1) for c in node.children())
+    return seen
 
 
-def _track_nodes(t: Any, owner: str) -> dict[str, Any]:
-    """The tracks besides the rate, as ``{"momentum": node, ...}`` (each checked like a design)."""
-    out = {}
-    for name, s in t.items():
-        if name != "rate":
-            _check_size(s, owner)
-            out[name] = _node(s)
-    return out
-
-
-def _group_node(t: Any, name: str | None, owner: str, always: bool = False) -> dict[str, Any]:
+def _group_node(t: Any, name: str | None, owner: str, count: list[int], above: int,
+                always: bool = False) -> dict[str, Any]:
     """A group's rate under "schedule" and its other tracks under "tracks" (written even when empty with
-    ``always``: a top-level tracks(rate) reads back as tracks, not as a bare schedule)."""
-    _check_size(t.rate, owner)
+    ``always``: a top-level tracks(rate) reads back as tracks, not as a bare schedule).
+
+    ``above`` is the objects the spec holds above the rate (0 at the top level, 1 in a group), each design's
+    room for nesting is that much less, and ``count`` carries the objects written so far (the loader's limits).
+    """
+    count[0] = _check_size(t.rate, owner, MAX_DEPTH - above, count[0] + above + 1)
     out: dict[str, Any] = {} if name is None else {"name": name}
     out["schedule"] = _node(t.rate)
-    more = _track_nodes(t, owner)
+    more = {}
+    for track, s in t.items():
+        if track != "rate":
+            count[0] = _check_size(s, owner, MAX_DEPTH - above - 1, count[0])
+            more[track] = _node(s)
     if more or always:
         out["tracks"] = more
     return out
@@ -133,9 +135,10 @@ def to_spec(s: Any, unit: str | None = None, steps_per_epoch: int | None = None)
     if isinstance(s, Schedule):
         spec["schedule"] = _node(s)
     elif isinstance(s, Tracks):
-        spec.update(_group_node(s, None, "to_spec", always=True))
+        spec.update(_group_node(s, None, "to_spec", [0], 0, always=True))
     else:
-        spec["groups"] = [_group_node(t, None if s.names is None else s.names[i], "to_spec")
+        count = [0]
+        spec["groups"] = [_group_node(t, None if s.names is None else s.names[i], "to_spec", count, 1)
                           for i, t in enumerate(s.groups)]
     return spec
 

@@ -78,7 +78,7 @@ def check_track(owner: str, name: str, s: Any) -> Schedule:
     raise complain(owner, name, _brief(s), f"a design whose values stay {words}", hint)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Tracks:
     """A rate design and optional designs for other hyperparameters, read on the same clock.
 
@@ -161,7 +161,7 @@ def _tracks_of(owner: str, where: str, x: Any) -> Tracks:
     raise complain(owner, where, _brief(x), "a Schedule or tracks(...)")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class GroupDesigns:
     """One set of tracks per optimizer param group, in ``optimizer.param_groups`` order (``names`` optional)."""
 
@@ -183,8 +183,8 @@ class GroupDesigns:
             if len(self.names) != len(self.groups):
                 raise complain("per_group", "names", self.names, f"one name per group ({len(self.groups)})")
             for i, name in enumerate(self.names):
-                try:
-                    check_name("per_group", name)
+                try:  # a builtin's name is fine here: functions are named "<group>_lr_at"
+                    check_name("per_group", name, frozenset())
                 except ScheduleError as exc:
                     raise ScheduleError(f"per_group: group name {i}: {exc}") from None
             if len(set(self.names)) != len(self.names):

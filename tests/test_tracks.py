@@ -132,6 +132,9 @@ class TestPerGroup:
         m = per_group({"backbone": ONE, "head": FULL})
         assert m.names == ("backbone", "head")
 
+    def test_builtin_names_are_group_names(self):
+        assert per_group({"input": ONE, "max": ONE}).names == ("input", "max")
+
     def test_bad_names(self):
         with pytest.raises(ScheduleError, match=r"per_group: group name 0: per_group: name must be a plain Python"):
             per_group({"back bone": ONE})
@@ -235,6 +238,24 @@ class TestSpec:
         bad = to_spec(FULL)
         bad["tracks"]["gamma"] = bad["tracks"]["beta2"]
         assert not check.is_valid(bad)
+
+    def test_depth_limits_agree_with_the_loader(self):
+        """A spec of tracks or groups holds objects above each design: to_spec refuses what load would."""
+        from schedwidget.spec import MAX_DEPTH
+
+        def deep(d):
+            s = flat(0.5)
+            for _ in range(d - 1):
+                s = s * 1.0
+            return s
+
+        for value in (tracks(deep(MAX_DEPTH), momentum=deep(MAX_DEPTH - 1)),
+                      per_group([tracks(deep(MAX_DEPTH - 1), momentum=deep(MAX_DEPTH - 2))])):
+            assert from_spec(to_spec(value)) == value
+        with pytest.raises(ScheduleError, match=rf"to_spec: s must be at most {MAX_DEPTH - 1} nested schedules"):
+            to_spec(tracks(flat(0.1), momentum=deep(MAX_DEPTH)))
+        with pytest.raises(ScheduleError, match=rf"to_spec: s must be at most {MAX_DEPTH - 2} nested schedules"):
+            to_spec(per_group([tracks(flat(0.1), momentum=deep(MAX_DEPTH - 1))]))
 
     def test_out_of_range_track_in_a_file(self):
         spec = to_spec(FULL)
