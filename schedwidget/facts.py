@@ -173,9 +173,36 @@ def warmup_of(s: Schedule) -> tuple[str, int] | None:
         s = inner
 
 
+def _shifted(s: Schedule, brk: np.ndarray, unit: str) -> list[str]:
+    """A caution when a warmup placed before its schedule moves the schedule's jumps later on the run's clock.
+
+    Writing ``warmup(drops(..., at=(30, 60, 80)), 5)`` puts the drops at 35, 65 and 85 of the run: right when
+    the schedule's ticks were meant after the warmup, silently wrong when they were meant on the run's clock
+    (Goyal et al. 2017 counts its epochs 30, 60 and 80 from the start of the run).  Only for a warmup that is the
+    design itself or what it scales or clips (through a stretch the schedule's own ticks are not whole).
+    """
+    node = s
+    while node._warmed() is None and node._pointwise_target() is not None:
+        node = node._pointwise_target()
+    if node._warmed() is None or node.place != "before":
+        return []
+    w = int(node.steps)
+    later = brk[brk > w]
+    if not later.size:
+        return []
+    shown = later[:3].tolist()
+    more = ", ..." if later.size > 3 else ""
+    own = ", ".join(f"{t - w:,}" for t in shown) + more
+    run = ", ".join(f"{t:,}" for t in shown) + more
+    return [f"the warmup of {w:,} {unit}s comes before the schedule, so the schedule's jumps at its own {unit}s "
+            f"{own} happen at {unit}s {run} of the run; if they are meant on the run's clock, lay the warmup over "
+            "them with warmup(..., place='over')"]
+
+
 def _cautions(s: Schedule, f0: float, peak: float, n: int, batch: int | None, unit: str) -> list[str]:
     out: list[str] = []
-    if peak > 1.0:
+    scaled = batch is not None and peak <= 0.1 * batch / 256 * (1 + 1e-12)  # the linear scaling rule's own rate
+    if peak > 1.0 and not scaled:  # a large batch explains a large peak (Goyal et al. 2017: 3.2 at batch 8,192)
         out.append(f"peak {_g(peak)} is above 1.0: far above what common optimisers train stably with "
                    "(common practice, no source); check that it is a rate, not a percentage")
     if batch is not None:
@@ -278,7 +305,8 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
                  area=area, breaks=tuple(brk.tolist()), joins=tuple(joins.tolist()), boundary=tuple(rows),
                  half_life=hl[0] if hl else None, half_life_epochs=hl_epochs,
                  warmup_place=None if warm is None else warm[0], under_10=under_10, under_1=under_1,
-                 cautions=tuple(_cautions(s, first, peak, n, batch, unit)), sentence=sentence)
+                 cautions=tuple(_cautions(s, first, peak, n, batch, unit) + _shifted(s, brk, unit)),
+                 sentence=sentence)
 
 
 def _whole_or_none(owner: str, name: str, value) -> int:

@@ -134,3 +134,22 @@ class TestSentenceFormat:
         ticks = [t for _, t, _ in f.boundary]
         assert [r for _, _, r in f.boundary] == s(np.array(ticks)).tolist()
         assert np.all(np.diff([t for _, t, _ in f.boundary]) >= 0)
+
+
+class TestWarmupCautions:
+    """A warmup placed before drops moves them later on the run's clock: the readout says so, and how to keep them."""
+
+    def test_before_moves_the_drops(self):
+        s = warmup(drops(3.2, at=(30, 60, 80), steps=90), 5, start=0.1)
+        (c,) = [c for c in facts(s, unit="epoch").cautions if "comes before the schedule" in c]
+        assert "its own epochs 30, 60, 80 happen at epochs 35, 65, 85 of the run" in c and "place='over'" in c
+        over = warmup(drops(3.2, at=(30, 60, 80), steps=90), 5, start=0.1, place="over")
+        assert not [c for c in facts(over, unit="epoch").cautions if "comes before" in c]
+        assert not [c for c in facts(warmup(cosine(0.1, steps=90), 5)).cautions if "comes before" in c]
+
+    def test_a_large_peak_explained_by_the_batch(self):
+        """3.2 is the linear scaling rule's rate at batch 8,192 (Goyal et al. 2017): no 'above 1.0' caution then."""
+        s = warmup(drops(3.2, at=(30, 60, 80), steps=90), 5, start=0.1, place="over")
+        assert not [c for c in facts(s, unit="epoch", batch=8192).cautions if "above 1.0" in c]
+        assert [c for c in facts(s, unit="epoch").cautions if "above 1.0" in c]  # without a batch: still said
+        assert [c for c in facts(s * 2.0, unit="epoch", batch=8192).cautions if "above 1.0" in c]
