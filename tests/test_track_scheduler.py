@@ -137,6 +137,15 @@ class TestMakeScheduler:
             assert (a["lr"], b["lr"]) == (HEAD_RATE(t), HEAD_RATE(t) * 0.1)
             assert a["momentum"] == b["momentum"] == tr.momentum(t) and a["weight_decay"] == 0.02
 
+    def test_a_loaded_design(self, torch, tmp_path):
+        from schedwidget import load_design
+
+        save(DESIGN, tmp_path / "d.json")
+        d = load_design(tmp_path / "d.json")
+        assert d.tracks == DESIGN and d.schedule == as_groups("test", DESIGN).groups[0].rate
+        c = make_scheduler(self.sgd(torch), d)
+        assert isinstance(c, TrackClock) and c.design == DESIGN
+
     def test_start_tick(self, torch):
         opt = self.sgd(torch)
         c = make_scheduler(opt, DESIGN, start_tick=30)

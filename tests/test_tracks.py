@@ -173,16 +173,18 @@ class TestInverseMomentum:
             inverse_momentum(cosine(0.1, steps=10))
 
     @pytest.mark.parametrize("optimizer", ["sgd", "adam"])
-    @pytest.mark.parametrize("phases,curve,anneal", [(3, "linear", "linear"), (2, "cosine", "cos")])
+    @pytest.mark.parametrize("phases,curve,anneal", [(3, "linear", "linear"), (2, "cosine", "cos"),
+                                                     (3, "cosine", "cos"), (2, "linear", "linear")])
     def test_torch_one_cycle(self, torch, optimizer, phases, curve, anneal):
-        """torch 2.13 OneCycleLR with cycle_momentum (three-phase linear; two-phase cosine), tick by tick."""
+        """torch 2.13 OneCycleLR with cycle_momentum (three_phase True/False, linear and cosine), tick by tick."""
         total, share = 101, 0.3
         ref_lr, ref_m = stepped(torch, lambda o: torch.optim.lr_scheduler.OneCycleLR(
             o, max_lr=0.1, total_steps=total, pct_start=share, anneal_strategy=anneal, three_phase=phases == 3,
             base_momentum=0.85, max_momentum=0.95), total, optimizer)
         # torch's phases end at pct_start * total - 1 (and 2 * pct_start * total - 2), the last at total - 1
         if phases == 3:
-            r = one_cycle(0.1, steps=total - 1, low=0.004, final=4e-7, tail=1 - 2 * (share * total - 1) / (total - 1))
+            r = one_cycle(0.1, steps=total - 1, low=0.004, final=4e-7, tail=1 - 2 * (share * total - 1) / (total - 1),
+                          curve=curve)
         else:
             r = one_cycle(0.1, steps=total - 1, low=0.004, final=4e-7, phases=2, rise=(share * total - 1) / (total - 1),
                           curve=curve)
