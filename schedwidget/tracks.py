@@ -38,12 +38,10 @@ def _brief(value: Any, limit: int = 100) -> Any:
     return brief(value, limit)
 
 
-def _peak(s: Schedule) -> tuple[float, int]:
-    """The highest value of ``s`` at any tick (its held value past its length included) and the first tick there.
-
-    Interval bounds first (one call); only when they do not settle the question is the budget read the way
-    ``facts`` reads it (every tick up to 2**21, else a grid refined by interval bounds), in bounded work.
-    """
+def _peak(s: Schedule) -> tuple[float, int, bool]:
+    """The highest value of ``s`` at any tick (its held value past its length included), the first tick there,
+    and whether every tick was read (budgets up to 2**21 ticks); longer ones are read the way ``facts`` reads
+    them, from a grid refined by interval bounds, in bounded work."""
     from .sample import breaks
     from .scan import _grid, _refine_peak, _scan, work
 
@@ -55,11 +53,16 @@ def _peak(s: Schedule) -> tuple[float, int]:
     peak, at, *_ = _scan(s, grid, end)
     if not exact:
         peak, at = _refine_peak(s, grid, peak, at)
-    return peak, at
+    return peak, at, exact
 
 
 def check_track(owner: str, name: str, s: Any) -> Schedule:
-    """``s`` if it is a Schedule whose values stay in the range of track ``name`` at every tick."""
+    """``s`` if it is a Schedule whose values stay in the range of track ``name`` at every tick.
+
+    The design's interval bounds over its whole budget settle it in one call for every design built from
+    monotone pieces; where they are not tight (products, sums), budgets up to 2**21 ticks are read tick by
+    tick, and a longer budget that the bounds do not keep inside the range is refused.
+    """
     if not isinstance(s, Schedule):
         raise complain(owner, name, _brief(s), "a Schedule (flat(0.9), ramp(...), inverse_momentum(...), ...)",
                        "a constant is flat(value)" if isinstance(s, (int, float)) else None)
@@ -69,9 +72,14 @@ def check_track(owner: str, name: str, s: Any) -> Schedule:
     top = float(s._span(np.array([0.0]), np.array([b]))[1][0])
     if top < hi or (top == hi and not open_hi):
         return s  # the interval bound settles it for every tick
-    peak, at = _peak(s)
-    if peak < hi or (peak == hi and not open_hi):
-        return s
+    peak, at, exact = _peak(s)
+    inside = peak < hi or (peak == hi and not open_hi)
+    if inside and exact:
+        return s  # every tick read
+    if inside:  # a grid found nothing, but it cannot vouch for every tick: refuse what is not shown to fit
+        raise complain(owner, name, _brief(s), f"a design whose values stay {words}",
+                       f"its interval bounds reach {top!r}, and its budget is too long to read every tick; hold "
+                       f"it inside the range, e.g. with .clip(high=...)")
     hint = f"it reaches {peak!r} at tick {at:,}"
     if name in ("momentum", "beta2"):
         hint += "; a momentum of 1 or more never forgets a gradient and diverges"

@@ -74,6 +74,14 @@ class TestTracks:
         assert float(np.max(m(np.arange(101)))) < 1.0
         assert tracks(flat(0.1, steps=100), momentum=m).momentum is m
 
+    def test_long_budget_with_loose_bounds_is_refused(self):
+        """Over 2**21 ticks not every tick is read: bounds that reach 1 refuse, a clip makes them tight."""
+        n = 10 ** 7
+        m = ramp(0.99, 0.5, n) * ramp(0.5, 1.02, n)
+        with pytest.raises(ScheduleError, match=r"its interval bounds reach 1.0098.*too long to read every tick"):
+            tracks(flat(0.1, steps=n), momentum=m)
+        assert tracks(flat(0.1, steps=n), momentum=m.clip(high=0.99)).momentum == m.clip(high=0.99)
+
     def test_fuzzed_values_outside_their_range_are_refused(self):
         """Seeded: a momentum or beta2 design is refused exactly when some tick (or its held value) reaches 1."""
         rng = random.Random(15)
