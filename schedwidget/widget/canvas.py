@@ -24,7 +24,7 @@ from ..sample import Trace, trace
 from ..schedule import Schedule
 from ..svg import nice_ticks  # one tick rule for the live and static curves
 from .guard import Panel
-from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, RateAxes, figure_layout, legend_html, rate
+from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, TOGGLE, RateAxes, figure_layout, legend_html, rate
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -92,7 +92,7 @@ class CurvePanel(Panel, W.VBox):
         self.band_scale = OrdinalScale()
         self.bands = Bars(x=np.arange(HOVER_BANDS), y=np.ones(HOVER_BANDS), scales={"x": self.band_scale,
                           "y": self.unit_scale}, padding=0.0, colors=["#ffffff"], opacities=[0.0], stroke=None,
-                          interactions={"hover": "tooltip"}, tooltip=None)
+                          interactions={"hover": "tooltip"}, tooltip=None, base=-1.0, apply_clip=True)
         self.hover_line = Lines(x=np.zeros((1, 2)), y=np.array([[0.0, 1.0]]), scales={"x": self.xs,
                                 "y": self.unit_scale}, colors=[HOVER], stroke_width=1, visible=False)
         self.x_axis = Axis(scale=self.xs, label="step", tick_format="~s", num_ticks=6, label_offset="32px")
@@ -111,10 +111,12 @@ class CurvePanel(Panel, W.VBox):
         self.legend.add_class("sw-legend")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
-                                         style={"button_width": "5em", "description_width": "5em"})
+                                         style={"button_width": "5em", "description_width": "5em"},
+                                         layout=TOGGLE)
         self.x_choice = W.ToggleButtons(options=["steps", "epochs"], value=axis, description="x axis",
                                         tooltip="ticks of the x axis: optimizer steps or epochs",
-                                        style={"button_width": "6em", "description_width": "4em"})
+                                        style={"button_width": "6em", "description_width": "4em"},
+                                        layout={**TOGGLE, "margin": "2px 0 2px 16px"})
         self.hover_label = W.Label("point at the curve to read the step, epoch and rate there",
                                    layout={"min_height": "1.6em"})
         self.hover_label.add_class("sw-hover")

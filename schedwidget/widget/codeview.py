@@ -23,7 +23,7 @@ from ..budget import parse_rate
 from ..schedule import complain
 from .controls import Entry
 from .guard import Panel
-from .theme import AMBER, BORDER, ERROR_RED, OK, tidy_html
+from .theme import AMBER, BORDER, ERROR_RED, OK, TOGGLE, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -90,7 +90,8 @@ class ExportPanel(Panel, W.VBox):
         self.language = W.ToggleButtons(options=[("Python function", "Python"), ("PyTorch scheduler", "torch")],
                                         value="Python", description="code",
                                         tooltip="a standalone Python function of the step, or a ready torch snippet",
-                                        style={"button_width": "12em", "description_width": "3em"})
+                                        style={"button_width": "12em", "description_width": "3em"},
+                                        layout=dict(TOGGLE))
         self.base = Entry(description="base rate", placeholder="the peak", continuous_update=False,
                           tooltip="the optimizer's lr (blank: the design's peak); the schedule multiplies it",
                           style={"description_width": "5em"}, layout={"width": "14em"})
@@ -101,9 +102,14 @@ class ExportPanel(Panel, W.VBox):
         self.groups.add_class("sw-groups")
         self.view = W.HTML("")
         self.view.add_class("sw-export-view")
-        self.code = W.Textarea(rows=4, layout=W.Layout(width="100%"),
+        self.code = W.Textarea(rows=8, layout=W.Layout(width="100%", display="none"),
                                tooltip="the same code as plain text: select all and copy")
         self.code.add_class("sw-export-code")
+        # the code is shown once, coloured; the plain text (for select all and copy) only when asked for
+        self.plain = W.Checkbox(value=False, description="as plain text, to select all and copy", indent=False,
+                                layout={"width": "auto"})
+        self.plain.add_class("sw-export-plain")
+        self.plain.observe(lambda ch: self._plain(ch["new"]), names="value")
         self.code_path = W.Text(value="lr_schedule.py", description="code file", style={"description_width": "5em"},
                                 tooltip="where Write puts the code above", layout={"width": "28em"})
         self.code_path.add_class("sw-code-path")
@@ -132,7 +138,7 @@ class ExportPanel(Panel, W.VBox):
         wrap = {"flex_flow": "row wrap", "align_items": "center"}
         self.torch_row = W.HBox([self.base, self.groups], layout=wrap)
         super().__init__([self.language, self.torch_row, self.caution, self.view,
-                          W.HBox([self.code_path, self.write_button], layout=wrap), self.code,
+                          W.HBox([self.code_path, self.write_button, self.plain], layout=wrap), self.code,
                           W.HBox([self.path, self.save_button, self.load_button], layout=wrap), self.message])
         self.listen(designer, tab)
 
@@ -170,6 +176,11 @@ class ExportPanel(Panel, W.VBox):
                      + ("never reach its end" if gap > 0 else "hold its last rate at the end"))
         if self.caution.value != words:
             self.caution.value = words
+
+    def _plain(self, on: bool) -> None:
+        """Show the plain text in place of the coloured view (or back)."""
+        self.code.layout.display = None if on else "none"
+        self.view.layout.display = "none" if on else None
 
     def write_code(self, path: str | os.PathLike) -> str:
         """Write the code shown to ``path`` atomically (the core's ``spec.write_atomic``)."""

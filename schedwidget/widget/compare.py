@@ -269,7 +269,7 @@ class ComparePanel(Panel, W.VBox):
                 diff, ratio = e(f"n/a (pinned in {p.unit}s)"), "n/a"
             else:
                 v, t = self.difference(p)
-                diff = rate_html(v) + e(f" at {at(t, d.unit)}")
+                diff = rate_html(v) + e(f" at {at(t, d.unit)}") if v > 0 else "none (the same rates)"
                 ratio = e(number(f.area / cur.area)) if cur.area > 0 else "—"
             names.append(e(p.name))
             cols.append(self._facts[(id(p), d.unit, d.steps_per_epoch)][2] + [diff, ratio])

@@ -31,7 +31,8 @@ from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
 from .guard import Panel, quietly
-from .theme import AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, RateAxes, figure_layout, rate, rate_html, tidy_html
+from .theme import (AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, TOGGLE, RateAxes, figure_layout, rate, rate_html,
+                    tidy_html)
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -52,6 +53,7 @@ OPENING_FLOOR = 1e-3
 TINY = 1e-6  # a replayed rate below this times the start rate gets an amber caution
 COUNTERFACTUAL = ("A replay is counterfactual. The first drop is faithful only if the logged run used the same "
                   "rate up to it; later drops read metrics that the replayed rates never produced: indicative only.")
+LABEL = {"description_width": "5em"}  # the history rows' labels
 NUM = 'style="text-align:right;padding:1px 10px"'
 TXT = 'style="text-align:left;padding:1px 10px"'
 
@@ -128,17 +130,19 @@ class ReplayPanel(Panel, W.VBox):
         self._active = "demo"
         g = self._guard
         # ---------------------------------------------------------- source
-        demo_options = [("none", "")] + [(f"demo {k}: {what}", k) for k, (_f, what) in DEMO_NAMES.items()]
+        # short menu entries; what a demo history shows is said in the status line under them
+        demo_options = [("none", "")] + [(f"demo {k}", k) for k in DEMO_NAMES]
         self.demo = W.Dropdown(options=demo_options, value="a", description="history",
-                               tooltip="invented demo histories of the plastic-flake classifier",
-                               style={"description_width": "5em"}, layout={"width": "34em"})
+                               tooltip="invented demo histories of the plastic-flake classifier: "
+                                       + "; ".join(f"{k}: {what}" for k, (_f, what) in DEMO_NAMES.items()),
+                               style=LABEL, layout={"width": "19em", "flex": "0 0 auto"})
         self.upload = W.FileUpload(accept=".csv,text/csv,text/plain", multiple=False, description="upload CSV",
                                    tooltip="a CSV file with one row per evaluation")
         self.path = W.Text(placeholder="path/to/metrics.csv", description="or path", continuous_update=False,
-                           style={"description_width": "5em"}, layout={"width": "30em"})
+                           style=LABEL, layout={"width": "30em", "max_width": "100%"})
         self.path.add_class("sw-replay-path")
         self.column = W.Text(value="", placeholder="blank: the only value column", description="column",
-                             continuous_update=False, style={"description_width": "4em"}, layout={"width": "20em"})
+                             continuous_update=False, style=LABEL, layout={"width": "21em", "max_width": "100%"})
         self.demo.observe(g(lambda c: self._source("demo")), names="value")
         self.upload.observe(g(lambda c: self._source("upload")), names="value")
         self.path.observe(g(lambda c: self._source("path")), names="value")
@@ -149,16 +153,22 @@ class ReplayPanel(Panel, W.VBox):
                          for name, p in PlateauRule.params().items()}
         goal = self.controls["goal"].text
         goal.options = [(GOAL_WORDS.get(k, k), k) for k in goal.options]
-        goal.layout.width = "20em"
-        for c in self.controls.values():  # the words are longer than names: keep a usable slider track
+        # one grid: every label 11em, every slider track 12em, every exact box 7em beside it (no readouts)
+        goal.layout.width = "26em"
+        for c in self.controls.values():
             if c.slider is not None:
-                c.slider.layout.width = "26em"
-        self.follow = W.Checkbox(value=False, indent=False, description="follow the design (its warmup, then "
-                                 "the rule multiplies it)", tooltip="use the designer's schedule as the base",
-                                 layout={"width": "26em"})
-        self.start = W.FloatText(value=self._default_start(), description="start rate",
-                                 tooltip="the rate the rule starts from", style={"description_width": "5em"},
-                                 layout={"width": "13em"})
+                c.slider.layout.width = "23em"
+        self.controls["relative"].text.layout = W.Layout(width="auto", margin="0 0 0 11.5em")
+        # the start rate's box sits in the column of the exact boxes, its label in the column of the labels
+        self.start = W.FloatText(value=self._default_start(), tooltip="the rate the rule starts from",
+                                 layout={"width": "7em", "flex": "0 0 auto"})
+        start_label = W.HTML('<div style="text-align:right;padding-right:6px">start rate</div>',
+                             layout={"width": "11em", "flex": "0 0 auto"})
+        start_row = W.HBox([start_label, W.Box(layout={"width": "12em", "flex": "0 0 auto"}), self.start],
+                           layout={"align_items": "center"})
+        self.follow = W.Checkbox(value=False, indent=False, description="follow the design",
+                                 tooltip="use the designer's schedule as the base: its warmup, then the rule "
+                                         "multiplies it", layout={"width": "auto", "margin": "0 0 0 11.5em"})
         self.follow.observe(g(self._follow_changed), names="value")
         self.start.observe(g(lambda c: self.refresh()), names="value")
         # ---------------------------------------------------------- figure
@@ -170,7 +180,8 @@ class ReplayPanel(Panel, W.VBox):
         self.ms = LinearScale()
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="log", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
-                                         style={"button_width": "5em", "description_width": "5em"})
+                                         style={"button_width": "5em", "description_width": "5em"},
+                                         layout=dict(TOGGLE))
         self.rate_axis.observe(g(self._rate_axis_changed), names="value")
         self.rate_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
                                stroke_width=2, labels=["rate"])
@@ -202,14 +213,22 @@ class ReplayPanel(Panel, W.VBox):
         self.message.add_class("sw-replay-error")
         self.status = W.HTML("")
         self.status.add_class("sw-replay-status")
-        rule_rows = [W.HBox([self.controls[n].box for n in ("goal", "relative")]),
-                     *(self.controls[n].box for n in ("factor", "patience", "tolerance", "wait_after_drop", "floor")),
-                     W.HBox([self.start, self.follow])]
-        super().__init__([W.HBox([self.demo, self.upload]), W.HBox([self.path, self.column]), self.message,
-                          self.status,
-                          W.HBox([W.VBox(rule_rows, layout={"flex": "0 0 auto", "width": "41em"}),
-                                  W.VBox([self.y_title, self.figure_box, self.rate_axis, self.note, self.caution],
-                                         layout={"flex": "1 1 auto", "min_width": "20em"})]),
+        # two groups in the order a person reasons: when an evaluation counts as better, then what a drop does
+        # (not one list in the order of any library's arguments)
+        heading = '<div style="font-size:12px;color:#4b5563;margin:4px 0 0 0">{}</div>'
+        rule_rows = [W.HTML(heading.format("when an evaluation counts as better")),
+                     *(self.controls[n].box for n in ("goal", "tolerance", "relative", "patience")),
+                     W.HTML(heading.format("what a drop does")),
+                     *(self.controls[n].box for n in ("factor", "floor", "wait_after_drop")),
+                     start_row, self.follow]
+        wrap = {"flex_flow": "row wrap", "align_items": "center"}
+        rules = W.VBox(rule_rows, layout={"flex": "0 0 31em", "width": "31em", "margin": "0 12px 0 0"})
+        rules.add_class("sw-replay-rule")
+        plot = W.VBox([self.y_title, self.figure_box, self.rate_axis, self.note, self.caution],
+                      layout={"flex": "1 1 26em", "min_width": "22em"})
+        # side by side when the pane is wide enough (31em of rule + 26em of plot), one above the other below that
+        super().__init__([W.HBox([self.demo, self.upload], layout=wrap), W.HBox([self.path, self.column], layout=wrap),
+                          self.message, self.status, W.Box([rules, plot], layout={"flex_flow": "row wrap"}),
                           self.table, self.whatif])
         self.add_class("sw-replay")
         g(self._source)("demo")
@@ -313,7 +332,9 @@ class ReplayPanel(Panel, W.VBox):
         n = len(self.values)
         inside = sum(1 for d in r.drops if d.epoch < n)
         after = " (+1 after the run)" if inside < len(r.drops) else ""
-        words = (html.escape(f"{self.source_name}: {n:,} evaluations, best {r.best:.6g} at epoch {r.best_at:,}, "
+        what = DEMO_NAMES[self.demo.value][1] if self._active == "demo" and self.demo.value in DEMO_NAMES else ""
+        words = (html.escape(f"{self.source_name}{' (' + what + ')' if what else ''}: {n:,} evaluations, best "
+                             f"{r.best:.6g} at epoch {r.best_at:,}, "
                              f"{inside:,} drops{after}, final rate ") + rate_html(r.next_rate))
         if self.status.value != words:
             self.status.value = words

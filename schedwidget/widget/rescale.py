@@ -31,7 +31,8 @@ from ..sample import trace
 from ..svg import nice_ticks
 from ..schedule import complain
 from .guard import Panel, quietly
-from .theme import AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, figure_layout, rate_html, tidy_html
+from .theme import (AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, TOGGLE, figure_layout, legend_html, nice_ceiling, rate_html,
+                    tidy_html)
 from .theme import METRIC as OLD  # muted grey: the design as it is
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -65,14 +66,14 @@ class RescalePanel(Panel, W.VBox):
                                     description="rate rule",
                                     tooltips=["rates x new/old batch (Goyal et al. 2017)",
                                               "rates x sqrt(new/old batch) (Krizhevsky 2014; from memory)"],
-                                    style={"button_width": "7em", "description_width": "5em"})
+                                    style={"button_width": "8.5em", "description_width": "5em"}, layout=dict(TOGGLE))
         self.keep = W.ToggleButtons(options=["samples", "steps"], value="samples", description="keep",
-                                    tooltips=["warmup and joins stay at the same samples seen",
-                                              "warmup and joins stay at the same optimizer step"],
-                                    style={"button_width": "7em", "description_width": "5em"})
+                                    tooltips=["the warmup and stage changes stay at the same number of samples seen",
+                                              "the warmup and stage changes stay at the same optimizer step"],
+                                    style={"button_width": "8.5em", "description_width": "5em"}, layout=dict(TOGGLE))
         self.x_axis = W.ToggleButtons(options=["samples", "steps"], value="samples", description="x axis",
                                       tooltips=["x axis: samples seen", "x axis: optimizer steps"],
-                                      style={"button_width": "7em", "description_width": "5em"})
+                                      style={"button_width": "8.5em", "description_width": "5em"}, layout=dict(TOGGLE))
         self.apply_button = W.Button(description="Apply", icon="check",
                                      tooltip="make the rescaled design the designer's design (and its batch)")
         self.apply_button.add_class("sw-rescale-apply")
@@ -83,23 +84,28 @@ class RescalePanel(Panel, W.VBox):
         self.xs = LinearScale(min=0.0, allow_padding=False)
         self.ys = LinearScale(min=0.0, allow_padding=False)
         self.old_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[OLD],
-                              stroke_width=1.5, labels=["now"], display_legend=True)
+                              stroke_width=1.5, labels=["now"], display_legend=False)
         self.new_line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": self.xs, "y": self.ys}, colors=[CURVE],
-                              stroke_width=2, labels=["rescaled"], display_legend=True)
+                              stroke_width=2, labels=["rescaled"], display_legend=False)
         self.x_label = Axis(scale=self.xs, label="samples seen", tick_format=".3~s", num_ticks=6)
         self.figure = Figure(marks=[self.old_line, self.new_line],
                              axes=[self.x_label, Axis(scale=self.ys, side="left", label="", tick_format=".2~g")],
-                             animation_duration=0, padding_y=0.05, legend_location="top-right",
+                             animation_duration=0, padding_y=0.05,
                              fig_margin=RESCALE_FIGURE[1], layout=W.Layout(**figure_layout(RESCALE_FIGURE)))
         self.figure.add_class("sw-rescale-figure")
-        self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%"})
+        # the lines' names in the same compact legend beside the plot as the designer's
+        self.legend = W.HTML("", layout={"max_width": "10em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
+        self.legend.add_class("sw-legend")
+        self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%", "flex": "1 1 auto"})
+        self.plot = W.HBox([self.figure_box, self.legend], layout={"width": "100%", "align_items": "flex-start"})
         self.y_title = W.HTML('<span style="font-size:12px;color:#374151">learning rate</span>')
         for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
             w.observe(g(lambda c: self.refresh()), names="value")
         self.apply_button.on_click(g(lambda b: self.apply()))
-        super().__init__([W.HBox([W.VBox([self.from_batch, self.batch, self.processes]),
-                                  W.VBox([self.rule, self.keep, self.x_axis])]),
-                          self.y_title, self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
+        inputs = W.Box([W.VBox([self.from_batch, self.batch, self.processes], layout={"margin": "0 16px 0 0"}),
+                        W.VBox([self.rule, self.keep, self.x_axis])], layout={"flex_flow": "row wrap"})
+        super().__init__([inputs,
+                          self.y_title, self.plot, self.summary, W.HBox([self.apply_button]), self.message])
         self.add_class("sw-rescale")
         self.listen(designer, tab, now=True)
 
@@ -154,11 +160,20 @@ class RescalePanel(Panel, W.VBox):
             self.new_line.x, self.new_line.y = tn.x * fn, tn.y
         if self.x_label.label != label:
             self.x_label.label = label
+        high = float(max(np.max(to.y, initial=0.0), np.max(tn.y, initial=0.0)))
+        ceiling = nice_ceiling(high * 1.02)  # a round top with a label, the curve clear of the frame
+        if (self.ys.min, self.ys.max) != (0.0, ceiling):
+            with self.ys.hold_sync():
+                self.ys.min, self.ys.max = 0.0, ceiling
         top = float(max(to.x[-1] * fo, tn.x[-1] * fn)) if to.x.size and tn.x.size else 1.0
         ticks = nice_ticks(0.0, top, 5)  # round values (the front end's own were 2.65M, 5.3M, ...)
         ticks = ticks[(ticks >= 0.0) & (ticks <= top)]
         if self.x_label.tick_values is None or not np.array_equal(self.x_label.tick_values, ticks):
             self.x_label.tick_values = ticks
+        legend = legend_html([(OLD, "now", float(to.y[-1]) if to.y.size else 0.0),
+                              (CURVE, "rescaled", float(tn.y[-1]) if tn.y.size else 0.0)])
+        if self.legend.value != legend:
+            self.legend.value = legend
         text = self._summary(r, to, tn)
         if self.summary.value != text:
             self.summary.value = text

@@ -23,7 +23,7 @@ with warnings.catch_warnings():
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
     from bqplot import Axis, LinearScale, LogScale
 
-__all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER",
+__all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER", "TOGGLE",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
            "rate", "rate_html", "number", "count", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
            "nice_ceiling"]
@@ -36,6 +36,9 @@ HOVER = "#94a3b8"      # the hover line
 BORDER = "#e5e7eb"     # light frames around stages and under the tab bar
 
 LABEL_SIZE = 11        # px: names at the right end of the lines
+#: A toggle row's layout: its label beside its buttons, as wide as both (ipywidgets lays a toggle row out as a
+#: block, so its label sat above the buttons, out of line with the labels of the boxes beside it).
+TOGGLE = {"width": "auto", "flex": "0 0 auto", "display": "flex", "align_items": "center", "margin": "2px 0"}
 
 # Figures: (height in px, margins). Every figure also gets a minimum width, so that its plot area
 # (width - left - right) is positive however narrow the notebook is.
@@ -80,7 +83,7 @@ class Tabs(W.VBox):
     def __init__(self, titles: tuple[str, ...]) -> None:
         self.titles = tuple(titles)
         self.bar = W.ToggleButtons(options=[(t, i) for i, t in enumerate(self.titles)], value=0,
-                                   style={"button_width": "7em"})
+                                   style={"button_width": "7em"}, layout=dict(TOGGLE))
         self.bar.add_class("sw-tabs")
         super().__init__([W.Box([]) for _ in self.titles],
                          layout={"border_top": f"1px solid {BORDER}", "padding": "4px 0 0 0"})
@@ -233,7 +236,7 @@ class RateAxes:
         self.linear_scale = LinearScale(min=0.0, max=1.0)
         self.log_scale = LogScale(min=1e-6, max=1.0)
         extra = {"color": colour} if colour else {}
-        self.linear = Axis(scale=self.linear_scale, side="left", tick_format=".2~g",
+        self.linear = Axis(scale=self.linear_scale, side="left", tick_format=".2~g", num_ticks=7,
                            label="", **extra)
         self.log = Axis(scale=self.log_scale, side="left", tick_format=".0e", label="",
                         visible=False, tick_values=np.array([1e-6, 1e-3, 1.0]), **extra)
