@@ -128,7 +128,9 @@ def _track_clock(optimizer: Any, design: Any, base_lr: Any, groups: Any, start_t
     if state is not None and tick:
         raise complain(owner, "start_tick", tick, "0 when state is given (the state carries its tick)")
     value = design.tracks if hasattr(design, "tracks") and not isinstance(design, Tracks) else design
-    if isinstance(value, Tracks) and groups is None:
+    plain = getattr(optimizer, "param_groups", None)
+    plain = isinstance(plain, list) and all(isinstance(g, dict) for g in plain)  # else TrackClock says what it needs
+    if isinstance(value, Tracks) and groups is None and plain:
         starts = _start_lrs(optimizer, resuming=False)
         if len(set(starts)) > 1:
             shown = ", ".join(f"{v!r}" for v in starts[:6]) + (", ..." if len(starts) > 6 else "")
