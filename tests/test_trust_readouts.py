@@ -29,7 +29,7 @@ class TestShareOfPeak:
         """Drops x0.1 at epochs 30 and 60 give the 10 % and 1 % ticks at exactly those epochs."""
         f = facts(design, unit="epoch")
         assert (f.under_10, f.under_1) == (30, 60)
-        assert "under 10% of the peak from epoch 30" in f.sentence
+        assert "under 10 % of the peak from epoch 30" in f.sentence
 
     def test_equality_and_rounding_are_why(self):
         """After one drop the rate equals a tenth of the peak; after two it is an ulp above a hundredth."""
