@@ -183,9 +183,8 @@ def saved_design(owner: str, state: Any) -> GroupDesigns:
         if isinstance(exc, ScheduleError):
             raise ScheduleError(f"{owner}: state['design'] must be a valid spec: {exc}") from None
         raise complain(owner, "state['design']", _shown(text[:60] + "..."), "the JSON text of a spec") from None
-    value = d.schedule if d.tracks is None else d.tracks
-    g = as_groups(owner, value)
-    return g if g is not None else as_groups(owner, _only_rate(value))  # type: ignore[return-value]
+    g = as_groups(owner, d)
+    return g if g is not None else as_groups(owner, _only_rate(d.schedule))  # type: ignore[return-value]
 
 
 def _only_rate(s: Any) -> Any:

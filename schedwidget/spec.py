@@ -204,14 +204,21 @@ def _build_group(g: dict[str, Any], where: str) -> Any:
         raise ScheduleError(f"spec: {where}: {exc}" if where else f"spec: {exc}") from None
 
 
-def from_spec(d: Any) -> Any:
-    """Rebuild a design from its spec (validated first; nothing is executed).
+def _one(design: Design, owner: str, reader: str) -> Schedule:
+    """The design's schedule; a spec of tracks or groups is refused (callers of from_spec and load expect one
+    schedule: a checkpoint's factor, the command line), pointing to the readers that return the whole value."""
+    if design.tracks is not None:
+        raise ScheduleError(f"{owner}: the spec must hold one schedule, got tracks or one design per param group "
+                            f"(read those with schedwidget.tracks.{reader}, or read_design(...).tracks)")
+    return design.schedule
 
-    A Schedule, or for a spec with ``"tracks"`` or ``"groups"`` the ``tracks(...)`` or ``per_group(...)``
-    value it was written from.
+
+def from_spec(d: Any) -> Schedule:
+    """Rebuild a schedule from its spec (validated first; nothing is executed).
+
+    A spec of tracks or per-group designs is read by ``schedwidget.tracks.tracks_from_spec``.
     """
-    design = read_design(d)
-    return design.schedule if design.tracks is None else design.tracks
+    return _one(read_design(d), "spec", "tracks_from_spec(d)")
 
 
 def check_path(owner: str, path: Any, name: str = "path") -> str:
@@ -317,10 +324,12 @@ def load_design(path: str | os.PathLike) -> Design:
     return read_design(_read(path, "load"))
 
 
-def load(path: str | os.PathLike) -> Any:
-    """Read a spec file into a Schedule (or the tracks or per-group designs it holds; loading never runs code)."""
-    design = load_design(path)
-    return design.schedule if design.tracks is None else design.tracks
+def load(path: str | os.PathLike) -> Schedule:
+    """Read a spec file into a Schedule (validated; loading never runs code).
+
+    A file of tracks or per-group designs is read by ``schedwidget.tracks.load_tracks``.
+    """
+    return _one(load_design(path), "load", "load_tracks(path)")
 
 
 def save(s: Schedule, path: str | os.PathLike, unit: str | None = None,

@@ -19,7 +19,7 @@ import numpy as np
 from .schedule import MAX_TICKS, Schedule, ScheduleError, complain
 
 __all__ = ["Tracks", "tracks", "GroupDesigns", "per_group", "as_groups", "inverse_momentum", "TRACK_NAMES",
-           "check_track"]
+           "check_track", "tracks_from_spec", "load_tracks"]
 
 #: The tracks, in order; ``rate`` is always there.
 TRACK_NAMES = ("rate", "momentum", "beta2", "weight_decay")
@@ -234,6 +234,25 @@ def per_group(designs: Sequence[Schedule | Tracks] | Mapping[str, Schedule | Tra
                        "a list of designs in param-group order, or a mapping from group names to designs")
     return GroupDesigns(tuple(_tracks_of("per_group", f"designs[{i}]", x) for i, x in enumerate(items)),
                         names)  # type: ignore[arg-type]
+
+
+def tracks_from_spec(d: Any) -> Tracks | GroupDesigns:
+    """The tracks or per-group designs a parsed spec holds (a spec of one schedule gives ``tracks(it)``).
+
+    The round trip of ``to_spec``: ``tracks_from_spec(to_spec(t)) == t``.
+    """
+    from .spec import read_design
+
+    design = read_design(d)
+    return Tracks(design.schedule) if design.tracks is None else design.tracks
+
+
+def load_tracks(path: Any) -> Tracks | GroupDesigns:
+    """Read a spec file of tracks or per-group designs (written by ``save``); one schedule gives ``tracks(it)``."""
+    from .spec import load_design
+
+    design = load_design(path)
+    return Tracks(design.schedule) if design.tracks is None else design.tracks
 
 
 def as_groups(owner: str, design: Any, multipliers: Sequence[float] | None = None) -> GroupDesigns | None:

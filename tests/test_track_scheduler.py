@@ -12,10 +12,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from schedwidget import ScheduleError, cosine, flat, load, make_scheduler, one_cycle, ramp, save, stages, to_torch
+from schedwidget import ScheduleError, cosine, flat, make_scheduler, one_cycle, ramp, save, stages, to_torch
 from schedwidget import warmup
 from schedwidget.clock import TrackClock
-from schedwidget.tracks import as_groups, inverse_momentum, per_group, tracks
+from schedwidget.tracks import as_groups, inverse_momentum, load_tracks, per_group, tracks
 
 ROOT = Path(__file__).resolve().parents[1]
 TOTAL = 64  # ticks run: the designs' 60 and four held past the end
@@ -74,9 +74,9 @@ def resume_child(spec_path: str, ckpt_path: str, out_path: str, kind: str, how: 
     model.load_state_dict(ckpt["model"])
     opt.load_state_dict(ckpt["optimizer"])
     if how == "state":
-        scheduler = make_scheduler(opt, load(spec_path), state=ckpt["scheduler"])
+        scheduler = make_scheduler(opt, load_tracks(spec_path), state=ckpt["scheduler"])
     else:
-        scheduler = make_scheduler(opt, load(spec_path))
+        scheduler = make_scheduler(opt, load_tracks(spec_path))
         scheduler.load_state_dict(ckpt["scheduler"])
     tick = scheduler.tick
     seen = train(torch, model, opt, scheduler, tick, TOTAL)

@@ -14,7 +14,8 @@ from schedwidget import ScheduleError, cosine, flat, from_spec, load, ramp, save
 from schedwidget import one_cycle, triangle, warmup
 from schedwidget.pieces import _piecewise
 from schedwidget.track_readouts import decay_per_step, track_facts, tracks_sentence, tracks_svg
-from schedwidget.tracks import GroupDesigns, Tracks, inverse_momentum, per_group, tracks
+from schedwidget.tracks import (GroupDesigns, Tracks, inverse_momentum, load_tracks, per_group, tracks,
+                                tracks_from_spec)
 
 
 def close(ours, ref, rel=1e-12):
@@ -234,9 +235,29 @@ class TestSpec:
     ])
     def test_round_trip(self, value, tmp_path):
         spec = to_spec(value, unit="step", steps_per_epoch=100)
-        assert from_spec(json.loads(json.dumps(spec))) == value
+        assert tracks_from_spec(json.loads(json.dumps(spec))) == value
         save(value, tmp_path / "d.json")
-        assert load(tmp_path / "d.json") == value
+        assert load_tracks(tmp_path / "d.json") == value
+
+    def test_one_schedule_readers_refuse_tracks(self, tmp_path):
+        """from_spec and load promise one schedule (a checkpoint's factor and the command line rely on it)."""
+        save(FULL, tmp_path / "d.json")
+        with pytest.raises(ScheduleError, match=r"^load: the spec must hold one schedule, got tracks or one design "
+                                                r"per param group \(read those with schedwidget.tracks.load_tracks"):
+            load(tmp_path / "d.json")
+        with pytest.raises(ScheduleError, match=r"^spec: the spec must hold one schedule, .*tracks_from_spec"):
+            from_spec(to_spec(per_group([ONE])))
+        assert tracks_from_spec(to_spec(ONE)) == tracks(ONE)
+
+    def test_a_crafted_factor_state_holding_tracks(self):
+        """A RateFactor state whose design text is a spec of tracks is a ScheduleError, not an AttributeError."""
+        from schedwidget import torch_factor
+
+        f = torch_factor(ONE, 0.1)
+        state = {**f.__dict__, "design": json.dumps(to_spec(FULL))}
+        with pytest.raises(ScheduleError, match=r"the spec must hold one schedule"):
+            f.__dict__.update(state)
+            f(3)
 
     def test_shipped_schema_validates(self):
         import jsonschema
@@ -261,7 +282,7 @@ class TestSpec:
 
         for value in (tracks(deep(MAX_DEPTH), momentum=deep(MAX_DEPTH - 1)),
                       per_group([tracks(deep(MAX_DEPTH - 1), momentum=deep(MAX_DEPTH - 2))])):
-            assert from_spec(to_spec(value)) == value
+            assert tracks_from_spec(to_spec(value)) == value
         with pytest.raises(ScheduleError, match=rf"to_spec: s must be at most {MAX_DEPTH - 1} nested schedules"):
             to_spec(tracks(flat(0.1), momentum=deep(MAX_DEPTH)))
         with pytest.raises(ScheduleError, match=rf"to_spec: s must be at most {MAX_DEPTH - 2} nested schedules"):
