@@ -159,9 +159,9 @@ class TrackClock:
         saved = saved_design(owner, state)
         if _design_text(saved) != self._text:
             raise complain(owner, "state['design']", _shown("another design"), "this clock's design",
-                           "build the clock with the checkpoint's design (make_scheduler(optimizer, "
-                           "saved_design(state), state=state)), or pass resume_with='new' to make_scheduler to "
-                           "continue on this design from the saved tick")
+                           "pass resume_with='saved' to make_scheduler(optimizer, design, state=state) to "
+                           "continue on the checkpoint's design, or resume_with='new' to continue on this design "
+                           "from the saved tick")
         self.tick = tick
         self._write()
 
