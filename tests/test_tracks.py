@@ -57,7 +57,6 @@ class TestTracks:
         assert FULL.length == 1000 and FULL.names() == ("rate", "momentum", "beta2", "weight_decay")
 
     def test_repr_rebuilds(self):
-        from schedwidget.combine import stages as _stages  # noqa: F401 - names the repr uses
         ns = {"tracks": tracks, "one_cycle": one_cycle, "stages": stages, "ramp": ramp, "flat": flat,
               "cosine": cosine}
         assert eval(repr(FULL), ns) == FULL
