@@ -312,6 +312,7 @@ def inverse_momentum(design: Schedule, high: float = MOMENTUM_HIGH, low: float =
     """The momentum that moves against a one-cycle or triangular rate: ``high`` where the rate is low, ``low``
     at its peak (Smith 2018, cyclical momentum; the defaults 0.95 and 0.85 are common practice, no source).
 
+    A scaled (``design * c``) or stretched one is followed through to its shape.
     For ``one_cycle`` the momentum runs through the same phase ends with the same curve: ``high`` at the start,
     ``low`` at the peak, back to ``high`` where the cycle ends, then ``high`` through the tail.  For
     ``triangle`` it is ``high - (high - low) * shape`` with the triangle's own shape, amplitude shrinking
@@ -333,6 +334,12 @@ def inverse_momentum(design: Schedule, high: float = MOMENTUM_HIGH, low: float =
         raise complain(owner, "high", high, "a momentum in [0, 1)")
     if lo > hi:
         raise complain(owner, "low", low, f"<= high = {hi!r}", "the momentum is lowest where the rate peaks")
+    if isinstance(design, Schedule):
+        if design.kind == "scale":  # a scaled rate keeps its phases
+            return inverse_momentum(design._pointwise_target(), hi, lo)
+        inner = design._unstretched()
+        if inner is not design:  # a stretched rate: the same phases, moved in proportion
+            return inverse_momentum(inner, hi, lo).stretch(design.length)
     kind = getattr(design, "kind", None)
     knots_of = getattr(design, "_knots", None)
     if kind == "one_cycle" and callable(knots_of):

@@ -169,6 +169,11 @@ class TestInverseMomentum:
         assert inverse_momentum(one_cycle(0.1, steps=1000)) == stages(ramp(0.95, 0.85, 450), ramp(0.85, 0.95, 450),
                                                                       flat(0.95, steps=100))
 
+    def test_scaled_and_stretched(self):
+        t = np.arange(2003)
+        assert inverse_momentum(ONE * 0.5) == inverse_momentum(ONE)
+        close(inverse_momentum(ONE.stretch(2000))(t), inverse_momentum(one_cycle(0.1, steps=2000))(t), rel=1e-15)
+
     def test_defaults_and_refusals(self):
         m = inverse_momentum(ONE)
         assert (m(0), m(450), m(900), m(1000)) == (0.95, 0.85, 0.95, 0.95)  # common practice, no source
