@@ -346,7 +346,10 @@ def inverse_momentum(design: Schedule, high: float = MOMENTUM_HIGH, low: float =
         xs, ys = knots_of()
         top = int(np.argmax(ys))
         ms = [lo if i == top else hi for i in range(len(xs))]
-        return _through([float(x) for x in xs], ms, getattr(design, "curve", "linear"), int(design.length))
+        xs, n = [float(x) for x in xs], int(design.length)
+        if xs[-1] < n:  # a cycle that ends before its length (ends='on') holds its last value up to it
+            xs, ms = xs + [float(n)], ms + [ms[-1]]
+        return _through(xs, ms, getattr(design, "curve", "linear"), n)
     if kind == "triangle":
         return _triangle_momentum(design, hi, lo)
     raise complain(owner, "design", _brief(design), "a one_cycle(...) or triangle(...) design",

@@ -205,6 +205,21 @@ class TestInverseMomentum:
         close(r(t), ref_lr, rel=1e-11)
         close(inverse_momentum(r, high=0.95, low=0.85)(t), ref_m)
 
+    @pytest.mark.parametrize("curve,anneal", [("linear", "linear"), ("cosine", "cos")])
+    def test_torch_two_phase_on_its_ticks(self, torch, curve, anneal):
+        """one_cycle(phases=2, ends='on') is torch 2.13's two-phase tick convention: the momentum follows it."""
+        total = 100
+        ref_lr, ref_m = stepped(torch, lambda o: torch.optim.lr_scheduler.OneCycleLR(
+            o, max_lr=0.1, total_steps=total, pct_start=0.3, anneal_strategy=anneal, three_phase=False,
+            base_momentum=0.85, max_momentum=0.95), total, "adam")
+        r = one_cycle(0.1, steps=total, low=0.004, final=4e-7, phases=2, rise=0.3, curve=curve, ends="on")
+        m = inverse_momentum(r)
+        assert m.length == r.length == total and tracks(r, momentum=m).momentum is m
+        t = np.arange(total)
+        close(r(t), ref_lr, rel=1e-11)
+        close(m(t), ref_m)
+        assert m(total + 5) == 0.95
+
     @pytest.mark.parametrize("optimizer", ["sgd", "adam"])
     @pytest.mark.parametrize("mode,shrink", [("triangular", 1.0), ("triangular2", 0.5)])
     def test_torch_cyclic(self, torch, optimizer, mode, shrink):
