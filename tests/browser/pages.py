@@ -186,3 +186,10 @@ def text_of(where, css: str) -> str:
 
 def widget_error_shown(page) -> bool:
     return WIDGET_ERROR_TEXT in page.inner_text("body")
+
+
+def wait_active(page, button, timeout: float = 30.0) -> None:
+    """Wait until a toggle button (a tab of the tab bar, 'log', 'epochs') is the pressed one."""
+    button.wait_for()
+    page.wait_for_function("(b) => b.classList.contains('mod-active')", arg=button.element_handle(),
+                           timeout=timeout * 1000, polling=50)

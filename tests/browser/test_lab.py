@@ -99,7 +99,8 @@ class TestTourInJupyterLab:
         # the stage boxes are rebuilt too: the next test must not type into a box that is being replaced
         clean.wait_for_function("([sel, n]) => document.querySelectorAll(sel).length === n",
                                 arg=[f"{DESIGNER} .sw-stage", boxes + 1])
-        clean.wait_for_timeout(300)
+        # and the new stage's own controls are drawn (its length box is the last control to appear)
+        d.locator(".sw-stage").nth(boxes).locator(".sw-length input").first.wait_for()
         shot(clean, "lab-3-stage", d)
 
     def test_invalid_value_shows_error(self, clean):
@@ -111,7 +112,7 @@ class TestTourInJupyterLab:
         error = designer(clean).locator(".sw-error").first
         error.locator("text=/peak/").wait_for()
         assert "peak" in error.inner_text() and "-1" in error.inner_text()
-        clean.wait_for_timeout(500)           # a wrongly redrawn curve would arrive by now
+        # the kernel sends a redraw before the refusal's message on the same channel: none came
         assert figure(clean, DESIGNER)["curve"] == before
         shot(clean, "lab-4-error", designer(clean))
 

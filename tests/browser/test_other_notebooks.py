@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 
 from .conftest import new_page
-from .pages import open_and_run, shot, wait_for_curve, widget_error_shown
+from .pages import open_and_run, shot, wait_active, wait_for_curve, widget_error_shown
 from .server import jupyter_server
 
 NOTEBOOKS = Path(__file__).resolve().parents[2] / "notebooks"
@@ -38,12 +38,14 @@ def test_runs_and_every_tab_opens_cleanly(browser, other_server, name):
             tabs = page.locator(".sw-designer").first.locator(".sw-tabs button")
             for i in range(tabs.count()):
                 tabs.nth(i).click()
-                page.wait_for_timeout(400)
+                wait_active(page, tabs.nth(i))
             # then quickly, the way the old tab widget lost the race (a pane hidden before its figure was laid out)
             for _ in range(2):
                 for i in (3, 2, 1, 0, 2, 3):
                     tabs.nth(i).click()
-        page.wait_for_timeout(500)
+            wait_active(page, tabs.nth(3))
+            # the last pane shown (Rescale) is on screen with its figure
+            page.locator(".sw-designer").first.locator(".sw-rescale-figure").first.wait_for(state="visible")
         shot(page, f"other-{Path(name).stem}")
         assert not widget_error_shown(page), "the page shows 'Error displaying widget'"
         assert not watch.problems(), "\n".join(watch.problems())

@@ -16,7 +16,8 @@ import pytest
 
 from .conftest import new_page
 from .notebooks import _nb
-from .pages import NOTEBOOK7_OWN, open_and_run, shot, wait_for_change, wait_for_curve, widget_error_shown
+from .pages import (NOTEBOOK7_OWN, open_and_run, shot, wait_active, wait_for_change, wait_for_curve,
+                    widget_error_shown)
 from .server import jupyter_server
 
 DESIGNER = ".sw-designer"
@@ -89,12 +90,54 @@ def overlaps(a, b) -> bool:
     return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
 
 
+#: Whether the curve's axes show a state: the rate axis log or linear (log tick labels are powers of ten written
+#: with an exponent), the x axis titled with the clock's unit, and the button just pressed is the active one.
+AXES_STATE_JS = """([sel, log, x]) => {
+    const fig = document.querySelector(sel + ' .sw-curve');
+    if (!fig) return false;
+    const axes = [...fig.querySelectorAll('g.axis')].map(a => {
+        const ticks = [...a.querySelectorAll('.tick')].filter(t => {
+            const r = t.getBoundingClientRect(); return r.width > 0 && r.height > 0; });
+        const rs = ticks.map(t => t.getBoundingClientRect());
+        const label = a.querySelector('text.axislabel');
+        return {texts: ticks.map(t => t.textContent.trim()), label: label ? label.textContent.trim() : '',
+                wide: rs.length > 1 && Math.max(...rs.map(r => r.x)) - Math.min(...rs.map(r => r.x)) >
+                      Math.max(...rs.map(r => r.y)) - Math.min(...rs.map(r => r.y))};
+    }).filter(a => a.texts.length > 1);
+    const xa = axes.find(a => a.wide), ya = axes.find(a => !a.wide);
+    if (!xa || !ya || axes.length !== 2) return false;
+    const exp = ya.texts.filter(t => /e/.test(t)).length;
+    return (log ? exp === ya.texts.length : exp === 0) && xa.label === x;
+}"""
+
+
+class Axes:
+    """The state the curve's toggles ask for, and a wait until the page shows it (no fixed sleeps)."""
+
+    def __init__(self, page) -> None:
+        self.page, self.log, self.x = page, False, "step"
+
+    def toggle(self, label: str) -> None:
+        button = self.page.locator(f"{DESIGNER} .sw-canvas .widget-toggle-button",
+                                   has_text=re.compile(rf"^{label}$")).first
+        button.click()
+        if label in ("log", "linear"):
+            self.log = label == "log"
+        else:
+            self.x = "epoch" if label == "epochs" else "step"
+        wait_active(self.page, button)
+        self.wait()
+
+    def wait(self, timeout: float = 30.0) -> None:
+        self.page.wait_for_function(AXES_STATE_JS, arg=[DESIGNER, self.log, self.x], timeout=timeout * 1000,
+                                    polling=50)
+
+
 def toggle(page, label: str) -> None:
-    page.locator(f"{DESIGNER} .widget-toggle-button", has_text=re.compile(rf"^{label}$")).first.click()
-
-
-def settle(page, ms: int = 700) -> None:
-    page.wait_for_timeout(ms)
+    """Press a toggle of the curve and wait until both axes show what it asks for."""
+    axes = getattr(page, "_sw_axes", None) or Axes(page)
+    page._sw_axes = axes
+    axes.toggle(label)
 
 
 def type_into(page, box, text: str) -> None:
@@ -114,6 +157,93 @@ def field(stage, label: str):
     return row.locator("input[type=text]").first
 
 
+def has_value(page, box, value: str, timeout: float = 30.0) -> None:
+    """Wait until the input ``box`` shows ``value``."""
+    page.wait_for_function("([e, v]) => e.value === v", arg=[box.element_handle(), value], timeout=timeout * 1000,
+                           polling=50)
+
+
+def pin(page, name: str) -> None:
+    """Pin the current design under ``name`` and wait for its name in the legend."""
+    d = page.locator(DESIGNER).first
+    d.locator(".sw-pin-name input").first.fill(name)
+    d.locator("button.sw-pin").first.click()
+    d.locator(".sw-legend-item", has_text=name).first.wait_for()
+
+
+#: Each tab, and what is on screen once its pane has drawn (a hidden pane is 0 px high and invisible).
+TAB_READY = {"Compare": ".sw-compare", "Export": ".sw-export-view pre",
+             "Replay": ".sw-replay-figure path.line[d*='L']", "Rescale": ".sw-rescale-figure path.line[d*='L']",
+             "Numbers": ".sw-readout table"}
+
+
+def show_tab(page, name: str) -> None:
+    d = page.locator(DESIGNER).first
+    button = d.locator(".sw-tabs button", has_text=re.compile(rf"^{name}$")).first
+    button.click()
+    wait_active(page, button)
+    d.locator(TAB_READY[name]).first.wait_for(state="visible")
+
+
+#: What is cut, duplicated or out of line in the designer as shown now (shown elements only).
+LAYOUT_JS = """(sel) => {
+    const root = document.querySelector(sel);
+    const out = [];
+    const shown = (e) => {
+        const r = e.getBoundingClientRect();
+        if (r.width === 0 || r.height === 0) return false;
+        for (let x = e; x && x !== root.parentElement; x = x.parentElement) {
+            const cs = getComputedStyle(x);
+            if (cs.display === 'none' || cs.visibility === 'hidden') return false;
+        }
+        return true;
+    };
+    const name = (e) => (e.textContent || e.value || '').trim().slice(0, 40);
+    const canvas = document.createElement('canvas').getContext('2d');
+    for (const s of root.querySelectorAll('select')) {
+        if (!shown(s) || s.selectedIndex < 0) continue;
+        const cs = getComputedStyle(s);
+        canvas.font = `${cs.fontWeight} ${cs.fontSize} ${cs.fontFamily}`;
+        const text = s.options[s.selectedIndex].text;
+        const need = canvas.measureText(text).width + parseFloat(cs.paddingLeft) + 18;  // 18 px: the arrow
+        if (need > s.clientWidth + 1) out.push(`menu cut: '${text}' needs ${need.toFixed(0)} px, has ${s.clientWidth}`);
+    }
+    for (const e of root.querySelectorAll('.widget-label, .widget-label-basic, label, button, .widget-html-content')) {
+        if (!shown(e)) continue;
+        if (e.scrollWidth > e.clientWidth + 1 && getComputedStyle(e).overflowX !== 'auto')
+            out.push(`text cut: '${name(e)}' (${e.scrollWidth} > ${e.clientWidth} px)`);
+    }
+    for (const e of root.querySelectorAll('.widget-readout')) {
+        if (shown(e)) out.push(`slider readout beside an exact box: '${name(e)}'`);
+    }
+    for (const t of root.querySelectorAll('.widget-toggle-buttons')) {
+        const label = t.querySelector(':scope > .widget-label');
+        const button = t.querySelector('button');
+        if (!label || !shown(label) || !button || !name(label)) continue;
+        const a = label.getBoundingClientRect(), b = button.getBoundingClientRect();
+        const mid = (a.top + a.bottom) / 2;
+        if (mid < b.top || mid > b.bottom) out.push(`toggle label '${name(label)}' not beside its buttons`);
+    }
+    const right = root.getBoundingClientRect().right;
+    for (const e of root.querySelectorAll('input, select, button, table, svg, .widget-label')) {
+        if (shown(e) && e.getBoundingClientRect().right > right + 1)
+            out.push(`wider than the designer: ${e.tagName} '${name(e)}' ends at ${e.getBoundingClientRect().right.toFixed(0)} > ${right.toFixed(0)}`);
+    }
+    return out;
+}"""
+
+#: Left edges of the exact boxes and of the slider tracks in a rule column.
+GRID_JS = """(sel) => {
+    const root = document.querySelector(sel);
+    const left = (e) => e.getBoundingClientRect().left;
+    const boxes = [...root.querySelectorAll('input[type=number], input[type=text]')].filter(e => e.offsetWidth > 0)
+        .map(left);
+    const tracks = [...root.querySelectorAll('.slider-container, .noUi-target')].filter(e => e.offsetWidth > 0)
+        .filter(e => !e.parentElement.closest('.slider-container, .noUi-target')).map(left);
+    return {boxes, tracks};
+}"""
+
+
 @pytest.fixture(scope="module")
 def server():
     with jupyter_server("lab", {"designer.ipynb": designer_notebook()}) as s:
@@ -125,7 +255,8 @@ def open_designer(browser, server, width: int, height: int = 900):
     open_and_run(page, server.url("designer.ipynb"))
     wait_for_curve(page, DESIGNER)
     page.locator(DESIGNER).first.scroll_into_view_if_needed()
-    settle(page, 500)
+    page._sw_axes = Axes(page)
+    page._sw_axes.wait()  # the first view's axes are drawn (linear rate axis, steps)
     return context, page, watch
 
 
@@ -144,7 +275,6 @@ class TestPlotNeverMisleads:
             assert_ticks_readable(page, "first view")
             for label in ("log", "linear", "log", "linear", "epochs", "steps", "epochs", "steps", "log", "epochs"):
                 toggle(page, label)
-                settle(page)
                 assert_ticks_readable(page, f"after {label}")
             check_clean(page, watch)
         finally:
@@ -167,7 +297,6 @@ class TestPlotNeverMisleads:
                 page.locator(f"{DESIGNER} .sw-legend-item", has_text=name).first.wait_for()
             for axis in ("linear", "log"):
                 toggle(page, axis)
-                settle(page)
                 b = page.evaluate(BOXES_JS, DESIGNER)
                 assert b["ticks"] and len(b["labels"]) >= 2, b
                 hits = [(lab, t) for lab in b["labels"] for t in b["ticks"] if overlaps(lab, t)]
@@ -241,23 +370,77 @@ class TestLayout:
                 fig = page.locator(f"{DESIGNER} .sw-curve").first.bounding_box()
                 stage = stage_box(page, 1).bounding_box()
                 assert bar["y"] + bar["height"] <= 900 and fig["y"] >= 0 and stage["y"] + 30 <= 900, (bar, fig)
-            d.locator(".sw-pin-name input").first.fill("first look")
-            d.locator("button.sw-pin").first.click()
-            tabs = d.locator(".sw-tabs button")
+            pin(page, "first look")
             for axis in ("linear", "log"):
                 toggle(page, axis)
-                settle(page, 400)
-                d.scroll_into_view_if_needed()
                 page.evaluate("(sel) => document.querySelector(sel).scrollIntoView({block: 'start'})", DESIGNER)
                 shot(page, f"practitioner-{width}-{axis}")
-                for i in range(tabs.count()):
-                    tabs.nth(i).click()
-                    settle(page, 900)
+                for name in TAB_READY:
+                    show_tab(page, name)
                     page.evaluate("(sel) => document.querySelector(sel).scrollIntoView({block: 'start'})",
                                   f"{DESIGNER} .sw-tabs")
-                    settle(page, 200)
-                    name = tabs.nth(i).inner_text().strip().lower()
-                    shot(page, f"practitioner-{width}-{axis}-tab-{name}")
+                    shot(page, f"practitioner-{width}-{axis}-tab-{name.lower()}")
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+    @pytest.mark.parametrize("width", [1440, 1000])
+    def test_nothing_cut_duplicated_or_out_of_line(self, browser, server, width):
+        """Every tab at 1440 and 1000 px: no label, button or menu entry cut, no slider readout beside an exact box,
+        every toggle's label beside its buttons, nothing wider than the designer, and Replay's rule on one grid
+        (its exact boxes and its slider tracks each in one column)."""
+        context, page, watch = open_designer(browser, server, width)
+        try:
+            pin(page, "first look")
+            problems = []
+            for name in TAB_READY:
+                show_tab(page, name)
+                found = page.evaluate(LAYOUT_JS, DESIGNER)
+                problems += [f"{width} px, {name}: {p}" for p in found]
+            show_tab(page, "Replay")
+            grid = page.evaluate(GRID_JS, f"{DESIGNER} .sw-replay-rule")
+            assert len(grid["boxes"]) == 6 and len(grid["tracks"]) == 5, grid
+            for what in ("boxes", "tracks"):
+                if max(grid[what]) - min(grid[what]) > 1.5:
+                    problems.append(f"{width} px, Replay: {what} not in one column: {grid[what]}")
+            assert not problems, "\n".join(problems)
+            # the check itself can fail: squeeze a menu and a label (in the page only) and it reports both
+            squeeze = """([sel, on]) => {
+                const root = document.querySelector(sel);
+                const s = root.querySelector('.sw-stage-shape select');
+                const l = [...root.querySelectorAll('.sw-stage .widget-label')].find(e => e.offsetWidth > 0
+                    && e.textContent.trim() === 'length');
+                s.style.flex = on ? '0 0 40px' : ''; l.style.width = on ? '12px' : '';
+            }"""
+            page.evaluate(squeeze, [DESIGNER, True])
+            found = page.evaluate(LAYOUT_JS, DESIGNER)
+            assert any(p.startswith("menu cut") for p in found) and any(p.startswith("text cut") for p in found), found
+            page.evaluate(squeeze, [DESIGNER, False])
+            check_clean(page, watch)
+        finally:
+            context.close()
+
+
+class TestRunClockPositions:
+
+    def test_drop_typed_on_the_run_clock(self, browser, server):
+        """A drops stage after the 5-epoch warmup: '30 ep' reads 'counted from the start of the run = 25 ep into
+        this stage'; '3 ep' is refused with a message naming the box and the forms."""
+        context, page, watch = open_designer(browser, server, 1440)
+        try:
+            d = page.locator(DESIGNER).first
+            stage_box(page, 1).locator(".sw-stage-shape select").first.select_option(label="step drops")
+            box = field(stage_box(page, 1), "drops at")
+            type_into(page, box, "30 ep")
+            words = stage_box(page, 1).locator(".sw-positions-words").first
+            words.filter(has_text="= 25 ep into this stage").wait_for()
+            assert "counted from the start of the run" in words.inner_text()
+            assert box.input_value() == "30 ep"
+            type_into(page, box, "3 ep")
+            error = d.locator(".sw-error").first
+            error.filter(has_text="drops at item 1").wait_for()
+            assert "before the stage's start" in error.inner_text() and "'30 ep'" in error.inner_text()
+            shot(page, "practitioner-run-clock-drops", d)
             check_clean(page, watch)
         finally:
             context.close()
@@ -267,37 +450,47 @@ class TestPractitionerTask:
 
     def test_task_in_at_most_ten_interactions(self, browser, server, tmp_path):
         """3 epochs of linear warmup, cosine to 1 % of the peak over the rest, peak 3e-4; pin it; switch to
-        exponential decay; compare; export torch code: typed entries and clicks counted."""
+        exponential decay; compare; export torch code: typed entries and clicks counted; after each, a wait for
+        what it changes on the page (no fixed sleeps)."""
         context, page, watch = open_designer(browser, server, 1440)
         count = 0
 
-        def act(fn, *args):
+        def act(fn, until):
             nonlocal count
             count += 1
-            fn(*args)
-            settle(page, 600)
+            fn()
+            until()
 
         try:
             d = page.locator(DESIGNER).first
-            act(type_into, page, field(stage_box(page, 0), "length"), "3 ep")
-            act(type_into, page, field(stage_box(page, 1), "peak rate"), "3e-4")
-            act(type_into, page, field(stage_box(page, 1), "end rate"), "1 %")
+            sentence = d.locator(".sw-sentence").first
+            warm_length = field(stage_box(page, 0), "length")
+            end_rate = field(stage_box(page, 1), "end rate")
+            act(lambda: type_into(page, warm_length, "3 ep"), lambda: has_value(page, warm_length, "3,450"))
+            act(lambda: type_into(page, field(stage_box(page, 1), "peak rate"), "3e-4"),
+                lambda: sentence.filter(has_text="0.0003").wait_for())
+            act(lambda: type_into(page, end_rate, "1 %"), lambda: has_value(page, end_rate, "3e-06"))
             assert "3,450" in stage_box(page, 0).inner_text()
             assert "103,500" in stage_box(page, 1).inner_text()           # the cosine fills the rest of the run
-            act(lambda: d.locator("button.sw-pin").first.click())
-            act(lambda: stage_box(page, 1).locator(".sw-stage-shape select").first.select_option(label="exponential decay"))
-            act(lambda: d.locator(".sw-tabs button", has_text="Compare").first.click())
-            assert "pin 1" in d.locator(".sw-compare").first.inner_text()
-            act(lambda: d.locator(".sw-tabs button", has_text="Export").first.click())
-            act(lambda: d.locator(".widget-toggle-button", has_text="PyTorch scheduler").first.click())
+            act(lambda: d.locator("button.sw-pin").first.click(),
+                lambda: d.locator(".sw-legend-item", has_text="pin 1").first.wait_for())
+            act(lambda: stage_box(page, 1).locator(".sw-stage-shape select").first.select_option(
+                label="exponential decay"),
+                lambda: stage_box(page, 1).locator(".widget-label", has_text=re.compile("^multiply by$")).first
+                .wait_for())
+            act(lambda: d.locator(".sw-tabs button", has_text="Compare").first.click(),
+                lambda: d.locator(".sw-compare", has_text="pin 1").first.wait_for())
+            act(lambda: d.locator(".sw-tabs button", has_text="Export").first.click(),
+                lambda: d.locator(".sw-export-view").first.wait_for(state="visible"))
+            act(lambda: d.locator(".widget-toggle-button", has_text="PyTorch scheduler").first.click(),
+                lambda: d.locator(".sw-export-view", has_text="LambdaLR").first.wait_for())
             path = d.locator(".sw-code-path input").first
             assert path.input_value() == "lr_schedule.py"
-            act(lambda: d.locator("button.sw-write-code").first.click())
-            d.locator(".sw-file-message", has_text="code written to").first.wait_for()
+            act(lambda: d.locator("button.sw-write-code").first.click(),
+                lambda: d.locator(".sw-file-message", has_text="code written to").first.wait_for())
             code = d.locator(".sw-export-code textarea").first.input_value()
             base = [line for line in code.splitlines() if line.startswith("BASE_LR =")]
-            sentence = d.locator(".sw-sentence").first.inner_text()
-            assert "LambdaLR" in code and base and base[0].startswith("BASE_LR = 0.0003 "), (base, sentence)
+            assert "LambdaLR" in code and base and base[0].startswith("BASE_LR = 0.0003 "), (base, sentence.inner_text())
             shot(page, "practitioner-task-done", d)
             print(f"practitioner task: {count} interactions (clicks and typed entries)")
             assert count <= MAX_INTERACTIONS
@@ -314,9 +507,10 @@ def test_toggles_in_notebook7(browser):
             open_and_run(page, s.url("designer.ipynb"))
             wait_for_curve(page, DESIGNER)
             page.locator(DESIGNER).first.scroll_into_view_if_needed()
+            page._sw_axes = Axes(page)
+            page._sw_axes.wait()
             for label in ("log", "linear", "log", "linear", "epochs", "steps", "epochs", "steps"):
                 toggle(page, label)
-                settle(page)
                 assert_ticks_readable(page, f"Notebook 7, after {label}")
             shot(page, "practitioner-nb7", page.locator(DESIGNER).first)
             check_clean(page, watch)

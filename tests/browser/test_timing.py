@@ -55,14 +55,18 @@ def press_to_redraw(page, scope: str, presses: int) -> list[float]:
     label = page.locator(".widget-label", has_text=re.compile(r"^peak rate$"))
     handle = page.locator(scope).locator(".sw-rate").filter(has=label).first.locator(".noUi-handle")
     out = []
+    sentence = f"{scope} .sw-sentence"
     for i in range(presses):
+        said = page.evaluate("(sel) => document.querySelector(sel).innerText", sentence)
         handle.focus()
         page.evaluate(ARM_JS, scope)
         page.keyboard.press("ArrowRight" if i % 2 == 0 else "ArrowLeft")
         page.wait_for_function("() => window.__swTiming.changed !== null", timeout=30_000, polling=20)
         t = page.evaluate("() => window.__swTiming")
         out.append(t["changed"] - t["down"])
-        page.wait_for_timeout(150)    # let the readout's own update land before the next press
+        # the readout's own update lands before the next press (the sentence names the new peak)
+        page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
+                               arg=[sentence, said], timeout=30_000, polling=20)
     return out
 
 
