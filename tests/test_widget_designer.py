@@ -188,7 +188,9 @@ class TestNeverBroken:
         box.value = 200_000
         # the run is the frame (issue 13): the cosine fills the rest of the 103,500 steps, and cannot go below 1
         assert d.error.startswith("warmup: steps must be at most 103,499 steps in a run of 103,500, got 200000")
-        assert d.error_line.value.startswith("warmup: steps must be") and "sw-error" in d.error_line._dom_classes
+        # the message set at a reading line height (issue 13: a refusal ran over seven double-spaced lines)
+        assert d.error_line.value.startswith('<div style="line-height:1.4">warmup: steps must be')
+        assert "sw-error" in d.error_line._dom_classes
         assert d.schedule == before and np.array_equal(d.canvas.curve.y, y)
         assert box.value == "5,750"
 
@@ -219,9 +221,9 @@ class TestNeverBroken:
         positions of the run, so the message names the box 'drops at' and the forms it takes, issue 13)."""
         d = ScheduleDesigner(drops(0.1, at=(30, 60), steps=90), unit="epoch")
         d.control(0, "at").text.value = "30, sixty"
-        assert d.error == ("drops: drops at item 2 must be a position of the run: ticks (34500), epochs of the run "
-                           "('30 ep') or a share of the run ('33 %'); '+25 ep' counts from this stage's start; "
-                           "commas or semicolons between positions, got 'sixty'")
+        assert d.error == ("drops: drops at item 2 must be a position of the run: 34500, '30 ep' (epoch 30 of the "
+                           "run), '33 %' of the run, or '+25 ep' from this stage's start; commas or semicolons "
+                           "between positions, got 'sixty'")
         d.control(0, "at").text.value = "60, 30"
         assert "ticks must increase strictly" in d.error
         d.control(0, "at").text.value = "20, 60"

@@ -76,7 +76,8 @@ class TestRunClockPositions:
         assert d.schedule == before
         assert d.error.startswith("drops: drops at item 1 must be inside this stage, after step 5,750 (epoch 5) "
                                   "and before step 103,500 (epoch 90) of the run, written as a position of the "
-                                  "run: ticks (34500), epochs of the run ('30 ep') or a share of the run ('33 %')")
+                                  "run: 34500, '30 ep' (epoch 30 of the run), '33 %' of the run, or '+25 ep' from "
+                                  "this stage's start")
         assert d.error.endswith("got '3 ep' (it is step 3,450 (epoch 3) of the run, at or before the stage's start)")
         d.control(0, "at").text.value = "30 ep, 95 ep"
         assert "drops at item 2" in d.error and "at or after the stage's end" in d.error and d.schedule == before

@@ -23,7 +23,7 @@ from ..budget import parse_rate
 from ..schedule import complain
 from .controls import Entry
 from .guard import Panel
-from .theme import AMBER, BORDER, ERROR_RED, OK, TOGGLE, tidy_html
+from .theme import AMBER, BORDER, ERROR_RED, OK, TOGGLE, lines, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -174,6 +174,7 @@ class ExportPanel(Panel, W.VBox):
             words = (f"&#9888; the design is {L:,} {d.unit}s long, {abs(gap):,} {'more' if gap > 0 else 'fewer'} "
                      f"than the run of {d.steps:,}: training for the run would "
                      + ("never reach its end" if gap > 0 else "hold its last rate at the end"))
+        words = lines(words)
         if self.caution.value != words:
             self.caution.value = words
 
@@ -204,7 +205,7 @@ class ExportPanel(Panel, W.VBox):
         self._say(f"{verb} {done}", OK)
 
     def _say(self, text: str, colour: str) -> None:
-        self.message.value = f'<span style="color:{colour}">{tidy_html(text)}</span>'
+        self.message.value = lines(f'<span style="color:{colour}">{tidy_html(text)}</span>')
 
 
 class FileMethods:

@@ -48,6 +48,9 @@ SLIDER_LAYOUT = {"width": "21em", "flex": "0 0 auto"}
 BOX_LAYOUT = {"width": "7em", "flex": "0 0 auto"}
 RATE_FLOOR = 1e-8  # where a log slider stops when the declared soft range starts at 0
 RATE_SPAN = 1.5    # a rate slider spans this many decades either side of the value it was centred on
+#: Words beside a box: on the box's line when 14em are left there, else on a line of their own under it
+#: (squeezed beside it they wrapped into a narrow column that ran into the next rows).
+WORDS_LAYOUT = {"flex": "1 1 14em", "margin": "0 0 0 6px"}
 
 
 class Entry(W.Text):
@@ -210,7 +213,7 @@ class ParamControl:
                               "('6\u2009%'); a share or part of an epoch rounds up", continuous_update=False,
                               style=style, layout={"width": "13em", "flex": "0 0 auto"})
             self.text.add_class("sw-length")
-            self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})
+            self.words = W.HTML("", layout=WORDS_LAYOUT)
             self.words.add_class("sw-length-words")
             if p.optional:
                 self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
@@ -241,7 +244,7 @@ class ParamControl:
                                "the run: " + POSITION_FORMS, continuous_update=False, style=style,
                                layout={"width": "17em", "flex": "0 0 auto"})
             self.text.add_class("sw-positions")
-            self.words = W.HTML("", layout={"flex": "1 1 auto", "margin": "0 0 0 6px"})
+            self.words = W.HTML("", layout=WORDS_LAYOUT)
             self.words.add_class("sw-positions-words")
         elif k == "points":
             self.text = W.Text(description=words, tooltip=tip, continuous_update=False, style=style,
@@ -257,7 +260,7 @@ class ParamControl:
         for w in parts:
             w.observe(self._on_value, names="value")
         self.box = W.HBox(parts + ([self.words] if self.words is not None else []),
-                          layout={"align_items": "center"})
+                          layout={"align_items": "center", "flex_flow": "row wrap"})
 
     # ---------------------------------------------------------------- ranges
     def _rate_slider(self, lo: float, hi: float, value: Any = None) -> W.FloatLogSlider:

@@ -32,7 +32,7 @@ from .readout import DisplayMethods, ReadoutPanel
 from .replay import ReplayPanel
 from .rescale import RescalePanel
 from .stages import BudgetMethods, StagesPanel
-from .theme import ERROR_RED, Tabs, tidy_html
+from .theme import ERROR_RED, Tabs, lines, tidy_html
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
 
@@ -215,4 +215,4 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     @observe("error")
     def _show_error(self, change: dict) -> None:
         if hasattr(self, "error_line"):
-            self.error_line.value = tidy_html(change["new"])  # the message in the widget's one number format
+            self.error_line.value = lines(tidy_html(change["new"]))  # in the widget's one number format

@@ -20,8 +20,8 @@ from ..schedule import ScheduleError, complain
 __all__ = ["POSITION_FORMS", "parse_positions", "positions_text", "positions_words", "split_items"]
 
 BOX = "drops at"
-POSITION_FORMS = ("a position of the run: ticks (34500), epochs of the run ('30 ep') or a share of the run "
-                  "('33 %'); '+25 ep' counts from this stage's start; commas or semicolons between positions")
+POSITION_FORMS = ("a position of the run: 34500, '30 ep' (epoch 30 of the run), '33 %' of the run, or '+25 ep' "
+                  "from this stage's start; commas or semicolons between positions")
 #: A comma followed by exactly three digits is a thousands separator (34,500), any other comma separates items.
 _SEPARATOR = re.compile(r";|,(?!\d{3}(?!\d))")
 

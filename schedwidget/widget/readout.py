@@ -93,7 +93,7 @@ def facts_html(f: Facts) -> str:
 
 def cautions_html(f: Facts) -> str:
     """The cautions as HTML lines (empty string when there are none)."""
-    return "".join(f"<div>&#9888; {tidy_html(c)}</div>" for c in f.cautions)
+    return "".join(f'<div style="line-height:1.4;margin:0 0 2px 0">&#9888; {tidy_html(c)}</div>' for c in f.cautions)
 
 
 class ReadoutPanel(Panel, W.VBox):

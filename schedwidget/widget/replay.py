@@ -31,8 +31,8 @@ from ..metrics import DEMO_NAMES, demo_path, read_metric
 from ..plateau import PlateauReplay, PlateauRule, lead_in, replay_plateau
 from ..schedule import Schedule, ScheduleError, complain
 from .guard import Panel, quietly
-from .theme import (AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, TOGGLE, RateAxes, figure_layout, rate, rate_html,
-                    tidy_html)
+from .theme import (AMBER, CURVE, ERROR_RED, METRIC, REPLAY_FIGURE, TOGGLE, RateAxes, figure_layout, lines, rate,
+                    rate_html, tidy_html)
 from .controls import ParamControl
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -201,7 +201,7 @@ class ReplayPanel(Panel, W.VBox):
         self.figure.add_class("sw-replay-figure")
         self.figure_box = W.Box([self.figure], layout={"min_height": "300px", "width": "100%"})
         self.y_title = W.HTML('<span style="font-size:12px;color:#0f766e">learning rate</span>')
-        self.note = W.HTML(f"<small><i>{html.escape(COUNTERFACTUAL)}</i></small>")
+        self.note = W.HTML(lines(f"<small><i>{html.escape(COUNTERFACTUAL)}</i></small>"))
         self.note.add_class("sw-replay-note")
         self.caution = W.HTML("", style={"text_color": AMBER})
         self.caution.add_class("sw-replay-caution")
@@ -240,7 +240,7 @@ class ReplayPanel(Panel, W.VBox):
         return quietly(fn, self._say, "the last replay is kept")
 
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
-        value = tidy_html(text)
+        value = lines(tidy_html(text))
         if self.message.style.text_color != colour:
             self.message.style.text_color = colour
         if self.message.value != value:
@@ -336,9 +336,11 @@ class ReplayPanel(Panel, W.VBox):
         words = (html.escape(f"{self.source_name}{' (' + what + ')' if what else ''}: {n:,} evaluations, best "
                              f"{r.best:.6g} at epoch {r.best_at:,}, "
                              f"{inside:,} drops{after}, final rate ") + rate_html(r.next_rate))
+        words = lines(words)
         if self.status.value != words:
             self.status.value = words
         caution = self._caution(r, start)
+        caution = lines(caution)
         if self.caution.value != caution:
             self.caution.value = caution
         self._say("")

@@ -31,8 +31,8 @@ from ..sample import trace
 from ..svg import nice_ticks
 from ..schedule import complain
 from .guard import Panel, quietly
-from .theme import (AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, TOGGLE, figure_layout, legend_html, nice_ceiling, rate_html,
-                    tidy_html)
+from .theme import (AMBER, CURVE, ERROR_RED, RESCALE_FIGURE, TOGGLE, figure_layout, legend_html, lines, nice_ceiling,
+                    rate_html, tidy_html)
 from .theme import METRIC as OLD  # muted grey: the design as it is
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -117,7 +117,7 @@ class RescalePanel(Panel, W.VBox):
     def _say(self, text: str, colour: str = ERROR_RED) -> None:
         if self.message.style.text_color != colour:
             self.message.style.text_color = colour
-        value = tidy_html(text)
+        value = lines(tidy_html(text))
         if self.message.value != value:
             self.message.value = value
 

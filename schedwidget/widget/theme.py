@@ -16,7 +16,7 @@ import ipywidgets as W
 import numpy as np
 from traitlets import Int, observe
 
-from ..svg import CURVE, GHOSTS, JOIN
+from ..svg import CURVE, GHOSTS, JOIN, nice_ticks
 
 with warnings.catch_warnings():
     # bqplot 0.13 / bqscales declare traits the pre-4.1 way; traitlets says so on import. Not ours.
@@ -25,7 +25,7 @@ with warnings.catch_warnings():
 
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER", "TOGGLE",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
-           "rate", "rate_html", "number", "count", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
+           "rate", "rate_html", "number", "count", "lines", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
            "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
@@ -117,6 +117,16 @@ _EXPONENT = re.compile(r"(?<![\w.])-?\d+(?:\.\d+)?[eE][-+]?\d+(?![\w.])")
 
 #: "~0 (5.16e-11)": a tiny value the core already wrote as ~0 with its exact value beside it.
 _SAID_TINY = re.compile(r"~0 \((-?\d+(?:\.\d+)?[eE][-+]?\d+)\)")
+
+
+def lines(body: str) -> str:
+    """HTML text set at a reading line height (an HTML widget's lines are otherwise as tall as a control row);
+    empty stays empty.
+
+    >>> lines(""), lines("a")
+    ('', '<div style="line-height:1.4">a</div>')
+    """
+    return f'<div style="line-height:1.4">{body}</div>' if body else ""
 
 
 def rate(x: float) -> str:
@@ -236,8 +246,8 @@ class RateAxes:
         self.linear_scale = LinearScale(min=0.0, max=1.0)
         self.log_scale = LogScale(min=1e-6, max=1.0)
         extra = {"color": colour} if colour else {}
-        self.linear = Axis(scale=self.linear_scale, side="left", tick_format=".2~g", num_ticks=7,
-                           label="", **extra)
+        self.linear = Axis(scale=self.linear_scale, side="left", tick_format=".2~g", label="",
+                           tick_values=np.array([0.0, 0.5, 1.0]), **extra)
         self.log = Axis(scale=self.log_scale, side="left", tick_format=".0e", label="",
                         visible=False, tick_values=np.array([1e-6, 1e-3, 1.0]), **extra)
         self.axes = [self.linear, self.log]
@@ -265,6 +275,11 @@ class RateAxes:
             if self.linear_scale.max != new or self.linear_scale.min != 0.0:
                 with self.linear_scale.hold_sync():
                     self.linear_scale.min, self.linear_scale.max = 0.0, new
+            # round labels from 0 to the top (the front end's own for a padded domain began at -0.0073)
+            ticks = nice_ticks(0.0, new, 6)
+            ticks = np.array([float(f"{t:.12g}") for t in ticks if t <= new * (1 + 1e-9)])
+            if not np.array_equal(self.linear.tick_values, ticks):
+                self.linear.tick_values = ticks
 
     def fit_log(self, lo: float, hi: float) -> None:
         """Powers of ten from under ``lo`` to over ``hi`` (at most 8 labels)."""
