@@ -28,6 +28,8 @@ GRID = 48
 HALVINGS = 64
 #: Longest budget whose area and first tick under a level are read tick by tick; longer ones from facts' grid.
 EXACT = 2 ** 16
+#: Interior peaks (or troughs) of the target between grid values searched before refusing a target out of reach.
+EXTREMES = 3
 #: Two values of a target closer than this (relative) count as equal: float rounding, not a jump.
 TIE = 1e-12
 NUMERIC = ("rate", "ratio", "ticks", "count")
@@ -394,33 +396,33 @@ class _Search:
         return self.at(before)[0] if abs(y0 - self.goal) < abs(y - self.goal) else s
 
     def extremes(self, ok, ys) -> None:
-        """Around each interior highest or lowest grid value, the true extreme (ternary search over the values
-        between its neighbours); a ScheduleError when one reaches the goal (the target is then hit on both sides
-        of it, or only between grid values: either way not one answer found by bracketing)."""
-        for j in range(1, len(ys) - 1):
-            for sign in (1, -1):
-                if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]:
-                    a, b = self.key(ok[j - 1]), self.key(ok[j + 1])
-                    best = ys[j]
-                    for _ in range(2 * HALVINGS):
-                        if b - a <= 2:
-                            break
-                        m1, m2 = a + (b - a) // 3, b - (b - a) // 3
-                        y1, y2 = self.at(self.unkey(m1))[1], self.at(self.unkey(m2))[1]
-                        if y1 is None or y2 is None:
-                            break
-                        best = max(best, y1, y2) if sign > 0 else min(best, y1, y2)
-                        if sign * y1 < sign * y2:
-                            a = m1
-                        else:
-                            b = m2
-                    for k in range(a, b + 1):
-                        y = self.at(self.unkey(k))[1]
-                        if y is not None:
-                            best = max(best, y) if sign > 0 else min(best, y)
-                    if self.side(best) == 0 or self.side(best) != self.side(ys[j]):
-                        raise self.not_monotone([(ok[j - 1], ys[j - 1]), (ok[j], ys[j]), (ok[j + 1], ys[j + 1])])
-                    ys[j] = best
+        """Around the interior highest (or lowest) grid values nearest the goal, at most EXTREMES of them, the true
+        extreme (ternary search over the values between the neighbours); a ScheduleError when one reaches the goal
+        (the target is then hit on both sides of it, or only between grid values: not one answer either way)."""
+        sign = 1 if all(self.side(y) < 0 for y in ys) else -1  # the goal is above every value: look at the highs
+        tops = [j for j in range(1, len(ys) - 1) if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]]
+        for j in sorted(tops, key=lambda j: abs(ys[j] - self.goal))[:EXTREMES]:
+            a, b = self.key(ok[j - 1]), self.key(ok[j + 1])
+            best = ys[j]
+            for _ in range(2 * HALVINGS):
+                if b - a <= 2:
+                    break
+                m1, m2 = a + (b - a) // 3, b - (b - a) // 3
+                y1, y2 = self.at(self.unkey(m1))[1], self.at(self.unkey(m2))[1]
+                if y1 is None or y2 is None:
+                    break
+                best = max(best, y1, y2) if sign > 0 else min(best, y1, y2)
+                if sign * y1 < sign * y2:
+                    a = m1
+                else:
+                    b = m2
+            for k in range(a, min(b, a + 2) + 1):
+                y = self.at(self.unkey(k))[1]
+                if y is not None:
+                    best = max(best, y) if sign > 0 else min(best, y)
+            if self.side(best) != self.side(ys[j]):
+                raise self.not_monotone([(ok[j - 1], ys[j - 1]), (ok[j], ys[j]), (ok[j + 1], ys[j + 1])])
+            ys[j] = best
 
     # ----------------------------------------------------------------- helpers
     def side(self, y: float, strict: bool = False) -> int:

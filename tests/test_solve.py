@@ -296,3 +296,53 @@ def _rebuild_at(s, segs, v):
     from schedwidget.solve import _rebuild
 
     return _rebuild(s, segs, v)
+
+
+def _numeric_paths(s, prefix=""):
+    """Every path solve accepts in ``s``: its numeric parameters, and those of the schedules it holds."""
+    for name, p in type(s).params().items():
+        v = getattr(s, name)
+        if p.kind in ("rate", "ratio", "ticks", "count"):
+            yield prefix + name
+        elif p.kind == "schedule":
+            yield from _numeric_paths(v, f"{prefix}{name}.")
+        elif p.kind == "schedules":
+            for i, c in enumerate(v):
+                yield from _numeric_paths(c, f"{prefix}{name}[{i}].")
+
+
+def test_any_design_any_parameter_ends_in_a_design_or_a_schedule_error():
+    """Random designs of every registered kind (the fuzz suite's generator), a random numeric parameter and a
+    random target: a design or a ScheduleError, each in a bounded time (a hang guard, not a benchmark)."""
+    from tests.fuzz.designs import design
+
+    rng = random.Random(14)
+    seen = {"value": 0, "refused": 0}
+    for _ in range(60):
+        s = design(rng, depth=2, extreme=0.05, finite=rng.random() < 0.8)
+        paths = list(_numeric_paths(s))
+        if not paths:
+            continue
+        path, what = rng.choice(paths), rng.choice(["rate", "under", "area", "final"])
+        n = s.length or 1000
+        tick = rng.randint(0, min(n - 1, 10 ** 7))
+        value = float(s(tick)) * math.exp(rng.uniform(-2, 2))
+        target = {"rate": (tick, value), "under": (rng.choice([0.5, 0.1, 0.01]), tick), "area": value * n,
+                  "final": value}[what]
+        start = time.process_time()
+        try:
+            got = solve(s, path, **{what: target})
+        except ScheduleError:
+            seen["refused"] += 1
+        else:
+            assert isinstance(got, sw.Schedule) and type(got) is type(s)
+            seen["value"] += 1
+            whole = _bounds(_find(s, path)[1])[2]
+            y = _metric(got, what, target if what in ("rate", "under") else None)
+            if what == "under":
+                assert y == tick, (repr(s)[:300], path, target, y)
+            elif not whole:  # a real parameter hits the target to float rounding
+                goal = target[1] if what == "rate" else target
+                assert y == pytest.approx(goal, rel=1e-9, abs=1e-300), (repr(s)[:300], path, what, target, y)
+        assert time.process_time() - start < 15, (repr(s)[:300], path, what, target)
+    assert seen["value"] >= 10 and seen["refused"] >= 10, seen
