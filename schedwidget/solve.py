@@ -17,7 +17,7 @@ import numpy as np
 
 from .params import MAX_TICKS, Param, ScheduleError, as_whole, complain
 from .sample import breaks
-from .scan import LEVEL_TOLERANCE, _first_under, _grid, _refine_peak, _scan, work
+from .scan import _first_under, _grid, _refine_peak, _scan, work
 from .schedule import MAX_RATE, Schedule
 
 __all__ = ["solve"]
@@ -86,7 +86,7 @@ def solve(design: Schedule, parameter: str, *, rate: tuple[int, float] | None = 
         raise complain(owner, "target", ", ".join(given) or "none",
                        "exactly one of rate=(tick, value), under=(share, tick), area=value, final=value")
     (what, raw), = given.items()
-    path, p, current = _find(design, parameter)
+    path, p, _ = _find(design, parameter)
     metric, goal, words, whole_metric = _target(design, what, raw)
     lo, hi, whole = _bounds(p)
 
@@ -96,7 +96,7 @@ def solve(design: Schedule, parameter: str, *, rate: tuple[int, float] | None = 
         except ScheduleError:
             return None
 
-    return _Search(owner, parameter, p, lo, hi, whole, build, metric, goal, words, whole_metric).run()
+    return _Search(owner, parameter, lo, hi, whole, build, metric, goal, words, whole_metric).run()
 
 
 # ------------------------------------------------------------------ the parameter
@@ -271,8 +271,8 @@ def _unkey(k: int) -> float:
 class _Search:
     """Bracketing over a grid of the bounds, then bisection to the parameter's resolution."""
 
-    def __init__(self, owner, name, p, lo, hi, whole, build, metric, goal, words, whole_metric):
-        self.owner, self.name, self.p, self.lo, self.hi, self.whole = owner, name, p, lo, hi, whole
+    def __init__(self, owner, name, lo, hi, whole, build, metric, goal, words, whole_metric):
+        self.owner, self.name, self.lo, self.hi, self.whole = owner, name, lo, hi, whole
         self.build, self.metric, self.goal, self.words, self.whole_metric = build, metric, goal, words, whole_metric
         self.seen: dict[float, tuple[Schedule | None, float | None]] = {}
 
@@ -400,7 +400,8 @@ class _Search:
         extreme (ternary search over the values between the neighbours); a ScheduleError when one reaches the goal
         (the target is then hit on both sides of it, or only between grid values: not one answer either way)."""
         sign = 1 if all(self.side(y) < 0 for y in ys) else -1  # the goal is above every value: look at the highs
-        tops = [j for j in range(1, len(ys) - 1) if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]]
+        tops = [j for j in range(1, len(ys) - 1)
+                if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]]
         for j in sorted(tops, key=lambda j: abs(ys[j] - self.goal))[:EXTREMES]:
             a, b = self.key(ok[j - 1]), self.key(ok[j + 1])
             best = ys[j]
@@ -447,7 +448,8 @@ class _Search:
 
     def not_monotone(self, pairs) -> ScheduleError:
         seen = ", ".join(f"{y!r} at {v!r}" for v, y in dict(pairs).items())
+        goal = int(self.goal - 0.5) if self.whole_metric else self.goal
         return ScheduleError(
             f"{self.owner}: {self.words} is not monotone in {self.name} over {self.words_bounds()}: the target "
-            f"{int(self.goal - 0.5) if self.whole_metric else self.goal!r} is hit in more than one place ({seen}), so no single answer is right "
+            f"{goal!r} is hit in more than one place ({seen}), so no single answer is right "
             "(narrow the question, or move a parameter that moves the target one way only)")

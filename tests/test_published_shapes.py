@@ -46,7 +46,8 @@ class TestSqrtCooldown:
         s = stages(ramp(0.0, peak, w), flat(peak, steps=total - w - cool), ramp(peak, 0.0, cool, curve="sqrt"))
         t = np.arange(total)
         n0 = total - cool
-        want = np.where(t < w, peak * t / w, np.where(t < n0, peak, peak * (1.0 - np.sqrt(np.clip(t - n0, 0, None) / cool))))
+        cooled = peak * (1.0 - np.sqrt(np.clip(t - n0, 0, None) / cool))
+        want = np.where(t < w, peak * t / w, np.where(t < n0, peak, cooled))
         np.testing.assert_allclose(s(t), want, rtol=1e-14, atol=0)
         assert s.length == total and s(total) == 0.0
 
@@ -125,8 +126,9 @@ class TestTwoPhaseOneCycle:
         convention and matches it at every tick."""
         peak, div, final_div = 0.5, 25.0, 1e4
         low = peak / div
-        ref = torch_rates(torch, n, max_lr=peak, pct_start=rise, anneal_strategy="cos" if curve == "cosine" else "linear",
-                          three_phase=False, div_factor=div, final_div_factor=final_div)
+        strategy = "cos" if curve == "cosine" else "linear"
+        ref = torch_rates(torch, n, max_lr=peak, pct_start=rise, anneal_strategy=strategy, three_phase=False,
+                          div_factor=div, final_div_factor=final_div)
         on = one_cycle(peak, n, low=low, final=low / final_div, phases=2, rise=rise, curve=curve, ends="on")
         np.testing.assert_allclose(on(np.arange(n)), ref, rtol=1e-12, atol=1e-15)
         assert on(n - 1) == on(n + 5) == pytest.approx(low / final_div, rel=1e-9)  # held from the last tick on

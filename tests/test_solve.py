@@ -75,7 +75,8 @@ class TestPaths:
     @pytest.mark.parametrize("path, match", [
         ("parts.steps", r"parameter must be a path .*parts is a list of schedules: name one, e\.g\. parts\[0\]"),
         ("parts[2].steps", r"solve: parameter must be an index < 2 in parts\[\.\.\.\]"),
-        ("parts[1].gamma", r"solve: parameter must be a parameter of exp_decay \(peak, factor, every, staircase, steps\)"),
+        ("parts[1].gamma",
+         r"solve: parameter must be a parameter of exp_decay \(peak, factor, every, staircase, steps\)"),
         ("parts[0].curve", r"solve: parameter must be a rate, ratio, length or count, got 'parts\[0\]\.curve' "
                            r"\(warmup\.curve is a choice; solve moves one number\)"),
         ("parts[1].factor.x", r"exp_decay\.factor holds no schedule"),
@@ -129,8 +130,8 @@ class TestRefusals:
     """No wrong answer: out of reach, not monotone, or a jump over the asked value is a ScheduleError saying why."""
 
     def test_out_of_reach_names_target_range_parameter_and_bounds(self):
-        with pytest.raises(ScheduleError, match=r"solve: no value of floor in \[0\.0, 1e\+100\] gives final rate = 0\.5: "
-                                                r"reachable: 0\.0 to 0\.1 \(over floor = 0\.0 to 0\.1\)"):
+        with pytest.raises(ScheduleError, match=r"solve: no value of floor in \[0\.0, 1e\+100\] gives final rate = "
+                                                r"0\.5: reachable: 0\.0 to 0\.1 \(over floor = 0\.0 to 0\.1\)"):
             solve(cosine(0.1, steps=100), "floor", final=0.5)
 
     def test_a_target_that_does_not_depend_on_the_parameter(self):
@@ -140,7 +141,8 @@ class TestRefusals:
     def test_not_monotone_is_refused(self):
         # the rate at tick 15 of a triangle rises and falls as the half period grows: 0.05 is hit more than once
         with pytest.raises(ScheduleError, match=r"solve: rate at tick 15 is not monotone in half_period over "
-                                                r"\[1, 9007199254740992\]: the target 0\.05 is hit in more than one place"):
+                                                r"\[1, 9007199254740992\]: the target 0\.05 is hit in more than "
+                                                r"one place"):
             solve(triangle(0.0, 0.1, 10), "half_period", rate=(15, 0.05))
 
     def test_a_jump_over_the_asked_tick(self):
