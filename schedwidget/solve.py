@@ -20,7 +20,7 @@ from .sample import breaks
 from .scan import _first_under, _grid, _refine_peak, _scan, work
 from .schedule import MAX_RATE, Schedule
 
-__all__ = ["solve"]
+__all__ = ["solve", "paths"]
 
 #: Points of the first look over the parameter's bounds (the ends included).
 GRID = 48
@@ -100,6 +100,32 @@ def solve(design: Schedule, parameter: str, *, rate: tuple[int, float] | None = 
 
 
 # ------------------------------------------------------------------ the parameter
+def paths(design: Schedule) -> list[tuple[str, Param, Any]]:
+    """Every parameter ``solve`` can move in ``design``: (path, declaration, current value), depth first.
+
+    >>> from schedwidget import cosine, warmup
+    >>> [p for p, _, _ in paths(warmup(cosine(0.1, steps=100), 10))]
+    ['target.peak', 'target.floor', 'target.steps', 'steps', 'start']
+    """
+    if not isinstance(design, Schedule):
+        raise complain("paths", "design", design, "a Schedule (built with cosine(), warmup(), ...)")
+    out: list[tuple[str, Param, Any]] = []
+
+    def walk(node: Schedule, prefix: str) -> None:
+        for name, p in type(node).params().items():
+            v = getattr(node, name)
+            if p.kind in NUMERIC:
+                out.append((prefix + name, p, v))
+            elif p.kind == "schedule":
+                walk(v, f"{prefix}{name}.")
+            elif p.kind == "schedules":
+                for i, c in enumerate(v):
+                    walk(c, f"{prefix}{name}[{i}].")
+
+    walk(design, "")
+    return out
+
+
 def _find(design: Schedule, parameter: Any) -> tuple[list[tuple[str, int | None]], Param, Any]:
     """The path's segments, the parameter's declaration and its current value."""
     owner = "solve"

@@ -12,6 +12,7 @@ import pytest
 import schedwidget as sw
 from schedwidget import ScheduleError, cosine, exp_decay, facts, flat, poly, ramp, solve, stages, triangle, warmup
 from schedwidget.solve import _area, _bounds, _find, _first_under_share
+from schedwidget.solve import paths as solve_paths
 
 
 class TestIssueQuestions:
@@ -88,6 +89,15 @@ class TestPaths:
     def test_bad_paths(self, path, match):
         with pytest.raises(ScheduleError, match=match):
             solve(self.DESIGN, path, final=0.001)
+
+    def test_every_movable_parameter_is_listed(self):
+        """paths(design): each numeric parameter with its declaration and value; each path is one solve accepts."""
+        got = solve_paths(self.DESIGN)
+        assert [p for p, _, _ in got] == ["parts[0].target.peak", "parts[0].target.floor", "parts[0].target.steps",
+                                          "parts[0].steps", "parts[0].start", "parts[1].peak", "parts[1].factor",
+                                          "parts[1].every", "parts[1].steps"]
+        for path, decl, value in got:
+            assert _find(self.DESIGN, path)[1:] == (decl, value)
 
     def test_declared_bounds(self):
         p = sw.shapes.ExpDecay.params()["factor"]
@@ -300,19 +310,6 @@ def _rebuild_at(s, segs, v):
     return _rebuild(s, segs, v)
 
 
-def _numeric_paths(s, prefix=""):
-    """Every path solve accepts in ``s``: its numeric parameters, and those of the schedules it holds."""
-    for name, p in type(s).params().items():
-        v = getattr(s, name)
-        if p.kind in ("rate", "ratio", "ticks", "count"):
-            yield prefix + name
-        elif p.kind == "schedule":
-            yield from _numeric_paths(v, f"{prefix}{name}.")
-        elif p.kind == "schedules":
-            for i, c in enumerate(v):
-                yield from _numeric_paths(c, f"{prefix}{name}[{i}].")
-
-
 def test_any_design_any_parameter_ends_in_a_design_or_a_schedule_error():
     """Random designs of every registered kind (the fuzz suite's generator), a random numeric parameter and a
     random target: a design or a ScheduleError, each in a bounded time (a hang guard, not a benchmark)."""
@@ -322,7 +319,7 @@ def test_any_design_any_parameter_ends_in_a_design_or_a_schedule_error():
     seen = {"value": 0, "refused": 0}
     for _ in range(60):
         s = design(rng, depth=2, extreme=0.05, finite=rng.random() < 0.8)
-        paths = list(_numeric_paths(s))
+        paths = [p for p, _, _ in solve_paths(s)]
         if not paths:
             continue
         path, what = rng.choice(paths), rng.choice(["rate", "under", "area", "final"])
