@@ -88,6 +88,13 @@ def _xml(text: str, limit: int = 60) -> str:
     return escape(text if len(text) <= limit else text[: limit - 1] + "\u2026")
 
 
+def _words(name: str, value: object, limit: int) -> str:
+    """A caption the picture shows (a title or an axis name): one line of text, escaped when drawn."""
+    if not isinstance(value, str) or not value.strip() or len(value) > limit or "\n" in value:
+        raise complain("render_svg", name, value, f"a non-empty line of text of at most {limit} characters")
+    return value.strip()
+
+
 def _check(width, height, log, unit, steps_per_epoch, ghosts) -> list[tuple[str, Schedule]]:
     for name, value, lo in (("width", width, 160), ("height", height, 100)):
         if isinstance(value, bool) or not isinstance(value, Integral) or not lo <= value <= 4000:
@@ -173,7 +180,7 @@ def _draw(p: _Plot, tr: Trace, color: str, role: str, width: float) -> list[str]
     return out
 
 
-def _axes(p: _Plot, unit: str, spe: int | None) -> list[str]:
+def _axes(p: _Plot, unit: str, spe: int | None, axis: str = "rate") -> list[str]:
     out = [f'<g data-role="axes" font-size="11" fill="{INK}">']
     for v, label in p.yticks():
         y = float(p.py(v))
@@ -188,7 +195,7 @@ def _axes(p: _Plot, unit: str, spe: int | None) -> list[str]:
     out.append(f'<line stroke="{INK}" x1="{p.x0:.2f}" x2="{p.x1:.2f}" y1="{p.y1:.2f}" y2="{p.y1:.2f}"/>')
     out.append(f'<line stroke="{INK}" x1="{p.x0:.2f}" x2="{p.x0:.2f}" y1="{p.y0:.2f}" y2="{p.y1:.2f}"/>')
     out.append(f'<text data-role="xlabel" x="{p.x1:.2f}" y="{p.y1 + 30:.2f}" text-anchor="end">{name}</text>')
-    ylabel = "rate (log)" if p.log else "rate"
+    ylabel = f"{axis} (log)" if p.log else axis
     out.append(f'<text data-role="ylabel" x="6" y="{p.y0 - 10:.2f}" text-anchor="start">{ylabel}</text>')
     out.append("</g>")
     return out
@@ -212,7 +219,8 @@ def _legend(p: _Plot, ghosts: list[tuple[str, Schedule]]) -> list[str]:
 
 def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: int = 640, height: int = 240,
                unit: str = "step", steps_per_epoch: int | None = None,
-               ghosts: Sequence[tuple[str, Schedule]] = ()) -> str:
+               ghosts: Sequence[tuple[str, Schedule]] = (), title: str = "learning-rate schedule",
+               axis: str = "rate") -> str:
     """A standalone SVG picture of ``s`` over ``steps`` ticks, from the points the designer draws.
 
     Parameters
@@ -224,6 +232,9 @@ def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: 
     unit : "step" or "epoch", the unit of the clock (the x axis title).
     steps_per_epoch : label the x axis in epochs (unit "step" only).
     ghosts : pinned designs as ``(label, schedule)`` pairs, drawn in greys over the same budget.
+    title : what the picture shows, first words of its ``<title>`` (``"momentum schedule"`` for a momentum
+        track); the budget, pinned designs and warmup follow.
+    axis : the name of the y axis (``"momentum"``, ``"weight decay"``; default ``"rate"``).
 
     Examples
     --------
@@ -233,6 +244,7 @@ def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: 
     True
     """
     pinned = _check(width, height, log, unit, steps_per_epoch, ghosts)
+    title, axis = _words("title", title, 120), _words("axis", axis, 40)
     if not isinstance(s, Schedule):
         raise complain("render_svg", "s", s, "a Schedule (built with cosine(), ramp(), stages(), ...)")
     n = budget_of(s, default_window(s) if steps is None and s.length is None else steps, "render_svg")
@@ -240,7 +252,7 @@ def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: 
     others = [(label, trace(g, n)) for label, g in pinned]
     p = _Plot(n, [cur.y, cur.band_hi, *[t.y for _, t in others], *[t.band_hi for _, t in others]],
               bool(log), int(width), int(height), TOP)
-    title = f"learning-rate schedule over {n:,} {unit}s" + (f", with {len(others)} pinned" if others else "")
+    title = f"{title} over {n:,} {unit}s" + (f", with {len(others)} pinned" if others else "")
     warm = warmup_of(s)  # which warmup the design has, in the title a reader hovers over and as data
     if warm is not None:
         title += (f"; warmup laid over the first {warm[1]:,.0f} {unit}s" if warm[0] == "over"
@@ -250,7 +262,7 @@ def render_svg(s: Schedule, steps: int | None = None, log: bool = False, width: 
             f'viewBox="0 0 {width} {height}" font-family="sans-serif" data-steps="{n}"{place}>',
             f"<title>{_xml(title, 200)}</title>",
             f'<rect width="{width}" height="{height}" fill="#ffffff"/>']
-    body += _axes(p, unit, steps_per_epoch)
+    body += _axes(p, unit, steps_per_epoch, axis)
     for j in cur.joins:
         x = float(p.px(j))
         body.append(f'<line data-role="join" stroke="{JOIN}" stroke-width="1" stroke-dasharray="2 3" '

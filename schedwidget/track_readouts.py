@@ -10,6 +10,12 @@ from .tracks import GroupDesigns, Tracks, _brief, as_groups
 
 __all__ = ["decay_per_step", "track_facts", "tracks_sentence", "tracks_svg"]
 
+#: Each track's picture: the first words of its title and the name of its y axis.
+PICTURE_WORDS = {"rate": ("learning-rate schedule", "rate"),
+                 "momentum": ("momentum schedule (SGD momentum or the first Adam beta)", "momentum"),
+                 "beta2": ("second Adam beta schedule", "beta2"),
+                 "weight_decay": ("weight-decay schedule", "weight decay")}
+
 
 def decay_per_step(t: Tracks) -> Schedule | None:
     """``rate * weight_decay``: the share of each weight that torch's AdamW takes off per step, or None.
@@ -76,7 +82,11 @@ def tracks_sentence(x: Tracks | GroupDesigns, steps: int | None = None, steps_pe
 
 def tracks_svg(x: Tracks | GroupDesigns, steps: int | None = None, width: int = 640, height: int = 180,
                unit: str = "step", steps_per_epoch: int | None = None) -> str:
-    """Small multiples: one picture per track (and group) on the same clock, stacked, each with its own axis."""
+    """Small multiples: one picture per track (and group) on the same clock, stacked, each with its own axis.
+
+    Each panel's title and y axis say what it shows (``"momentum schedule ..."``, axis ``"momentum"``);
+    per-group panels start with the group's name.
+    """
     from .svg import _xml, default_window, render_svg
 
     g = _groups_of(x)
@@ -85,7 +95,9 @@ def tracks_svg(x: Tracks | GroupDesigns, steps: int | None = None, width: int = 
         n = steps if steps is not None else (t.length if t.length is not None else default_window(t.rate))
         label = "" if len(g) == 1 else f"{g.names[i] if g.names else f'group {i}'}: "
         for name, s in t.items():
-            body = render_svg(s, steps=n, width=width, height=height, unit=unit, steps_per_epoch=steps_per_epoch)
+            title, axis = PICTURE_WORDS[name]
+            body = render_svg(s, steps=n, width=width, height=height, unit=unit, steps_per_epoch=steps_per_epoch,
+                              title=label + title, axis=axis)
             panels.append((label + name.replace("_", " "), body))
     gap = 18
     total = len(panels) * (height + gap)

@@ -235,6 +235,30 @@ class TestRenderSvg:
         with pytest.raises(ScheduleError, match=match):
             render_svg(cosine(0.1, steps=100), **kwargs)
 
+    def test_title_and_axis_say_what_is_drawn(self):
+        """title and axis name what the picture shows (a momentum track is no learning-rate schedule); the
+        default is the rate's, and the budget and the warmup still follow the title."""
+        plain = parse(render_svg(cosine(0.1, steps=100)))
+        assert plain.find("s:title", NS).text == "learning-rate schedule over 100 steps"
+        assert labels(plain, "ylabel").keys() == {"rate"}
+        m = parse(render_svg(warmup(flat(0.9, steps=80), steps=20, start=0.95), title="momentum <SGD>",
+                             axis="momentum", log=True))
+        assert m.find("s:title", NS).text == ("momentum <SGD> over 100 steps; warmup of 20 steps before the "
+                                              "schedule")
+        assert labels(m, "ylabel").keys() == {"momentum (log)"}
+
+    @pytest.mark.parametrize("kwargs, match", [
+        ({"title": ""}, r"render_svg: title must be a non-empty line of text of at most 120 characters, got ''"),
+        ({"title": None}, r"render_svg: title must be a non-empty line of text"),
+        ({"title": "a\nb"}, r"render_svg: title must be a non-empty line"),
+        ({"title": "x" * 121}, r"render_svg: title must be .* at most 120 characters"),
+        ({"axis": 3}, r"render_svg: axis must be a non-empty line of text of at most 40 characters, got 3"),
+    ])
+    def test_bad_title_or_axis(self, kwargs, match):
+        """A title or axis name that is not one short line of text is refused, naming the parameter."""
+        with pytest.raises(ScheduleError, match=match):
+            render_svg(cosine(0.1, steps=100), **kwargs)
+
     def test_not_a_schedule(self):
         """Anything but a Schedule is refused with a hint."""
         with pytest.raises(ScheduleError, match=r"render_svg: s must be a Schedule"):
