@@ -239,7 +239,22 @@ def _peak(s: Schedule, n: int) -> tuple[float, int, bool]:
     return best, at, True
 
 
-def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
+#: What a generated function can be the schedule of: its docstring's first words and the word for its value.
+SUBJECTS = {"rate": ("Learning rate", "rate"),
+            "momentum": ("Momentum (SGD momentum or the first Adam beta)", "momentum"),
+            "beta2": ("Second Adam beta", "beta2"),
+            "weight_decay": ("Weight decay", "weight decay")}
+
+
+def _subject(what: object) -> tuple[str, str]:
+    if not isinstance(what, str) or what not in SUBJECTS:
+        raise complain("to_python", "what", what, f"one of {', '.join(map(repr, SUBJECTS))}")
+    return SUBJECTS[what]
+
+
+def _describe(s: Schedule, unit: str, spe: int | None, what: str = "rate") -> list[str]:
+    """The generated function's docstring, line by line, for the schedule of ``what`` (a ``SUBJECTS`` key)."""
+    head, word = _subject(what)
     n = s.length
     # an open-ended design is described over twice its longest part (at most 2**53 ticks, the longest clock)
     span = n if n is not None else min(MAX_TICKS, max([10_000] + [2 * c.length for c in s.walk() if c.length is not None]))
@@ -258,13 +273,13 @@ def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
                      "counts from the start of the run."]
     else:
         warm_line = [f"Warmup: {warm[1]:,.0f} {unit}s before the schedule, whose own ticks start after it."]
-    lines = [f"Learning rate at tick t (an int >= 0; t = 0 is {first}).", "",
+    lines = [f"{head} at tick t (an int >= 0; t = 0 is {first}).", "",
              f"Unit: {unit} ({per}).",
              f"Budget: {n:,} {unit}s{ep}." if n is not None else "Budget: open-ended (no planned length).",
              *warm_line,
              f"Peak: {peak!r} at {unit} {peak_at:,}" + ("" if exact else " (read from a grid of ticks)")
              + ("." if n is not None else f" (first {span:,} {unit}s)."),
-             (f"Past the end (t >= {n:,}) the rate stays at {s(n)!r}, the value the design reaches at t = {n:,}."
+             (f"Past the end (t >= {n:,}) the {word} stays at {s(n)!r}, the value the design reaches at t = {n:,}."
               if n is not None else "Past the end: never ends; the formula runs on.")]
     design = repr(s)
     if len(design) > 600:
@@ -274,8 +289,13 @@ def _describe(s: Schedule, unit: str, spe: int | None) -> list[str]:
 
 
 def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch: int | None = None,
-                    doc: bool = True) -> tuple[str, set[str]]:
-    """The function's source and the modules it imports (no import lines)."""
+                    doc: bool = True, what: str = "rate") -> tuple[str, set[str]]:
+    """The function's source and the modules it imports (no import lines).
+
+    ``what`` is the hyperparameter ``s`` schedules (a ``SUBJECTS`` key: ``"rate"``, ``"momentum"``,
+    ``"beta2"``, ``"weight_decay"``); the docstring names it.
+    """
+    _subject(what)
     if steps_per_epoch is not None and (isinstance(steps_per_epoch, bool) or not isinstance(steps_per_epoch, int)
                                         or not 1 <= steps_per_epoch <= MAX_TICKS):
         raise complain("to_python", "steps_per_epoch", steps_per_epoch, "a whole number >= 1 and <= 2**53 or None")
@@ -301,7 +321,7 @@ def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch:
     w.emit(s, "u", None if n is None else float(n), 1, lambda e: f"return {e}")
     head = [f"def {name}(t):"]
     if doc:
-        text = _describe(s, unit, steps_per_epoch)
+        text = _describe(s, unit, steps_per_epoch, what)
         head += ['    """' + text[0]] + [("    " + x).rstrip() for x in text[1:]] + ['    """']
     return "\n".join(head + w.lines) + "\n", w.modules
 

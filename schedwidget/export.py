@@ -87,8 +87,6 @@ def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_ep
 #: Each track's function name (the rate's is the ``name`` argument); per group, the group's name or
 #: ``group<i>`` goes first: ``head_momentum_at``, ``group0_lr_at``.
 TRACK_FUNCTIONS = {"momentum": "momentum_at", "beta2": "beta2_at", "weight_decay": "weight_decay_at"}
-TRACK_WORDS = {"momentum": "Momentum (SGD momentum or the first Adam beta)", "beta2": "Second Adam beta",
-               "weight_decay": "Weight decay"}
 
 
 def _tracked(s: Any) -> bool:
@@ -128,9 +126,7 @@ def _track_functions(owner: str, design: Any, name: str, unit: str, spe: int | N
             if fn in seen:
                 raise complain(owner, "name", name, f"a name that no track's function repeats ({fn!r} twice)")
             seen.add(fn)
-            body, mods = function_source(s, fn, unit, spe)
-            if track != "rate":  # the writer's docstring speaks of a rate; say which hyperparameter this is
-                body = body.replace('"""Learning rate at tick t', f'"""{TRACK_WORDS[track]} at tick t', 1)
+            body, mods = function_source(s, fn, unit, spe, what=track)  # the docstring names the track
             bodies.append(body)
             modules |= mods
     text = "".join(f"import {m}\n" for m in sorted(modules)) + "\n\n" + "\n\n".join(bodies)

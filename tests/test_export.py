@@ -269,6 +269,27 @@ class TestToPython:
         open_doc = compile_fresh(to_python(exp_decay(0.1, 0.9)))[0].__doc__
         assert "open-ended" in open_doc
 
+    def test_docstring_names_what_is_scheduled(self):
+        """function_source(..., what=) names the hyperparameter in the docstring's first line and past the end;
+        anything but the four tracks is refused."""
+        from schedwidget.codegen import function_source
+
+        s = ramp(0.85, 0.95, 100)
+        words = {"rate": ("Learning rate", "rate"), "momentum": ("Momentum (SGD momentum or the first Adam beta)",
+                                                                  "momentum"),
+                 "beta2": ("Second Adam beta", "beta2"), "weight_decay": ("Weight decay", "weight decay")}
+        for what, (head, word) in words.items():
+            body, _ = function_source(s, "f", what=what)
+            ns = {}
+            exec("import math\n" + body, ns)
+            assert ns["f"].__doc__.startswith(f"{head} at tick t (an int >= 0; t = 0 is the first update).")
+            assert f"Past the end (t >= 100) the {word} stays at 0.95" in ns["f"].__doc__
+            assert [ns["f"](i) for i in range(101)] == s(np.arange(101)).tolist()
+        assert function_source(s, "f")[0] == function_source(s, "f", what="rate")[0]
+        with pytest.raises(ScheduleError, match=r"to_python: what must be one of 'rate', 'momentum', 'beta2', "
+                                                r"'weight_decay', got 'lr'"):
+            function_source(s, "f", what="lr")
+
     def test_same_design_same_text(self):
         """A spec round trip gives the same source, so exports diff cleanly."""
         s = EXAMPLES["restarts"][2] >> EXAMPLES["knots"][3] >> flat(0.001)
