@@ -84,11 +84,15 @@ def _read_design(owner: str, text: Any) -> Schedule:
     except (ValueError, RecursionError):
         raise complain(owner, "design", _brief(text), _SPEC_TEXT) from None
     try:
-        return from_spec(spec)
+        s = from_spec(spec)
     except ScheduleError as exc:
         raise ScheduleError(f"{owner}: design must be a valid spec: {exc}") from None
     except (RecursionError, OverflowError, MemoryError, TypeError, ValueError, KeyError) as exc:
         raise complain(owner, "design", _brief(text), "a valid spec", f"{type(exc).__name__}: {exc}"[:200]) from None
+    if not isinstance(s, Schedule):  # a safeguard: a factor computes one rate, whatever the spec reader returns
+        raise complain(owner, "design", _brief(text), "the spec of one schedule (a factor sets one rate)",
+                       "tracks and per-group designs run through make_scheduler's TrackClock")
+    return s
 
 
 def _build(owner: str, s: Schedule) -> Callable[[int], float]:

@@ -387,3 +387,49 @@ class TestReadouts:
         assert labels == ["rate", "momentum", "beta2", "weight decay"]
         two = ET.fromstring(tracks_svg(per_group({"backbone": ONE, "head": FULL})))
         assert len(two.findall(f"{ns}svg")) == 5
+
+
+class TestFollowUps:
+    """Pictures and generated docstrings say which hyperparameter they show; a factor refuses anything but one
+    schedule, whatever the spec reader returns."""
+
+    def test_panels_titled_for_their_track(self):
+        """Each small multiple's title and y axis name its track (not 'learning-rate schedule' four times)."""
+        ns = "{http://www.w3.org/2000/svg}"
+        root = ET.fromstring(tracks_svg(FULL, unit="step"))
+        titles = [p.find(f"{ns}title").text for p in root.findall(f"{ns}svg")]
+        assert titles == ["learning-rate schedule over 1,000 steps",
+                          "momentum schedule (SGD momentum or the first Adam beta) over 1,000 steps",
+                          "second Adam beta schedule over 1,000 steps", "weight-decay schedule over 1,000 steps"]
+        axes = [e.text for e in root.iter() if e.get("data-role") == "ylabel"]
+        assert axes == ["rate", "momentum", "beta2", "weight decay"]
+        two = ET.fromstring(tracks_svg(per_group({"backbone": ONE, "head": FULL})))
+        titles = [p.find(f"{ns}title").text for p in two.findall(f"{ns}svg")]
+        assert titles[0] == "backbone: learning-rate schedule over 1,000 steps"
+        assert titles[2].startswith("head: momentum schedule")
+
+    def test_generated_docstrings_name_their_track(self):
+        """Every track's function states its own hyperparameter, in the first line and past the end."""
+        ns = {}
+        exec(to_python(FULL), ns)
+        assert ns["lr_at"].__doc__.startswith("Learning rate at tick t")
+        assert ns["momentum_at"].__doc__.startswith("Momentum (SGD momentum or the first Adam beta) at tick t")
+        assert "the momentum stays at 0.95" in ns["momentum_at"].__doc__
+        assert ns["beta2_at"].__doc__.startswith("Second Adam beta at tick t")
+        assert ns["weight_decay_at"].__doc__.startswith("Weight decay at tick t")
+        assert "the weight decay stays at 0.01" in ns["weight_decay_at"].__doc__
+        assert "the rate stays" not in ns["momentum_at"].__doc__ + ns["weight_decay_at"].__doc__
+
+    def test_factor_refuses_a_reader_that_returns_tracks(self, monkeypatch):
+        """_read_design checks the value itself: were the spec reader to hand back tracks, a RateFactor (one
+        rate) refuses it with a ScheduleError instead of failing later on a missing attribute."""
+        import schedwidget.spec as spec
+        from schedwidget.factor import _read_design
+
+        text = json.dumps(to_spec(ONE))
+        assert _read_design("RateFactor", text) == ONE
+        monkeypatch.setattr(spec, "from_spec", lambda d: FULL)
+        with pytest.raises(ScheduleError, match=r"RateFactor: design must be the spec of one schedule \(a factor "
+                                                r"sets one rate\), got '\{.*\(tracks and per-group designs run "
+                                                r"through make_scheduler's TrackClock\)"):
+            _read_design("RateFactor", text)
