@@ -5,6 +5,10 @@
     python -m schedwidget check SPEC.json [--steps N]
     python -m schedwidget schema
 
+A spec of tracks (momentum, beta2, weight decay beside the rate) or of one design per param group is
+shown track by track and exported as one function per track and group (``--to python``) or as
+``to_torch_tracks``'s snippet (``--to torch``; ``--groups`` copies one set of tracks per multiplier).
+
 Bad input ends with exit code 1 and one line on stderr, never a traceback.
 Spec files must be regular files of at most 16 MiB (``spec.MAX_SPEC_BYTES``):
 a pipe or a device is refused before it is opened, so the command never blocks.
@@ -71,12 +75,15 @@ def _parser() -> argparse.ArgumentParser:
     show.add_argument("spec", metavar="SPEC.json")
     ex = sub.add_parser("export", help="write the design as Python or as a torch snippet",
                         description="Write the design as one stdlib-only Python function (--to python) or a "
-                                    "ready torch snippet (--to torch), to FILE or stdout.")
+                                    "ready torch snippet (--to torch), to FILE or stdout. A spec of tracks or "
+                                    "per-group designs gives one function per track and group, and a snippet "
+                                    "whose clock sets each group's lr and tracked keys (no --base-lr).")
     ex.add_argument("spec", metavar="SPEC.json")
     ex.add_argument("--to", required=True, choices=("python", "torch"), help="what to write")
     ex.add_argument("--name", default="lr_at", help="name of the generated function (default: lr_at)")
     ex.add_argument("--base-lr", type=float, default=None, metavar="X",
-                    help="torch: the optimizer's lr for every param group (default: the design's peak)")
+                    help="torch: the optimizer's lr for every param group (default: the design's peak; "
+                         "not for tracks, whose rates are absolute)")
     ex.add_argument("--groups", type=_groups, default=None, metavar="M,M,...",
                     help="torch: one rate multiplier per param group, e.g. 1.0,0.1 (default: one rate for all)")
     ex.add_argument("--steps", type=_whole, default=None, metavar="N",
@@ -98,29 +105,90 @@ def _peak(s) -> float:
     return facts(s, steps=s.length or 10_000).peak
 
 
+def _rows(f, unit: str, rate: bool = True) -> list[str]:
+    """The numbers of one design's facts, aligned; a rate's shares of its peak and area only for a rate."""
+    def at(t):
+        return f"{unit} {t:,}" if t is not None else "never"
+    rows = [("peak", f"{f.peak:.6g} at {at(f.peak_at)}"), ("first", f"{f.first:.6g}"),
+            ("final", f"{f.final:.6g} at {at(f.steps - 1)}"), ("after the budget", f"{f.after:.6g}"),
+            ("minimum", f"{f.minimum:.6g} at {at(f.minimum_at)}"), ("mean", f"{f.mean:.6g}")]
+    if rate:
+        rows += [("area", f"{f.area:.6g} (sum of rates)"), ("jumps", f"{len(f.breaks):,}"),
+                 ("under 10% of peak", at(f.under_10)), ("under 1% of peak", at(f.under_1))]
+    else:
+        rows += [("jumps", f"{len(f.breaks):,}")]
+    if rate and f.half_life is not None:
+        rows.append(("half-life", f"{f.half_life:.4g} {unit}s"))
+    width = max(len(k) for k, _ in rows)
+    return [f"{k.ljust(width)}  {v}" for k, v in rows]
+
+
 def _show(d, path: str) -> str:
     from .facts import facts
 
+    if d.tracks is not None:
+        return _show_tracks(d, path)
     s, unit, spe = d.schedule, d.unit, d.steps_per_epoch
     f = facts(s, steps=s.length or 10_000, unit=unit, steps_per_epoch=spe if unit == "step" else None)
     head = f"{path}: {s.kind}, unit {unit}, " + (f"{s.length:,} {unit}s" if s.length else "open-ended (read over "
                                                  f"{f.steps:,} {unit}s)")
     if spe and unit == "step":
         head += f", {spe:,} steps per epoch"
-
-    def at(t):
-        return f"{unit} {t:,}" if t is not None else "never"
-    rows = [("peak", f"{f.peak:.6g} at {at(f.peak_at)}"), ("first", f"{f.first:.6g}"),
-            ("final", f"{f.final:.6g} at {at(f.steps - 1)}"), ("after the budget", f"{f.after:.6g}"),
-            ("minimum", f"{f.minimum:.6g} at {at(f.minimum_at)}"), ("mean", f"{f.mean:.6g}"),
-            ("area", f"{f.area:.6g} (sum of rates)"), ("jumps", f"{len(f.breaks):,}"),
-            ("under 10% of peak", at(f.under_10)), ("under 1% of peak", at(f.under_1))]
-    if f.half_life is not None:
-        rows.append(("half-life", f"{f.half_life:.4g} {unit}s"))
-    width = max(len(k) for k, _ in rows)
-    lines = [head, f.sentence, ""] + [f"{k.ljust(width)}  {v}" for k, v in rows]
+    lines = [head, f.sentence, ""] + _rows(f, unit)
     lines += [f"caution: {c}" for c in f.cautions] + ["", f.table()]
     return "\n".join(lines) + "\n"
+
+
+def _budget_of(g) -> int | None:
+    """The budget every group is read over: None when every rate has a length, else the longest (or 10,000)."""
+    lengths = [t.length for t in g.groups]
+    if all(n is not None for n in lengths):
+        return None
+    return max([n for n in lengths if n is not None] or [10_000])
+
+
+def _what(d, g) -> str:
+    """``tracks (rate, momentum)`` or ``2 param groups (backbone: rate; head: rate, momentum)``."""
+    if len(g) == 1 and g.names is None:
+        return f"tracks ({', '.join(n.replace('_', ' ') for n in g.groups[0].names())})"
+    parts = [f"{g.names[i] if g.names else i}: {', '.join(n.replace('_', ' ') for n in t.names())}"
+             for i, t in enumerate(g.groups)]
+    return f"{len(g)} param groups ({'; '.join(parts)})"
+
+
+def _show_tracks(d, path: str) -> str:
+    """Every track of every group: its sentence, its numbers, and for each rate its boundary table."""
+    from .track_readouts import track_facts, tracks_sentence
+    from .tracks import as_groups
+
+    g = as_groups("show", d.tracks)
+    unit, spe = d.unit, (d.steps_per_epoch if d.unit == "step" else None)
+    n = _budget_of(g)
+    sizes = sorted({t.length for t in g.groups}, key=lambda x: (x is None, x or 0))
+    size = ", ".join(f"{x:,} {unit}s" if x is not None else f"open-ended (read over {n:,} {unit}s)" for x in sizes)
+    head = f"{path}: {_what(d, g)}, unit {unit}, {size}"
+    if spe:
+        head += f", {spe:,} steps per epoch"
+    lines = [head, tracks_sentence(d.tracks, n, spe, unit)]
+    for key, f in track_facts(d.tracks, n, spe, unit).items():
+        track = key.split(".")[-1]
+        if track == "decay_per_step":  # the sentence above says what it is; its numbers follow the rate's
+            continue
+        lines += ["", f"{key.replace('_', ' ')}:"] + ["  " + x for x in _rows(f, unit, rate=track == "rate")]
+        lines += [f"  caution: {c}" for c in f.cautions]
+        if track == "rate":
+            lines += ["", f.table()]
+    return "\n".join(lines) + "\n"
+
+
+def _check_steps(d, steps: int, owner: str) -> None:
+    """Every rate the spec holds (one schedule, tracks, or one per group) has the budget's length."""
+    from .budget import check_length
+    from .tracks import as_groups
+
+    g = None if d.tracks is None else as_groups(owner, d.tracks)
+    for s in [d.schedule] if g is None else [t.rate for t in g.groups]:
+        check_length(s, steps, d.unit, owner=owner)
 
 
 def _out(text: str) -> None:
@@ -160,21 +228,35 @@ def _run(args: argparse.Namespace) -> int:
         _out(_show(d, args.spec))
         return 0
     if args.command == "check":
-        from .budget import check_length
-
         if args.steps is not None:
-            check_length(s, args.steps, unit, owner="check")
-        size = f"{s.length:,} {unit}s" if s.length is not None else f"open-ended, unit {unit}"
-        _out(f"ok: {args.spec}: {s.kind}, {size}" + (f", {spe:,} steps per epoch" if spe else "") + "\n")
+            _check_steps(d, args.steps, "check")
+        if d.tracks is None:
+            size = f"{s.length:,} {unit}s" if s.length is not None else f"open-ended, unit {unit}"
+            _out(f"ok: {args.spec}: {s.kind}, {size}" + (f", {spe:,} steps per epoch" if spe else "") + "\n")
+        else:
+            from .tracks import as_groups
+
+            g = as_groups("check", d.tracks)
+            sizes = sorted({t.length for t in g.groups}, key=lambda x: (x is None, x or 0))
+            size = ", ".join(f"{x:,} {unit}s" if x is not None else f"open-ended, unit {unit}" for x in sizes)
+            _out(f"ok: {args.spec}: {_what(d, g)}, {size}" + (f", {spe:,} steps per epoch" if spe else "") + "\n")
         return 0
     from .export import to_python, to_torch
 
     if args.to == "python":
         if args.steps is not None:
-            from .budget import check_length
+            _check_steps(d, args.steps, "export")
+        text = to_python(s if d.tracks is None else d.tracks, name=args.name, unit=unit, steps_per_epoch=spe)
+    elif d.tracks is not None:  # tracks or one design per group: the snippet sets each group's values directly
+        from .track_export import to_torch_tracks
+        from .tracks import as_groups
 
-            check_length(s, args.steps, unit, owner="export")
-        text = to_python(s, name=args.name, unit=unit, steps_per_epoch=spe)
+        if args.base_lr is not None:
+            raise ScheduleError(f"export: --base-lr is for a spec of one schedule, got {args.base_lr!r} with a spec "
+                                "of tracks or per-group designs, whose rates are absolute (the snippet sets each "
+                                "group's lr directly); leave --base-lr out")
+        text = to_torch_tracks(as_groups("export", d.tracks, args.groups), unit=unit, steps=args.steps,
+                               name=args.name, steps_per_epoch=spe)
     else:
         base = args.base_lr if args.base_lr is not None else _peak(s)
         if args.base_lr is None and base <= 0:

@@ -294,3 +294,116 @@ class TestNeverATraceback:
         """A 5,000-digit --steps is refused by the argument parser in one line (int() of it raised ValueError)."""
         err = one_line_error(capsys, ["check", COSINE, "--steps", "9" * 5000])
         assert "--steps must be a whole number of at most 20 digits" in err and len(err) < 300
+
+
+# ------------------------------------------------------------------ specs of tracks and per-group designs (issue 15)
+def _track_specs(tmp_path):
+    """A one-cycle rate with its momentum and a weight decay (steps), and a frozen-then-warmed backbone beside a
+    constant head (epochs): the two kinds of spec that hold more than one design."""
+    from schedwidget import flat, one_cycle, stages
+    from schedwidget.tracks import inverse_momentum, per_group, tracks
+
+    rate = one_cycle(0.1, steps=1000)
+    full = tracks(rate, momentum=inverse_momentum(rate), weight_decay=flat(5e-4))
+    backbone = stages(flat(0.0, steps=10), warmup(cosine(0.01, steps=80), steps=10))
+    groups = per_group({"backbone": backbone, "head": flat(0.01, steps=100)})
+    save(full, tmp_path / "tracks.json")
+    save(groups, tmp_path / "groups.json", unit="epoch")
+    return full, groups, str(tmp_path / "tracks.json"), str(tmp_path / "groups.json")
+
+
+class TestTrackSpecs:
+    """show, check and export read a spec of tracks or per-group designs as the whole value, not its first rate."""
+
+    def test_show_every_track(self, tmp_path, capsys):
+        """Every track gets its line, its numbers and (a rate) its boundary table; the AdamW decay is explained."""
+        full, _, path, _ = _track_specs(tmp_path)
+        assert main(["show", path]) == 0
+        out = capsys.readouterr().out
+        assert out.startswith(f"{path}: tracks (rate, momentum, weight decay), unit step, 1,000 steps\n")
+        assert "momentum: 0.95 at the first step, lowest 0.85 at step 450" in out
+        assert "so the decay per step is rate x weight_decay" in out
+        assert "\nmomentum:\n  peak              0.95 at step 0\n" in out
+        assert "  minimum           0.85 at step 450\n" in out
+        assert "\nweight decay:\n" in out and "  mean              0.0005\n" in out
+        assert out.count("where ") == 1  # one boundary table: the rate's
+        assert "  under 10% of peak  step 900\n" in out  # the rate's shares, read from its own facts
+        assert full.rate(900) < 0.1 * 0.1 <= full.rate(899)  # 0.1 * 0.1 is 0.010000000000000002
+
+    def test_show_groups(self, tmp_path, capsys):
+        """Per-group designs are shown group by group, each rate with its table in the spec's unit."""
+        _, groups, _, path = _track_specs(tmp_path)
+        assert main(["show", path]) == 0
+        out = capsys.readouterr().out
+        assert out.startswith(f"{path}: 2 param groups (backbone: rate; head: rate), unit epoch, 100 epochs\n")
+        assert "backbone.rate: Starts at 0, peaks at 0.01 at epoch 20" in out
+        assert "\nhead.rate:\n" in out and out.count("where ") == 2
+        assert "join 2: first tick after     20           0.01" in out
+        assert groups.groups[0].rate(20) == 0.01 and groups.groups[0].rate(9) == 0.0  # frozen, then warmed
+
+    def test_check(self, tmp_path, capsys):
+        """check names what the spec holds and checks every group's rate against --steps."""
+        _, _, tpath, gpath = _track_specs(tmp_path)
+        assert main(["check", gpath, "--steps", "100"]) == 0
+        assert capsys.readouterr().out == f"ok: {gpath}: 2 param groups (backbone: rate; head: rate), 100 epochs\n"
+        assert main(["check", tpath]) == 0
+        assert capsys.readouterr().out == f"ok: {tpath}: tracks (rate, momentum, weight decay), 1,000 steps\n"
+        err = one_line_error(capsys, ["check", tpath, "--steps", "999"])
+        assert "steps must equal the design's length of 1,000 steps, got 999" in err
+
+    def test_python_every_track(self, tmp_path, capsys):
+        """--to python writes one function per track, each equal to its design at every tick, each docstring
+        naming its own hyperparameter."""
+        full, _, path, _ = _track_specs(tmp_path)
+        assert main(["export", path, "--to", "python"]) == 0
+        text = capsys.readouterr().out
+        ns = {}
+        exec(text, ns)
+        t = np.arange(0, 1001)
+        for track, fn in (("rate", "lr_at"), ("momentum", "momentum_at"), ("weight_decay", "weight_decay_at")):
+            assert [ns[fn](int(i)) for i in t] == getattr(full, track)(t).tolist(), track
+        assert '"""Momentum (SGD momentum or the first Adam beta) at tick t' in text
+        assert "the momentum stays at 0.95" in text and '"""Weight decay at tick t' in text
+
+    def test_python_groups(self, tmp_path, capsys):
+        """Per-group designs: one function per group, named after it; --steps checks every group."""
+        _, groups, _, path = _track_specs(tmp_path)
+        assert main(["export", path, "--to", "python", "--steps", "100"]) == 0
+        ns = {}
+        exec(capsys.readouterr().out, ns)
+        t = np.arange(0, 101)
+        assert [ns["backbone_lr_at"](int(i)) for i in t] == groups.groups[0].rate(t).tolist()
+        assert [ns["head_lr_at"](int(i)) for i in t] == [0.01] * 101
+        assert "steps must equal the design's length of 100 epochs, got 90" in one_line_error(
+            capsys, ["export", path, "--to", "python", "--steps", "90"])
+
+    def test_torch_snippet_is_the_track_snippet(self, tmp_path, capsys):
+        """--to torch writes to_torch_tracks's snippet for the loaded value, word for word."""
+        from schedwidget.track_export import to_torch_tracks
+
+        full, groups, tpath, gpath = _track_specs(tmp_path)
+        assert main(["export", tpath, "--to", "torch", "--steps", "1000"]) == 0
+        assert capsys.readouterr().out == to_torch_tracks(full, unit="step")
+        assert main(["export", gpath, "--to", "torch", "--name", "rate_at"]) == 0
+        text = capsys.readouterr().out
+        assert text == to_torch_tracks(groups, unit="epoch", name="rate_at")
+        assert "class TrackClock:" in text and "'rate': backbone_rate_at" in text
+
+    def test_torch_multipliers_copy_the_tracks(self, tmp_path, capsys):
+        """--groups with one set of tracks: one copy per multiplier, its rate scaled, the other tracks as they are."""
+        full, _, path, _ = _track_specs(tmp_path)
+        assert main(["export", path, "--to", "torch", "--groups", "1,0.1"]) == 0
+        ns = {}
+        exec(capsys.readouterr().out, ns)
+        assert ns["group1_lr_at"](450) == full.rate(450) * 0.1 and ns["group0_lr_at"](450) == full.rate(450)
+        assert ns["group1_momentum_at"](450) == 0.85
+
+    def test_torch_refusals(self, tmp_path, capsys):
+        """--base-lr with tracks, and --groups with per-group designs, are one-line refusals that say why."""
+        _, _, tpath, gpath = _track_specs(tmp_path)
+        err = one_line_error(capsys, ["export", tpath, "--to", "torch", "--base-lr", "0.1"])
+        assert "--base-lr is for a spec of one schedule, got 0.1" in err and "leave --base-lr out" in err
+        err = one_line_error(capsys, ["export", gpath, "--to", "torch", "--groups", "1,2"])
+        assert "groups must be None when a design is given per group" in err
+        err = one_line_error(capsys, ["export", gpath, "--to", "torch", "--steps", "90"])
+        assert "got 90" in err
