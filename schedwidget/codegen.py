@@ -295,7 +295,7 @@ def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch:
     ``what`` is the hyperparameter ``s`` schedules (a ``SUBJECTS`` key: ``"rate"``, ``"momentum"``,
     ``"beta2"``, ``"weight_decay"``); the docstring names it.
     """
-    _subject(what)
+    word = _subject(what)[1]
     if steps_per_epoch is not None and (isinstance(steps_per_epoch, bool) or not isinstance(steps_per_epoch, int)
                                         or not 1 <= steps_per_epoch <= MAX_TICKS):
         raise complain("to_python", "steps_per_epoch", steps_per_epoch, "a whole number >= 1 and <= 2**53 or None")
@@ -317,7 +317,7 @@ def function_source(s: Schedule, name: str, unit: str = "step", steps_per_epoch:
                  "got {t!r}')")
         w.put(1, "u = float(t)")
     else:
-        w.put(1, f"u = float(t) if t < {int(n)} else {num(n)}  # past the end the rate holds")
+        w.put(1, f"u = float(t) if t < {int(n)} else {num(n)}  # past the end the {word} holds")
     w.emit(s, "u", None if n is None else float(n), 1, lambda e: f"return {e}")
     head = [f"def {name}(t):"]
     if doc:

@@ -284,6 +284,7 @@ class TestToPython:
             exec("import math\n" + body, ns)
             assert ns["f"].__doc__.startswith(f"{head} at tick t (an int >= 0; t = 0 is the first update).")
             assert f"Past the end (t >= 100) the {word} stays at 0.95" in ns["f"].__doc__
+            assert f"else 100.0  # past the end the {word} holds" in body
             assert [ns["f"](i) for i in range(101)] == s(np.arange(101)).tolist()
         assert function_source(s, "f")[0] == function_source(s, "f", what="rate")[0]
         with pytest.raises(ScheduleError, match=r"to_python: what must be one of 'rate', 'momentum', 'beta2', "
