@@ -18,7 +18,7 @@ from __future__ import annotations
 import csv
 import os
 from dataclasses import dataclass
-from typing import Any, Iterable
+from typing import Any, Iterable, Mapping
 
 import numpy as np
 
@@ -222,11 +222,22 @@ def _read(source: Any, column: Any, tick_column: Any, every: Any, owner: str, on
         raise complain(owner, "column" if column is not None else "tick_column",
                        column if column is not None else tick_column, "None for a list or an array",
                        "a column only makes sense for a CSV file, a DataFrame or a TensorBoard log")
+    if isinstance(source, Mapping) or _empty(source):
+        raise complain(owner, "source", source if not isinstance(source, Mapping) else f"a {type(source).__name__}",
+                       "a non-empty list or array of rates, (tick, rate) pairs, a pandas Series or DataFrame, or "
+                       "the path of a CSV file or TensorBoard log", "one rate per logged update")
     pairs = _pairs(source, owner)
     if pairs is not None:
         return [Trace(pairs[0], pairs[1])]
     rates = values_of(owner, "source", source)
     return [Trace(np.arange(rates.size, dtype=np.int64) * every, rates)]
+
+
+def _empty(source: Any) -> bool:
+    try:
+        return len(source) == 0
+    except TypeError:  # no length (a number, a 0-d array): values_of names it
+        return False
 
 
 def _column_values(col: Any, owner: str, label: str) -> np.ndarray:
@@ -323,6 +334,8 @@ def _from_table(table: tuple[list[str], list[np.ndarray], dict[int, tuple[str, s
     k_tick = None
     if tick_column is not None:
         k_tick = _position(owner, "tick_column", tick_column, header, where)
+    elif header == ["0", "1"] and column is None:  # two numbered columns with no header: (tick, rate) rows
+        k_tick = 0
     else:
         for name in TICK_COLUMNS:
             if name in low:
