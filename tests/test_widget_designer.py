@@ -128,9 +128,9 @@ class TestCurvePanel:
         """Pointing at x reads the exact rate at that step, with the epoch; the reading follows a new design."""
         d = ScheduleDesigner()
         d.canvas.hover_at(5750.4)
-        assert d.canvas.hover_label.value == "step 5,750 · epoch 5.000 · rate 0.1"
+        assert d.canvas.hover_label.value == "step 5,750 · epoch 5 · rate 0.1"
         d.control(0, "peak").text.value = 0.2
-        assert d.canvas.hover_label.value == "step 5,750 · epoch 5.000 · rate 0.2"
+        assert d.canvas.hover_label.value == "step 5,750 · epoch 5 · rate 0.2"
 
     def test_hover_band_message(self):
         """A hover message from a band of the plot (what the browser sends, no click) reads that band's step."""
@@ -160,7 +160,7 @@ class TestReadoutPanel:
         d.control(0, "peak").text.value = 0.2
         f = facts(d.schedule, 103_500, 1150, "step", 128, exact_up_to=READOUT_EXACT)
         html = d.readout.text.value
-        assert "0.2 at step 5,750 (epoch 5.00)" in html
+        assert "0.2 at step 5,750 (epoch 5)" in html  # one epoch format: 3 decimals at most, no trailing zeros
         assert tidy_html(f.sentence) in html  # the sentence in the widget's one number format (issue 13)
         # the core's boundary labels in plain words (issue 13: no "tick", "join", "budget" on screen)
         assert "stage change 1: first step after" in html and "after the run" in html

@@ -24,7 +24,8 @@ from ..sample import Trace, trace
 from ..schedule import Schedule
 from ..svg import nice_ticks  # one tick rule for the live and static curves
 from .guard import Panel
-from .theme import CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, TOGGLE, RateAxes, figure_layout, legend_html, rate
+from .theme import (CURVE, CURVE_FIGURE, GHOSTS, HOVER, JOIN, TOGGLE, RateAxes, epochs, figure_layout, legend_html,
+                    rate)
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -378,7 +379,7 @@ class CurvePanel(Panel, W.VBox):
         c = self.clock
         words = [f"{c.unit} {t:,}"]
         if c.steps_per_epoch and c.unit == "step":
-            words.append(f"epoch {t / c.steps_per_epoch:,.3f}")
+            words.append(f"epoch {epochs(t / c.steps_per_epoch)}")
         elif c.steps_per_epoch:
             words.append(f"step {t * c.steps_per_epoch:,}")
         words.append(f"rate {rate(float(s(t)))}")

@@ -25,7 +25,7 @@ from ..facts import Facts
 from ..sample import Trace, breaks
 from ..schedule import Schedule, complain
 from .guard import Panel
-from .theme import cell, number, pct, rate_html
+from .theme import cell, epochs, number, pct, rate_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -76,7 +76,7 @@ def cells(f: Facts, unit: str | None = None, steps_per_epoch: int | None = None)
         where = (lambda t: None if t is None else at(t * spe, "step"))
         area, length = f.area * spe, f"{f.steps * spe:,} steps"
     else:
-        where = (lambda t: None if t is None else f"epoch {t / spe:,.1f}")
+        where = (lambda t: None if t is None else f"epoch {epochs(t / spe)}")
         area, length = f.area / spe, f"{f.steps / spe:,.4g} epochs"
     return [rate_html(f.peak), e(where(f.peak_at) or "—"), rate_html(f.final), e(number(area)),
             e(where(f.under_10) or "—"), e(length)]

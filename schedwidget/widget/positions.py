@@ -16,6 +16,7 @@ import re
 
 from ..budget import parse_length
 from ..schedule import ScheduleError, complain
+from .theme import epochs
 
 __all__ = ["POSITION_FORMS", "parse_positions", "positions_text", "positions_words", "split_items"]
 
@@ -39,7 +40,7 @@ def _where(tick: int, unit: str, spe: int | None) -> str:
     """A run position in words: ``step 3,450 (epoch 3)`` or ``epoch 30``."""
     words = f"{unit} {tick:,}"
     if unit == "step" and spe:
-        words += f" (epoch {tick / spe:,.4g})"
+        words += f" (epoch {epochs(tick / spe)})"
     return words
 
 

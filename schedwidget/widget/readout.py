@@ -14,7 +14,7 @@ import ipywidgets as W
 from ..facts import Facts
 from ..svg import render_svg
 from .guard import Panel
-from .theme import AMBER, number, pct, rate, rate_html, tidy_html
+from .theme import AMBER, epochs, number, pct, rate, rate_html, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -28,7 +28,7 @@ def when(t: int | None, f: Facts) -> str:
         return "—"
     words = f"{f.unit} {t:,}"
     if f.steps_per_epoch and f.unit == "step":
-        words += f" (epoch {t / f.steps_per_epoch:,.2f})"
+        words += f" (epoch {epochs(t / f.steps_per_epoch)})"
     return words
 
 
@@ -82,7 +82,7 @@ def facts_html(f: Facts) -> str:
                                                        "rate"))
     body = []
     for label, t, r in f.boundary:
-        ep = f"{t / f.steps_per_epoch:,.3f}" if f.steps_per_epoch and unit == "step" else ""
+        ep = epochs(t / f.steps_per_epoch) if f.steps_per_epoch and unit == "step" else ""
         shown = f'<span title="exactly {r!r}">{e(_g(r))}</span>'
         body.append("<tr>" + "".join(f"<td {cell}>{c}</td>" for c in (e(_plain(label, unit)), f"{t:,}", ep, shown))
                     + "</tr>")

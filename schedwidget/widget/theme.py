@@ -25,7 +25,7 @@ with warnings.catch_warnings():
 
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER", "TOGGLE",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
-           "rate", "rate_html", "number", "count", "lines", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
+           "rate", "rate_html", "number", "count", "epochs", "lines", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
            "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
@@ -164,6 +164,15 @@ def number(x: float) -> str:
     if abs(x) >= 1000:
         return f"{x:,.0f}"
     return f"{x:.4g}".replace("e-0", "e-")
+
+
+def epochs(x: float) -> str:
+    """An epoch position or count: up to three decimals, trailing zeros dropped, thousands separated.
+
+    >>> epochs(5.0), epochs(72.5913), epochs(4.99913), epochs(1234.5)
+    ('5', '72.591', '4.999', '1,234.5')
+    """
+    return f"{x:,.3f}".rstrip("0").rstrip(".")
 
 
 def count(n: float) -> str:
