@@ -58,7 +58,8 @@ def solve(design: Schedule, parameter: str, *, rate: tuple[int, float] | None = 
     Returns
     -------
     The design with the parameter moved.  A real parameter is exact to the float: of the two neighbouring
-    floats where the target is passed, the one whose value is nearer.  A whole-valued parameter (a length, a
+    floats where the target is passed, the one whose value is nearer (of a run of values that all give the
+    target, the smallest).  A whole-valued parameter (a length, a
     count) is the smallest whole value at which the target is reached or passed (in the direction the
     target moves as the parameter grows).  For ``under`` the first tick under the share must be ``tick``
     exactly; of the values that give it, the answer is the one at the edge where the tick would move past
@@ -367,8 +368,9 @@ class _Search:
         ok = sorted(set(ok))
         ys = [self.at(v)[1] for v in ok]
         signs = [self.side(y) for y in ys]
-        # grid intervals where the target is hit: an end on it, or the two ends on either side of it
-        hits = [j for j in range(len(ok)) if signs[j] == 0 or (j > 0 and signs[j] * signs[j - 1] < 0)]
+        # the places where the target is hit: a run of grid values on it, or a crossing between two neighbours
+        hits = [j for j in range(len(ok)) if (signs[j] == 0 and (j == 0 or signs[j - 1] != 0))
+                or (j > 0 and signs[j] * signs[j - 1] < 0)]
         if not hits and self.whole_metric:  # past one end the rate never falls under the level: that end is it
             for j in (-1, 0):
                 if ys[j] == self.goal - 0.5:
@@ -378,9 +380,8 @@ class _Search:
             finite = [y for y in ys if math.isfinite(y)] or ys
             raise self.refuse(f"reachable: {min(finite)!r} to {max(finite)!r} (over {self.name} = {ok[0]!r} to "
                               f"{ok[-1]!r})", "move another parameter, or change the design")
-        if any(hits[k + 1] - hits[k] > 1 for k in range(len(hits) - 1)) or (
-                signs[hits[0]] == 0 and hits[-1] > hits[0] and signs[hits[-1]] != 0 and hits[-1] - hits[0] > 1):
-            j, k = hits[0], hits[-1]
+        if len(hits) > 1:  # each place counted once: a run on the goal between its two sides is one crossing
+            j, k = hits[0], hits[1]
             raise self.not_monotone([(ok[j], ys[j]), (ok[k], ys[k])])
         i = hits[0]
         if signs[i] == 0 and (i == 0 or signs[i - 1] == 0):
@@ -430,7 +431,7 @@ class _Search:
                 if sign * ys[j] > sign * ys[j - 1] and sign * ys[j] >= sign * ys[j + 1]]
         for j in sorted(tops, key=lambda j: abs(ys[j] - self.goal))[:EXTREMES]:
             a, b = self.key(ok[j - 1]), self.key(ok[j + 1])
-            best = ys[j]
+            best, c = ys[j], self.key(ok[j])  # the best value seen and where: the interval always keeps it
             for _ in range(2 * HALVINGS):
                 if b - a <= 2:
                     break
@@ -438,11 +439,15 @@ class _Search:
                 y1, y2 = self.at(self.unkey(m1))[1], self.at(self.unkey(m2))[1]
                 if y1 is None or y2 is None:
                     break
-                best = max(best, y1, y2) if sign > 0 else min(best, y1, y2)
-                if sign * y1 < sign * y2:
+                for m, y in ((m1, y1), (m2, y2)):
+                    if sign * y > sign * best:
+                        best, c = y, m
+                if c <= m1:  # a single peak is then in [a, m2] (f(m2) <= f(c)); likewise on the right
+                    b = m2
+                elif c >= m2:
                     a = m1
                 else:
-                    b = m2
+                    a, b = m1, m2
             for k in range(a, min(b, a + 2) + 1):
                 y = self.at(self.unkey(k))[1]
                 if y is not None:

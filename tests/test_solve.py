@@ -345,3 +345,46 @@ def test_any_design_any_parameter_ends_in_a_design_or_a_schedule_error():
                 assert y == pytest.approx(goal, rel=1e-9, abs=1e-300), (repr(s)[:300], path, what, target, y)
         assert time.process_time() - start < 15, (repr(s)[:300], path, what, target)
     assert seen["value"] >= 10 and seen["refused"] >= 10, seen
+
+
+class TestSearch:
+    """The search itself on plain functions of the parameter (``build`` returns the value, ``metric`` reads it)."""
+
+    @staticmethod
+    def search(f, goal, lo=0.0, hi=10.0, whole=False):
+        from schedwidget.solve import _Search
+
+        return _Search("solve", "x", lo, hi, whole, lambda v: v, f, goal, "f(x)", False).run()
+
+    def test_a_monotone_function_to_the_float(self):
+        x = self.search(lambda v: v ** 3, 2.0)
+        assert abs(x ** 3 - 2.0) <= abs(math.nextafter(x, 0) ** 3 - 2.0) and abs(x ** 3 - 2.0) < 1e-15
+        assert x == pytest.approx(2 ** (1 / 3), rel=1e-15)
+
+    def test_two_crossings_are_refused(self):
+        with pytest.raises(ScheduleError, match=r"solve: f\(x\) is not monotone in x over \[0\.0, 10\.0\]: the target "
+                                                r"4\.0 is hit in more than one place"):
+            self.search(lambda v: (v - 5.0) ** 2, 4.0)
+
+    def test_a_peak_between_grid_values_is_found_before_refusing(self):
+        # a narrow bump at 5.05, between the grid's values, reaching 1.0: a target of 0.9 is hit twice in it
+        def bump(v):
+            return max(0.0, 1.0 - abs(v - 5.05) * 50.0)
+
+        with pytest.raises(ScheduleError, match=r"is not monotone"):
+            self.search(bump, 0.9, lo=1.0, hi=10.0)
+        with pytest.raises(ScheduleError, match=r"reachable: 0\.0 to 1\.0"):
+            self.search(bump, 1.5, lo=1.0, hi=10.0)
+
+    def test_a_jump_over_the_goal_is_refused(self):
+        with pytest.raises(ScheduleError, match=r"gives f\(x\) = 0\.5: it jumps from 0\.0 at x = 3\.0 to 1\.0 at "
+                                                r"3\.0000000000000004"):
+            self.search(lambda v: 0.0 if v <= 3.0 else 1.0, 0.5)
+
+    def test_a_run_on_the_goal_gives_its_smallest_value(self):
+        assert self.search(lambda v: min(v, 4.0), 4.0) == 4.0
+        assert self.search(lambda v: min(v // 1, 4.0), 4.0, lo=0, hi=100, whole=True) == 4
+
+    def test_whole_values_the_smallest_that_reaches(self):
+        assert self.search(lambda v: v * 0.3, 1.0, lo=1, hi=1000, whole=True) == 4  # 1.2 >= 1.0 > 0.9
+        assert self.search(lambda v: 10.0 / v, 1.0, lo=1, hi=1000, whole=True) == 10  # falling: first <= 1.0
