@@ -3,13 +3,14 @@ each against its formula or a reference library, and through generated source an
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
-from schedwidget import (ScheduleError, flat, from_spec, json_schema, one_cycle, ramp, stages, to_spec, torch_factor,
-                         triangle, warmup)
+from schedwidget import (ScheduleError, flat, from_spec, json_schema, one_cycle, ramp, restarts, stages, to_spec,
+                         torch_factor, triangle, warmup)
 from tests.test_export import assert_matches
 
 
@@ -236,3 +237,40 @@ class TestUnequalTriangle:
                                    warmup(triangle(0.01, 0.1, 4, fall=12, steps=64), 6)], ids=repr)
     def test_every_route_equals_the_core(self, s):
         assert_every_route(s)
+
+
+# ------------------------------------------------------------------ nested, at random
+_RATES = st.floats(0.0, 1.0, allow_nan=False)
+
+
+@st.composite
+def new_shape(draw):
+    """One of this issue's shapes with drawn parameters."""
+    kind = draw(st.sampled_from(["sqrt", "fall", "two_phase"]))
+    if kind == "sqrt":
+        return ramp(draw(_RATES), draw(_RATES), draw(st.integers(1, 80)), curve="sqrt")
+    if kind == "fall":
+        a, b = sorted((draw(_RATES), draw(_RATES)))
+        return triangle(a, b, half_period=draw(st.integers(1, 9)), fall=draw(st.integers(1, 13)),
+                        shrink=draw(st.sampled_from([1.0, 0.5, 0.83])),
+                        steps=draw(st.one_of(st.none(), st.integers(1, 120))))
+    n = draw(st.integers(6, 120))
+    peak = draw(st.floats(1e-4, 1.0))
+    return one_cycle(peak, n, low=draw(_RATES) * peak, final=draw(_RATES) * peak, phases=2,
+                     rise=draw(st.floats(2.0 / n, 1.0 - 1.0 / n)), curve=draw(st.sampled_from(["linear", "cosine"])),
+                     ends=draw(st.sampled_from(["after", "on"])))
+
+
+@settings(max_examples=150, deadline=None, database=None, suppress_health_check=[HealthCheck.too_slow])
+@given(new_shape(), st.sampled_from(["alone", "warmup", "restarts", "stretch", "stages", "scale"]))
+def test_nested_new_shapes_equal_the_core_through_every_route(s, how):
+    """Inside warmups, restarts, stretches, stages and scales, generated source and the torch factor equal the
+    core at every tick."""
+    base = s if s.length is not None else s * flat(1.0, steps=50)
+    s = {"alone": lambda: s, "warmup": lambda: warmup(base, min(7, base.length)),
+         "restarts": lambda: restarts(base, cycles=3, growth=1.5, peak_decay=0.8), "stretch": lambda: base.stretch(31),
+         "stages": lambda: stages(base, ramp(0.1, 0.0, 9, curve="sqrt")), "scale": lambda: s * 0.5}[how]()
+    assert_matches(s)
+    assert_factor_matches(s)
+    assert from_spec(to_spec(s)) == s
+
