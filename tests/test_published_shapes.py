@@ -3,7 +3,6 @@ each against its formula or a reference library, and through generated source an
 
 from __future__ import annotations
 
-
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
