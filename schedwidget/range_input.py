@@ -1,10 +1,11 @@
 """A learning-rate range test's log in: (rate, loss) pairs from lists, arrays, pandas objects or CSV, checked.
 
-The log is read in the order it was written (the order of the updates).  A run of nan/inf losses at its end is
-the divergence that ends a range test: it is cut off and remembered (the first such rate); a nan/inf loss with
-finite losses after it is refused.  Rates must be finite and > 0; a log whose rates do not increase is sorted by
-rate (and says so), but two equal rates are refused.  Limits: at most ``MAX_POINTS`` rows (checked before any
-value is converted), at least ``MIN_POINTS`` finite losses, rates spanning at least ``MIN_SPAN`` (a factor of 2);
+The log is read in the order it was written (the order of the updates).  A run of nan/inf losses (or losses
+beyond +-1e100, on their way to inf) at its end is the divergence that ends a range test: it is cut off and
+remembered (the first such rate); such a loss with finite losses after it is refused.  Rates must be finite and
+> 0; a log whose rates do not increase is sorted by rate (and says so), but two equal rates are refused.
+Limits: at most ``MAX_POINTS`` rows (checked before any value is converted), at least ``MIN_POINTS`` finite
+losses, rates spanning at least ``MIN_SPAN`` (a factor of 2);
 a CSV file or upload goes through the same reader and size limits as metric histories (``metrics.py``).
 """
 
@@ -17,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from .metrics import MAX_METRIC_BYTES, _from_csv_text, _from_pandas, values_of
+from .metrics import INDEX_COLUMNS, MAX_METRIC_BYTES, _from_csv_text, _from_pandas, values_of
 from .params import ScheduleError, complain
 from .spec import read_file
 
@@ -27,6 +28,8 @@ OWNER = "read_range_test"
 MAX_POINTS = 1_000_000
 #: Fewest finite losses (before a divergence) a reading needs: a centred fit needs neighbours on both sides.
 MIN_POINTS = 10
+#: Largest |loss| read as a loss; beyond it (or nan/inf) a loss is the divergence (the sums of the fit stay finite).
+MAX_LOSS = 1e100
 #: Smallest ratio of the highest to the lowest rate (a range test sweeps decades; a factor 2 is the least).
 MIN_SPAN = 2.0
 
@@ -72,12 +75,16 @@ def _length(name: str, value: Any) -> None:
 
 def _pick(header: list[str], given: str | int | None, words: tuple[str, ...], other: int | None,
           name: str, where: str) -> str | int:
-    """The column for ``name``: as given, else the one whose name holds one of ``words``."""
+    """The column for ``name``: as given, else the one whose name holds one of ``words``, else (when exactly
+    two columns are not index columns such as ``step``) the first of them for the rate, the other for the loss."""
     if given is not None:
         return given
     found = [k for k, h in enumerate(header) if k != other and any(w in h.strip().lower() for w in words)]
     if len(found) == 1:
         return found[0]
+    values = [k for k, h in enumerate(header) if h.strip().lower() not in INDEX_COLUMNS]
+    if not found and len(values) == 2:  # two value columns with other names: the rate first, then the loss
+        return values[0] if other is None else [k for k in values if k != other][0]
     listed = ", ".join(repr(h) for h in header)
     raise complain(OWNER, name, None, f"the name or position of one of {listed} (the columns of {where})",
                    f"{'several' if found else 'no'} column names hold {' or '.join(repr(w) for w in words)}; "
@@ -185,15 +192,16 @@ def check_log(source: Any, losses: Any = None, rate_column: Any = None, loss_col
     if rates.max() > 1e100:
         i = int(np.argmax(rates))
         raise complain(OWNER, f"rates[{i}]", float(rates[i]), "a rate <= 1e+100")
-    odd = np.flatnonzero(~np.isfinite(loss))
+    odd = np.flatnonzero(~(np.abs(loss) <= MAX_LOSS))  # nan, inf and losses beyond 1e100 (on the way to inf)
     total = cut = rates.size
     diverged = None
     if odd.size:
         first = int(odd[0])
-        later = np.flatnonzero(np.isfinite(loss[first:]))
+        later = np.flatnonzero(np.abs(loss[first:]) <= MAX_LOSS)
         if later.size:
             raise complain(OWNER, f"losses[{first}]", float(loss[first]),
-                           "a finite number (a nan or inf loss is read as the divergence only at the end of the log)",
+                           "a finite number within +-1e100 (a nan, inf or larger loss is read as the divergence "
+                           "only at the end of the log)",
                            f"losses[{first + int(later[0])}] after it is finite again; drop the rows of skipped "
                            "updates before reading")
         cut, diverged = first, float(rates[first])

@@ -29,13 +29,13 @@ RUNNING_WEIGHT = 0.9
 _END = object()
 
 
-def sweep(lowest: float, highest: float, updates: int) -> np.ndarray:
+def sweep_rates(lowest: float, highest: float, updates: int) -> np.ndarray:
     """The rates of an exponential sweep: ``lowest * (highest / lowest) ** (k / (updates - 1))``, k = 0 .. updates-1.
 
     The closed form (no repeated multiplication), with the ends exactly ``lowest`` and ``highest``: the same
     rates as ``ramp(lowest, highest, updates - 1, curve="geometric")`` to rounding.
 
-    >>> r = sweep(1e-6, 1e3, 10)
+    >>> r = sweep_rates(1e-6, 1e3, 10)
     >>> float(r[0]), float(r[-1]), round(float(r[2]), 12)
     (1e-06, 1000.0, 0.0001)
     """
@@ -120,7 +120,7 @@ def run_range_test(model: Any, loader: Any, loss_fn: Callable[..., Any] | None, 
     loss_of
         Instead of ``loss_fn``: ``loss_of(model, batch)`` returns the loss, for batches of any other form.
     updates, lowest, highest
-        The sweep: ``sweep(lowest, highest, updates)``; every param group gets the same rate.
+        The sweep: ``sweep_rates(lowest, highest, updates)``; every param group gets the same rate.
     stop_above
         Early stop (our rule): the run stops after an update whose loss is nan/inf (that update is not taken), or
         whose running mean (an exponential mean with weight 0.9 on the past, bias-corrected) exceeds
@@ -132,7 +132,7 @@ def run_range_test(model: Any, loader: Any, loss_fn: Callable[..., Any] | None, 
     RangeRun
         The log; ``.read()`` gives the readings.
     """
-    rates = sweep(lowest, highest, updates)
+    rates = sweep_rates(lowest, highest, updates)
     if stop_above is not None:
         ok = isinstance(stop_above, (int, float, np.floating, np.integer)) and not isinstance(stop_above, bool)
         if not ok or not (1.0 < float(stop_above) <= 1e6):

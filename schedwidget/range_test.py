@@ -18,7 +18,9 @@ are stated in ``read_range_test``'s docstring.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
+from types import MappingProxyType
 from typing import Any
 
 import numpy as np
@@ -119,7 +121,7 @@ class RangeReading:
     stop: float | None
     stop_reason: str | None
     minimum: float
-    evidence: dict[str, tuple[int, float]]
+    evidence: Mapping[str, tuple[int, float]]
 
     @property
     def still_falling(self) -> bool:
@@ -327,7 +329,8 @@ def _read(log: RangeLog, x: np.ndarray, level: np.ndarray, slope: np.ndarray, k:
     return RangeReading(rates=log.rates, losses=log.losses, smoothed=level, slope=slope, ticks=log.ticks,
                         method=METHOD, window=width, half_points=k, diverged_at=log.diverged_at,
                         dropped=log.dropped, reordered=log.reordered, noise=noise, fell=bool(fell), start=start,
-                        steepest=steep, stop=stop, stop_reason=reason, minimum=float(log.rates[m]), evidence=ev)
+                        steepest=steep, stop=stop, stop_reason=reason, minimum=float(log.rates[m]),
+                        evidence=MappingProxyType(ev))
 
 
 def _refine(x: np.ndarray, slope: np.ndarray, s: int, a: int, m: int) -> float:

@@ -9,7 +9,7 @@ import pytest
 
 from schedwidget import ScheduleError
 from schedwidget.range_input import MAX_POINTS, MIN_POINTS
-from schedwidget.range_run import RangeRun, run_range_test, sweep
+from schedwidget.range_run import RangeRun, run_range_test, sweep_rates
 from schedwidget.range_test import RangeReading, read_range_test, smooth
 
 # A synthetic range test: a logistic fall of 1.5 in log10(rate), steepest at X0 (where a logistic's slope peaks,
@@ -178,6 +178,21 @@ class TestInputs:
                     read_range_test(path, rate_column="lr", loss_column=2)):
             assert got.peak == want.peak and np.array_equal(got.smoothed, want.smoothed)
 
+    def test_columns_by_position(self):
+        """Without 'lr'/'rate'/'loss' in the names, two value columns beside an index column are rate, loss."""
+        r, loss = log_of(40)
+        text = "step,x,y\n" + "".join(f"{i},{float(a)!r},{float(b)!r}\n" for i, (a, b) in enumerate(zip(r, loss)))
+        got = read_range_test(text.encode())
+        assert np.array_equal(got.rates, r) and np.array_equal(got.losses, loss)
+
+    def test_huge_losses_are_the_divergence(self):
+        """Losses beyond 1e100 at the end are read as the divergence (on their way to inf), like nan and inf."""
+        r, loss = log_of()
+        tail = loss.copy()
+        tail[290:] = 1e200
+        reading = read_range_test(r, tail)
+        assert reading.diverged_at == r[290] and reading.dropped == 11
+
     def test_pandas(self):
         """A DataFrame (columns found by name) and two Series are read when pandas is installed (never needed)."""
         pd = pytest.importorskip("pandas")
@@ -197,8 +212,8 @@ class TestErrors:
         (lambda r, l: read_range_test(np.where(np.arange(r.size) == 5, np.nan, r), l),
          r"rates\[5\] must be a finite rate > 0, got nan"),
         (lambda r, l: read_range_test(r, np.where(np.arange(r.size) == 7, np.nan, l)),
-         r"losses\[7\] must be a finite number \(a nan or inf loss is read as the divergence only at the end of "
-         r"the log\), got nan \(losses\[8\] after it is finite again"),
+         r"losses\[7\] must be a finite number within \+-1e100 \(a nan, inf or larger loss is read as the "
+         r"divergence only at the end of the log\), got nan \(losses\[8\] after it is finite again"),
         (lambda r, l: read_range_test(r, l[:-1]),
          r"losses must be 30 values, one per rate, got '29 values'"),
         (lambda r, l: read_range_test(np.geomspace(1e-6, 1.0, MIN_POINTS - 1), l[:MIN_POINTS - 1]),
@@ -211,7 +226,8 @@ class TestErrors:
         (lambda r, l: read_range_test(np.concatenate([r[:10], r[9:29]]), l),
          r"rates\[10\] must be a rate other than rates\[9\]"),
         (lambda r, l: read_range_test(r, l, window=0.0), r"window must be a width in decades in \(0, 6\]"),
-        (lambda r, l: read_range_test(r, l, window=7.0), r"window must be a width in decades in \(0, 6\] \(the log's span\), got 7.0"),
+        (lambda r, l: read_range_test(r, l, window=7.0),
+         r"window must be a width in decades in \(0, 6\] \(the log's span\), got 7.0"),
         (lambda r, l: read_range_test(r, l, onset=1.0), r"onset must be a share in \(0, 1\), got 1.0"),
         (lambda r, l: read_range_test(r, l, ragged=1.0), r"ragged must be a factor in \(1, 1e6\), got 1.0"),
         (lambda r, l: read_range_test(np.ones((30, 3))), r"source must be \(rate, loss\) pairs.*shape \(30, 3\)"),
@@ -244,11 +260,11 @@ class TestErrors:
         """The run checks its sweep, its stop rule and the objects it was given before touching anything."""
         with pytest.raises(ScheduleError, match=r"run_range_test: updates must be a whole number in \[10, "
                                                 r"1,000,000\], got 5"):
-            sweep(1e-7, 10.0, 5)
+            sweep_rates(1e-7, 10.0, 5)
         with pytest.raises(ScheduleError, match=r"highest must be >= 2 \* lowest = 0.2, got 0.15"):
-            sweep(0.1, 0.15, 100)
+            sweep_rates(0.1, 0.15, 100)
         with pytest.raises(ScheduleError, match=r"lowest must be a rate in \(0, 1e\+100\], got 0.0"):
-            sweep(0.0, 1.0, 100)
+            sweep_rates(0.0, 1.0, 100)
         with pytest.raises(ScheduleError, match=r"stop_above must be None or a factor in \(1, 1e6\], got 1.0"):
             run_range_test(object(), [], None, object(), stop_above=1.0)
         with pytest.raises(ScheduleError, match=r"model must be a model with state_dict.*it has no state_dict"):
@@ -421,3 +437,5 @@ def test_reading_is_a_value():
     assert isinstance(reading, RangeReading)
     with pytest.raises(ValueError):
         reading.smoothed[0] = 1.0
+    with pytest.raises(TypeError):
+        reading.evidence["stop"] = (0, 1.0)  # type: ignore[index]
