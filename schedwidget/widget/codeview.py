@@ -9,7 +9,6 @@ through the atomic ``schedwidget.spec.save``.
 
 from __future__ import annotations
 
-import html
 import math
 import os
 from pathlib import Path

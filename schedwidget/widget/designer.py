@@ -11,7 +11,6 @@ an invalid proposal never replaces the design: its message goes to ``error``.
 
 from __future__ import annotations
 
-import html
 import os
 from contextlib import contextmanager
 from time import perf_counter
