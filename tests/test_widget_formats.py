@@ -221,3 +221,22 @@ class TestOneNumberFormat:
         d.tabs.selected_index = 3
         assert not format_problems(d.tabs.children[3])
         assert not format_problems(ScheduleDesigner(warmup(cosine(3e-4, 3e-6, steps=9000), 1000)))
+
+
+class TestRepeatedStagePositions:
+    """A repeated drops stage reads its positions in its first cycle and says every cycle repeats them."""
+
+    def test_first_cycle(self):
+        """After a 10-epoch warmup, epoch 30 of the run is 20 epochs into each cycle; the first cycle's end bounds
+        what is accepted."""
+        from schedwidget import restarts
+
+        d = ScheduleDesigner(warmup(restarts(drops(0.1, at=(10,), steps=40), cycles=2), 10), unit="epoch")
+        box = d.control(0, "at")
+        box.text.value = "30"
+        assert d.error == "" and d.schedule.target.target.at == (20,)
+        assert "= 20 epochs into each cycle of this stage" in box.words.value
+        box.text.value = "60"
+        assert d.error.startswith("drops: drops at item 1 must be inside the first cycle of this stage, after epoch 10 "
+                                  "and before epoch 50 of the run")
+        assert d.schedule.target.target.at == (20,)

@@ -84,7 +84,8 @@ class ParamControl:
         self.owner, self.name, self.p, self.on_commit = owner, name, p, on_commit
         # context() -> (unit, steps per epoch, run total, peak to take shares of); lengths and rates read it
         self.context = context or (lambda: ("step", None, budget, None))
-        # span() -> (the stage's first tick on the run's clock, its length): tick lists are positions of the run
+        # span() -> (the stage's first tick on the run's clock, its length[, whether it repeats]): tick lists are
+        # positions of the run (of its first cycle when the stage repeats)
         self.span = span or (lambda: (0, None))
         self.value = value
         self.words: W.HTML | None = None
@@ -247,9 +248,9 @@ class ParamControl:
                     self._recentre(value)
             if k == "ticklist":
                 unit, spe, _total, _peak = self.context()
-                start, _length = self.span()
+                start, _length, *repeats = self.span()
                 put(self.text, positions_text(tuple(value), start, unit, spe))
-                put(self.words, html_words(positions_words(tuple(value), start, unit, spe)))
+                put(self.words, html_words(positions_words(tuple(value), start, unit, spe, bool(repeats and repeats[0]))))
             elif k == "points":
                 put(self.text, format_points(value))
             else:
@@ -304,9 +305,9 @@ class ParamControl:
                 value = None if change["new"] else self.slider.value
         elif self.control == "ticklist":
             unit, spe, total, _peak = self.context()
-            start, length = self.span()
+            start, length, *repeats = self.span()
             value = parse_positions(change["new"], unit, spe, total, start, length, self.owner,
-                                    WORDS.get(self.name, self.name))
+                                    WORDS.get(self.name, self.name), bool(repeats and repeats[0]))
         elif self.control == "points":
             value = parse_points(self.owner, self.name, change["new"])
         elif self.control == "length" and w is self.text:

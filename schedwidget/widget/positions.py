@@ -45,11 +45,12 @@ def _where(tick: int, unit: str, spe: int | None) -> str:
 
 
 def parse_positions(text: str, unit: str, spe: int | None, total: int | None, start: int, length: int | None,
-                    owner: str = "drops", box: str = BOX) -> tuple[int, ...]:
+                    owner: str = "drops", box: str = BOX, cycle: bool = False) -> tuple[int, ...]:
     """Typed positions on the run's clock, as ticks on the stage's own clock (what the core's ``at`` holds).
 
     ``start`` is the stage's first tick on the run's clock and ``length`` its length (None: open-ended).
-    Every position must lie inside the stage, after its first tick and before its end.
+    Every position must lie inside the stage, after its first tick and before its end.  ``cycle``: the stage
+    repeats, ``length`` is its first cycle's, and the positions are read in that first cycle.
 
     >>> parse_positions("30 ep, 60 ep", "step", 1150, 103_500, 5750, 97_750)
     (28750, 63250)
@@ -72,7 +73,8 @@ def parse_positions(text: str, unit: str, spe: int | None, total: int | None, st
         if run <= start or (end is not None and run >= end):
             span = f"after {_where(start, unit, spe)}" + ("" if end is None else f" and before {_where(end, unit, spe)}")
             side = "at or before the stage's start" if run <= start else "at or after the stage's end"
-            raise complain(owner, f"{box} item {i + 1}", item, f"inside this stage, {span} of the run, written as "
+            where = "the first cycle of this stage" if cycle else "this stage"
+            raise complain(owner, f"{box} item {i + 1}", item, f"inside {where}, {span} of the run, written as "
                            + POSITION_FORMS, f"it is {_where(run, unit, spe)} of the run, {side}")
         if out and run - start <= out[-1]:
             raise complain(owner, f"{box} item {i + 1}", item,
@@ -99,7 +101,7 @@ def positions_text(at: tuple[int, ...], start: int, unit: str, spe: int | None) 
     return "; ".join(_as_epochs(run, unit, spe) or [f"{t:,}" for t in run])
 
 
-def positions_words(at: tuple[int, ...], start: int, unit: str, spe: int | None) -> str:
+def positions_words(at: tuple[int, ...], start: int, unit: str, spe: int | None, cycle: bool = False) -> str:
     """Beside the box, in plain words: positions count from the start of the run, and where they are in the stage.
 
     >>> positions_words((28750,), 5750, "step", 1150)
@@ -108,8 +110,11 @@ def positions_words(at: tuple[int, ...], start: int, unit: str, spe: int | None)
     'counted from the start of the run (where this stage starts)'
     """
     if start == 0:
+        if cycle:
+            return "counted from the start of the run, in the first cycle (every cycle repeats them)"
         return "counted from the start of the run (where this stage starts)"
     ticks = list(at)
     shown = _as_epochs(ticks, unit, spe) or [f"{t:,}" for t in ticks]
     tail = "" if _as_epochs(ticks, unit, spe) else f" {unit}s"
-    return f"counted from the start of the run = {'; '.join(shown)}{tail} into this stage"
+    where = "into each cycle of this stage" if cycle else "into this stage"
+    return f"counted from the start of the run = {'; '.join(shown)}{tail} {where}"

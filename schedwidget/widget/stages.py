@@ -249,13 +249,14 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
                 peak = d.facts.peak
             return d.unit, d.steps_per_epoch, d.steps, peak
 
-        def span(w: str = where) -> tuple[int, int | None]:
-            """The stage's first tick on the run's clock and its (first cycle's) length: positions of the run."""
+        def span(w: str = where) -> tuple[int, int | None, bool]:
+            """The stage's first tick on the run's clock, its (first cycle's) length, whether it repeats."""
             form = self.form
             if form is None or w == "warm" or int(w) >= len(form.stages):
-                return 0, None
+                return 0, None, False
             start, _length = stage_span(form, int(w))
-            return start, leaf_of(form.stages[int(w)]).length
+            st = form.stages[int(w)]
+            return start, leaf_of(st).length, st._repeated() is not None
 
         c = ParamControl(owner, name, p, getattr(target, name), self.d.steps,
                          lambda n, v, w=where, pt=part: self._edit(w, pt, n, v), guard=self.d.guarded,
