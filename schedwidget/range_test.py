@@ -204,6 +204,8 @@ class RangeReading:
         lines.append(f"  -> peak {self.peak:.3g}, bounds {self.low:.3g} .. {self.peak:.3g}")
         lines.append(f"common practice, no source: lowest smoothed loss at {tick('minimum')} -> peak "
                      f"{self.peak_common:.3g}")
+        if self.evidence["steepest"][1] == self.rates[0]:
+            lines.append("caution: the loss falls fastest at the first logged rate; sweep from lower rates")
         if self.still_falling:
             lines.append("caution: the loss was still falling at the end of the log; sweep to higher rates")
         return "\n".join(lines)
@@ -236,7 +238,7 @@ def read_range_test(source: Any, losses: Any = None, *, rate_column: str | int |
         turned into k points each side (at least 2); see ``smooth`` for the method and why.
     onset
         Share of the whole fall of the smoothed loss that counts as "starts to fall" at its top and as "slows"
-        at its bottom (0.1: ours, no source).
+        at its bottom (0.1: ours, no source); below one half, so the start comes before the stop.
     ragged
         The loss "turns ragged" where its roughness exceeds ``ragged`` times its level before the fall (3: ours,
         no source).  Roughness: |second difference| of (raw loss - smoothed loss), averaged over the window;
@@ -272,7 +274,7 @@ def read_range_test(source: Any, losses: Any = None, *, rate_column: str | int |
     >>> round(float(np.log10(reading.steepest)), 2)
     -2.0
     """
-    onset = _checked("onset", onset, 0.0, 1.0, "a share in (0, 1)")
+    onset = _checked("onset", onset, 0.0, 0.5, "a share in (0, 0.5)")
     ragged = _checked("ragged", ragged, 1.0, 1e6, "a factor in (1, 1e6)")
     log = check_log(source, losses, rate_column, loss_column)
     x = np.log10(log.rates)

@@ -119,6 +119,14 @@ class TestReadings:
         assert "still falling" in str(reading)
         assert not read_range_test(*log_of()).still_falling
 
+    def test_started_mid_fall(self):
+        """A log that starts past the steepest point says the sweep should start lower."""
+        r = np.geomspace(10 ** (X0 + 0.05), 10.0, 200)
+        reading = read_range_test(r, curve(np.log10(r)))
+        assert reading.evidence["steepest"] == (0, r[0])
+        assert "falls fastest at the first logged rate; sweep from lower rates" in str(reading)
+        assert "caution" not in str(read_range_test(*log_of()))
+
     def test_no_fall(self):
         """Pure seeded noise around a flat loss is not a fall: no peak, and no design."""
         r = np.geomspace(1e-5, 10.0, 301)
@@ -228,7 +236,7 @@ class TestErrors:
         (lambda r, l: read_range_test(r, l, window=0.0), r"window must be a width in decades in \(0, 6\]"),
         (lambda r, l: read_range_test(r, l, window=7.0),
          r"window must be a width in decades in \(0, 6\] \(the log's span\), got 7.0"),
-        (lambda r, l: read_range_test(r, l, onset=1.0), r"onset must be a share in \(0, 1\), got 1.0"),
+        (lambda r, l: read_range_test(r, l, onset=0.5), r"onset must be a share in \(0, 0.5\), got 0.5"),
         (lambda r, l: read_range_test(r, l, ragged=1.0), r"ragged must be a factor in \(1, 1e6\), got 1.0"),
         (lambda r, l: read_range_test(np.ones((30, 3))), r"source must be \(rate, loss\) pairs.*shape \(30, 3\)"),
         (lambda r, l: read_range_test(r, l, rate_column="lr"), r"rate_column must be None for lists or arrays"),
@@ -377,6 +385,21 @@ class TestRun:
             # the suggestion trains: the loss falls to under a fifth, and far lower than a hundredth of the rate
             assert last < 0.2 * first and last < 0.5 * slow, (peak, first, last, slow)
 
+    def test_classification(self, torch):
+        """A seeded two-class toy problem with cross-entropy and Adam: a suggestion below the blow-up, state back."""
+        g = torch.Generator().manual_seed(3)
+        x = torch.randn(640, 2, generator=g)
+        y = (x[:, 0] * x[:, 1] > 0).long()
+        batches = [(x[i:i + 64], y[i:i + 64]) for i in range(0, 640, 64)]
+        torch.manual_seed(3)
+        model = torch.nn.Sequential(torch.nn.Linear(2, 32), torch.nn.ReLU(), torch.nn.Linear(32, 2))
+        opt = torch.optim.Adam(model.parameters(), lr=1e-3)
+        before = _snapshot(torch, model, opt)
+        run = run_range_test(model, batches, torch.nn.CrossEntropyLoss(), opt, updates=200, lowest=1e-5, highest=100.0)
+        assert _same(torch, before, _snapshot(torch, model, opt))
+        reading = run.read()
+        assert reading.fell and reading.low < reading.peak < run.rates[-1], str(reading)
+
     def test_exception_mid_run_restores(self, torch):
         """A loss function that raises at update 40 propagates, and the state is restored first."""
         model, batches = _problem(torch)
@@ -422,6 +445,33 @@ class TestRun:
                                                 r"'a Tensor'"):
             run_range_test(model, [b[0] for b in batches], torch.nn.MSELoss(), opt)
         assert _same(torch, before, _snapshot(torch, model, opt))
+
+
+def test_random_logs_end_in_a_reading_or_a_schedule_error():
+    """Seeded random logs (any scale, unsorted, nan tails, odd windows) give a reading or a ScheduleError, fast."""
+    rng = np.random.default_rng(16)
+    readings = errors = 0
+    for _ in range(400):
+        n = int(rng.integers(1, 300))
+        lo, span = 10 ** rng.uniform(-300, 50), 10 ** rng.uniform(-1, 10)
+        r = np.geomspace(lo, lo * span, n) if rng.random() < 0.8 else rng.uniform(0, 1, n) * lo
+        if rng.random() < 0.2:
+            r = rng.permutation(r)
+        y = 10 ** rng.uniform(-300, 120) * (rng.normal(0, 1, n) + rng.uniform(-5, 5) * np.tanh(np.linspace(-3, 3, n)))
+        if rng.random() < 0.3:
+            y[int(rng.integers(0, n)):] = rng.choice([np.nan, np.inf, -np.inf])
+        window = None if rng.random() < 0.7 else float(10 ** rng.uniform(-3, 1))
+        try:
+            reading = read_range_test(r, y, window=window)
+        except ScheduleError:
+            errors += 1
+            continue
+        readings += 1
+        assert np.isfinite(reading.smoothed).all() and np.isfinite(reading.slope).all() and str(reading)
+        if reading.fell:
+            assert reading.low <= reading.peak <= reading.rates[-1]
+            assert reading.design(100).length == 100
+    assert readings > 100 and errors > 50  # both outcomes were drawn
 
 
 def test_core_modules_import_no_torch():
