@@ -131,6 +131,15 @@ def run_range_test(model: Any, loader: Any, loss_fn: Callable[..., Any] | None, 
     -------
     RangeRun
         The log; ``.read()`` gives the readings.
+
+    Examples
+    --------
+    With torch in the user's own code (never imported here)::
+
+        run = run_range_test(model, train_loader, torch.nn.CrossEntropyLoss(), optimizer, updates=300)
+        reading = run.read()
+        print(reading)                        # the readings, the evidence and the smoothing used
+        design = reading.design(steps=90 * 1150)   # one_cycle between the published bounds
     """
     rates = sweep_rates(lowest, highest, updates)
     if stop_above is not None:
