@@ -156,6 +156,7 @@ class ComparePanel(Panel, W.VBox):
         self.table.add_class("sw-compare")
         super().__init__([self.table, W.HBox([self.choice, self.restore_button, self.remove_button])])
         designer.observe(g(self._pins_changed), names="pinned")
+        self._pins_changed({"new": designer.pinned})
         self.listen(designer, tab)
 
     @property
@@ -207,6 +208,9 @@ class ComparePanel(Panel, W.VBox):
             keep = self.choice.value if self.choice.value in names else (names[-1] if names else None)
             self.choice.options = names
             self.choice.value = keep
+        for w in (self.choice, self.restore_button, self.remove_button):  # nothing to pick until there is a pin
+            if w.disabled != (not names):
+                w.disabled = not names
         kept = set(change["new"])
         self._facts = {k: v for k, v in self._facts.items() if v[0] in kept}
         self._values = {}  # the ticks read hold every pin's jumps: read the pins again
