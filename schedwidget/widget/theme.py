@@ -212,7 +212,7 @@ def _tiny(m: re.Match) -> str:
         return f'<span title="exactly {m.group(0)}">~0</span>'
     if abs(v) >= 1e4 and float(v).is_integer():
         return f"{v:,.0f}"
-    return m.group(0)
+    return re.sub(r"e([-+])0+(\d)", r"e\1\2", m.group(0))  # 2.97e-06 as the widget writes it: 2.97e-6
 
 
 def tidy_html(text: str) -> str:
@@ -221,8 +221,8 @@ def tidy_html(text: str) -> str:
 
     >>> tidy_html("ends at 2.58e-11 at step 9, half-life 1.554e+04 steps")
     'ends at <span title="exactly 2.58e-11">~0</span> at step 9, half-life 15,540 steps'
-    >>> tidy_html("ends at ~0 (5.16e-11) at step 9")
-    'ends at <span title="exactly 5.16e-11">~0</span> at step 9'
+    >>> tidy_html("ends at ~0 (5.16e-11) at step 9, 0.00989 of the peak (2.97e-06)")
+    'ends at <span title="exactly 5.16e-11">~0</span> at step 9, 0.00989 of the peak (2.97e-6)'
     """
     return _NUMBERS.sub(_tiny, pct(html.escape(text)))
 
