@@ -118,8 +118,9 @@ class ParamControl:
             self.text.add_class("sw-length")
             self.words = W.HTML("", layout=WORDS_LAYOUT)
             self.words.add_class("sw-length-words")
-            if p.optional:
-                self.none = W.Checkbox(description="open-ended", indent=False, tooltip="None: " + tip,
+            if p.optional:  # a stage's own length: None is open-ended; any other length: None means "not set"
+                unset = "open-ended" if name == "steps" else "not set"
+                self.none = W.Checkbox(description=unset, indent=False, tooltip="None: " + tip,
                                        layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
         elif k == "slider":
             lo, hi = p.soft if p.soft else (p.lo or 0.0, p.hi or 1.0)
@@ -128,8 +129,8 @@ class ParamControl:
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
             if p.optional:  # None is allowed: a box to leave the value unset (the shape then works it out)
                 self.none = W.Checkbox(description="not set", indent=False, tooltip="None: " + tip,
-                                       layout={"width": "6.5em", "min_width": "6.5em", "flex": "0 0 auto"})
-                self.slider.layout.width = "14.5em"
+                                       layout={"width": "6em", "min_width": "6em", "flex": "0 0 auto"})
+                self.slider.layout.width = "14em"
         elif k == "int_slider":
             self.slider = W.IntSlider(min=self._int_lo(), max=self._int_hi(budget, value), description=words,
                                       tooltip=tip, readout=False, style=style, layout=SLIDER_LAYOUT)

@@ -49,7 +49,9 @@ WORDS = {"steps": "length", "peak": "peak rate", "floor": "end rate", "start": "
          "lr": "rate", "every": "every", "at": "drops at", "factor": "multiply by", "power": "power",
          "warmup": "rise over", "low": "low rate", "high": "high rate", "final": "final rate",
          "half_period": "half period", "curve": "curve", "cycles": "cycles", "growth": "growth",
-         "peak_decay": "peak decay", "points": "points", "up": "rising share"}
+         "peak_decay": "peak decay", "points": "points", "up": "rising share", "rise": "rising share",
+         "tail": "tail share", "phases": "phases", "ends": "phase ends", "fall": "fall over", "shrink": "shrink by",
+         "interp": "between points"}
 
 
 def parse_ticklist(owner: str, name: str, text: str) -> tuple[int, ...]:

@@ -227,7 +227,8 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
                 raise
             head_row = W.HBox(head, layout={"flex_flow": "row wrap", "align_items": "center"})
             box = W.VBox([head_row] + [c.box for c in rows],
-                         layout={"border": f"1px solid {BORDER}", "padding": "2px 4px", "margin": "2px 0"})
+                         layout={"border": f"1px solid {BORDER}", "padding": "2px 4px", "margin": "2px 0",
+                                 "flex": "0 0 auto"})  # never squeezed by the list's height: rows ran into each other
             box.add_class("sw-stage")
             boxes.append(box)
             self.controls.append(rows)
