@@ -291,10 +291,11 @@ def _restarted(design: Schedule, tr: Trace, e: np.ndarray, i: int, rtol: float, 
         lo = int(t[start - 1]) + 1 if start > 0 else 0
         hi = int(t[start])
         best = None
+        near = slice(start, min(t.size, start + 64))
         for R in range(hi, max(lo, hi - 1024) - 1, -1):  # the resume lies between the last matching log and this one
             if R <= (resumes[-1] if resumes else 0):
                 break
-            ahead = _close(r[start:], design(t[start:] - R), rtol, atol)
+            ahead = _close(r[near], design(t[near] - R), rtol, atol)  # the next 64 logs pick the resume tick
             reach = int(np.argmin(ahead)) if not ahead.all() else ahead.size
             if reach and (best is None or reach > best[1]):
                 best = (R, reach)
@@ -302,6 +303,8 @@ def _restarted(design: Schedule, tr: Trace, e: np.ndarray, i: int, rtol: float, 
                 break
         if best is None:
             return
+        if best[1] == near.stop - start:  # it explains all 64: how far it goes, in growing chunks
+            best = (best[0], _reach(lambda x, R=best[0]: design(x - R), t, r, start, rtol, atol))
         resumes.append(best[0])
         start += best[1]
         if start >= t.size:
@@ -319,6 +322,19 @@ def _restarted(design: Schedule, tr: Trace, e: np.ndarray, i: int, rtol: float, 
     spans = np.diff(np.append(bounds, int(t[-1]) + 1))
     segment = (0, int(min(int(spans.max()), resumes[0])))
     yield ({"resumes": tuple(resumes), "segment": segment}, predict)
+
+
+def _reach(predict: Callable[[np.ndarray], np.ndarray], t: np.ndarray, r: np.ndarray, i0: int, rtol: float,
+           atol: float) -> int:
+    """How many logs from ``i0`` on ``predict`` explains in a row, read in chunks that grow fourfold."""
+    i, chunk = i0, 256
+    while i < t.size:
+        j = min(t.size, i + chunk)
+        ok = _close(r[i:j], predict(t[i:j]), rtol, atol)
+        if not ok.all():
+            return i - i0 + int(np.argmin(ok))
+        i, chunk = j, chunk * 4
+    return t.size - i0
 
 
 def _budget(design: Schedule, tr: Trace, sample: np.ndarray, rtol: float, atol: float) -> Hypotheses:

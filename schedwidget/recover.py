@@ -38,11 +38,11 @@ _WEAK = 2
 #: Points a richer shape must explain beyond a simpler one to be preferred.
 _MARGIN = 2
 
-#: Most stages searched for repeats (restarts): each try evaluates the whole design once.
-_MAX_FOLD = 24
+#: Most designs evaluated while folding repeated stages into restarts (each try evaluates the whole design once).
+_MAX_FOLD_TRIES = 48
 
 #: Most clock origins tried for a stage when the trace is logged every k > 1 ticks.
-_MAX_ORIGINS = 64
+_MAX_ORIGINS = 16
 
 
 @dataclass(frozen=True)
@@ -262,7 +262,8 @@ class _Walk:
                     count = self.reach(shape, origin, i0)  # the last stage holds its end value past its length
                 # a later (richer) family must explain clearly more than a simpler one: a point or two more is
                 # usually the next stage's first points, taken by a shape that merely bends there
-                margin = _MARGIN if best is not None and make is not best_make and best[1] >= 8 else 0
+                margin = (_MARGIN if best is not None and make is not best_make and best[1] >= 8
+                          and i0 + count < self.t.size else 0)  # a shape that explains all the rest wins outright
                 if count and (best is None or count > best[1] + margin):
                     best, best_make = (shape, count, length), make
         return best
@@ -303,7 +304,7 @@ def _linear(w: _Walk, origin: int, i0: int):
     for _ in range(3):  # refit on the ends of what the line explains, then again
         L = _free_length(w, origin, i0)
         if d < 0 and s0 + d * L < 0:  # the line reaches 0 before the trace ends: stop it there
-            L = max(int(s0 / -d), 1)
+            L = max(int(math.floor(s0 / -d * (1 + 1e-12))), 1)  # the tick where it reaches 0, if whole
         got = _try(lambda: ramp(max(s0, 0.0), max(s0 + d * L, 0.0), L))
         if not got:
             return out
@@ -353,10 +354,11 @@ def _wave_length(u: np.ndarray, y: np.ndarray) -> float | None:
     du = u[1] - u[0]
     if not np.allclose(np.diff(u[:4]), du):
         return None
-    y0, y1, y2, y3 = y[:4]
+    y0, y1, y2, y3 = np.asarray(y[:4], dtype=np.float64)
     if y1 == y2:
         return None
-    c = ((y2 + y0) - (y3 + y1)) / (2.0 * (y1 - y2))
+    with np.errstate(over="ignore", invalid="ignore"):
+        c = ((y2 + y0) - (y3 + y1)) / (2.0 * (y1 - y2))
     if not -1.0 < c < 1.0:
         return None
     return math.pi / (math.acos(c) / du)
@@ -372,7 +374,7 @@ def _half_cosines(w: _Walk, origin: int, i0: int):
     span = float(w.t[-1] - origin) + 1.0
     centres: set[int] = set()
     j = 1
-    while 3 * j < n_avail and j <= 4096:
+    while 3 * j < n_avail and j <= 65536:
         idx = i0 + j * np.arange(4)
         est = _wave_length((w.t[idx] - origin).astype(float), w.r[idx])
         if est is not None and math.isfinite(est) and est <= 64 * span and est <= 2 ** 53:
@@ -410,8 +412,11 @@ def _half_cosines(w: _Walk, origin: int, i0: int):
             got = _try(lambda: cosine(max(hi, 0.0), min(max(lo, 0.0), max(hi, 0.0)), steps=L))
         else:
             got = _try(lambda: ramp(max(hi, 0.0), max(lo, 0.0), L, curve="cosine"))
-        out += [(g, L) for g in got]
-    return _best_few(w, origin, i0, out)
+        for g in got:  # ranked by how many points they explain, then by their worst miss along the half period
+            miss = float(np.max(np.abs(g(uu.astype(np.int64)) - yy) / np.maximum(np.abs(yy), 1e-300)))
+            out.append((-w.reach(g, origin, i0, stop), miss, L, g))
+    out.sort(key=lambda c: c[:3])
+    return [(g, L) for _, _, L, g in out[:3]]
 
 
 def _best_few(w: _Walk, origin: int, i0: int, cands: list, keep: int = 3):
@@ -497,6 +502,9 @@ def _steps_down(w: _Walk, origin: int, i0: int):
                 not w.close(np.array([levels[0] * f_try ** k]), np.array([levels[k]]))[0]:
             break
         f, k = f_try, k + 1
+    inner = np.diff(change[:k])  # logged points on each level between the first drop and the last
+    if inner.size >= 3 and np.all(inner < 2):
+        return []  # a new level every tick is a smooth decay, which the ramps and exp_decay read better
     at = tuple(int(a) for a in starts[:k])
     out = []
     L = _free_length(w, origin, i0)
@@ -601,7 +609,12 @@ def _sized(shape: Schedule, length: int) -> Schedule:
     if shape.length == length:
         return shape
     if shape.kind == "ramp":  # the same line (or curve) cut at the new length: its end is its value there
+        if length > shape.steps:  # it held its end for the last points: not a ramp of this length
+            raise ScheduleError(f"recover: a ramp of {shape.steps} ticks cannot fill a stage of {length}")
         return replace(shape, end=float(shape(length)), steps=length)
+    if shape.kind == "drops":  # drops at or past the cut belong to the next stage
+        at = tuple(a for a in shape.at if a < length)
+        return replace(shape, at=at, steps=length) if at else flat(shape.peak, steps=length)
     return replace(shape, steps=length)
 
 
@@ -637,14 +650,14 @@ def _tidy(design: Schedule, t: np.ndarray, r: np.ndarray, rtol: float, atol: flo
         return bool(np.all(np.abs(e - r) <= rtol * np.abs(r) + atol))
 
     parts = [_canonical(p) for p in design._stage_parts()]
+    budget = [_MAX_FOLD_TRIES]
     if len(parts) > 1 and parts[-1].kind == "flat" and parts[-2].length is not None:
         # a last flat stage at the rate the stage before holds past its end: that stage holds it by itself
         held = parts[:-1]
         trial = stages(*held) if len(held) > 1 else held[0]
         if fits(trial):
             parts = held
-    if len(parts) <= _MAX_FOLD:
-        parts = _fold_restarts(parts, fits)
+    parts = _fold_restarts(parts, fits, budget)
     if len(parts) == 2 and parts[0].kind == "ramp" and parts[0].curve in ("linear", "cosine"):
         try:
             w = warmup(parts[1], parts[0].steps, start=parts[0].start, curve=parts[0].curve)
@@ -656,8 +669,12 @@ def _tidy(design: Schedule, t: np.ndarray, r: np.ndarray, rtol: float, atol: flo
     return s if fits(s) or not fits(design) else design
 
 
-def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool]) -> list[Schedule]:
-    """Runs of stages of one kind that a ``restarts`` of the first one reproduces become that restarts."""
+def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool], budget: list[int]) -> list[Schedule]:
+    """Runs of stages of one kind that a ``restarts`` of the first one reproduces become that restarts.
+
+    Each try evaluates the whole design once, so the tries are counted (``budget``): a run of m stages tries all
+    m cycles, then m - 1 (a last cycle cut short by the end of the trace), and shorter runs only when it is short.
+    """
     i = 0
     out = list(parts)
     while i < len(out) - 1:
@@ -667,15 +684,17 @@ def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool]) -> l
             j += 1
         run = j - i
         done = False
-        for m in range(run, 1, -1):
+        for m in (range(run, 1, -1) if run <= 6 else (run, run - 1)):
             cyc = out[i:i + m]
             lengths = [c.length for c in cyc]
             if None in lengths or first.length is None:
                 continue
             growths = {1.0} | _growths(lengths[:-1] if m > 2 else lengths)
+            # the peak decay: the second cycle's first rate over the first's (or, for a cycle starting at 0,
+            # the rates at the first's highest tick and the matching tick of the second)
             u = np.arange(min(first.length, 4096))
-            k = int(np.argmax(first(u)))  # compare the cycles where the first is highest (a rise starts at 0)
-            p0, p1 = float(first(k)), float(cyc[1](min(k, cyc[1].length)))
+            k = 0 if first(0) > 0 else int(np.argmax(first(u)))
+            p0, p1 = float(first(k)), float(cyc[1](int(round(k * cyc[1].length / first.length))))
             decays = {1.0} if p0 == 0 else {min(max(p1 / p0, 1e-12), 1.0), 1.0}
             for g in sorted(growths):
                 for dcy in decays:
@@ -684,8 +703,9 @@ def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool]) -> l
                             rs = restarts(target, cycles=m, growth=g, peak_decay=dcy)
                         except ScheduleError:
                             continue
-                        if node_count(rs) >= sum(node_count(c) for c in cyc):
-                            continue  # no shorter than the stages it would replace
+                        if node_count(rs) >= sum(node_count(c) for c in cyc) or budget[0] <= 0:
+                            continue  # no shorter than the stages it would replace, or out of tries
+                        budget[0] -= 1
                         trial = out[:i] + [rs] + out[i + m:]
                         s = stages(*trial) if len(trial) > 1 else trial[0]
                         if fits(s):
