@@ -173,7 +173,7 @@ class ReplayPanel(Panel, W.VBox):
                      *(self.controls[n].box for n in ("goal", "tolerance", "relative", "patience")),
                      W.HTML(heading.format("what a drop does")),
                      *(self.controls[n].box for n in ("factor", "floor", "wait_after_drop")),
-                     start_row, self.follow]
+                     W.HTML(heading.format("the rate before any drop")), start_row, self.follow]
         wrap = {"flex_flow": "row wrap", "align_items": "center"}
         rules = W.VBox(rule_rows, layout={"flex": "0 0 31em", "width": "31em", "margin": "0 12px 0 0"})
         rules.add_class("sw-replay-rule")
