@@ -18,6 +18,7 @@ from .schedule import Schedule, ScheduleError
 from .shapes import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, triangle
 from .solve import solve
 from .spec import Design, from_spec, json_schema, load, load_design, save, to_spec
+from .tracks import GroupDesigns, Tracks, inverse_momentum, load_tracks, per_group, tracks, tracks_from_spec
 
 __version__ = "0.1.0"
 
@@ -30,7 +31,23 @@ __all__ = [
     "to_python", "to_torch", "torch_factor", "RateFactor", "make_scheduler",
     "Budget", "check_length", "scale_for_batch",
     "Design", "to_spec", "from_spec", "save", "load", "load_design", "json_schema",
+    "tracks", "Tracks", "per_group", "GroupDesigns", "inverse_momentum", "tracks_from_spec", "load_tracks",
+    # loaded on first use (below): the clock, the tracks' readouts and exports, reading logs back
+    "TrackClock", "to_torch_tracks", "track_facts", "tracks_sentence", "tracks_svg", "decay_per_step",
+    "read_trace", "read_traces", "Trace", "check_run", "Verdict", "recover", "Recovery",
+    "read_range_test", "RangeReading", "run_range_test", "RangeRun", "sweep_rates",
 ]
+
+#: Names loaded from their module on first use, so ``import schedwidget`` stays light for training code.
+_LATER = {
+    "TrackClock": "clock", "to_torch_tracks": "track_export",
+    "track_facts": "track_readouts", "tracks_sentence": "track_readouts", "tracks_svg": "track_readouts",
+    "decay_per_step": "track_readouts",
+    "read_trace": "trace", "read_traces": "trace", "Trace": "trace",
+    "check_run": "check_run", "Verdict": "check_run", "recover": "recover", "Recovery": "recover",
+    "read_range_test": "range_test", "RangeReading": "range_test",
+    "run_range_test": "range_run", "RangeRun": "range_run", "sweep_rates": "range_run",
+}
 
 
 def __getattr__(name: str) -> Any:
@@ -40,4 +57,10 @@ def __getattr__(name: str) -> Any:
         from .widget import ScheduleDesigner
 
         return ScheduleDesigner
+    if name in _LATER:
+        from importlib import import_module
+
+        value = getattr(import_module(f".{_LATER[name]}", __name__), name)
+        globals()[name] = value
+        return value
     raise AttributeError(f"module 'schedwidget' has no attribute {name!r}")
