@@ -17,7 +17,7 @@ stop at its first miss, and a trace holds at most ``trace.MAX_TRACE_POINTS`` poi
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 from typing import Any, Callable
 
 import numpy as np
@@ -40,6 +40,9 @@ _MARGIN = 2
 
 #: Most designs evaluated while folding repeated stages into restarts (each try evaluates the whole design once).
 _MAX_FOLD_TRIES = 48
+
+#: Most whole-design tries spent writing fitted numbers short.
+_MAX_SNAP_TRIES = 96
 
 #: Most clock origins tried for a stage when the trace is logged every k > 1 ticks.
 _MAX_ORIGINS = 16
@@ -113,7 +116,7 @@ def recover(trace: Any, *, rtol: float | None = None, atol: float | None = None)
     >>> from schedwidget import cosine, warmup
     >>> d = warmup(cosine(0.1, 0.001, steps=900), 100)
     >>> recover(d(np.arange(1000))).design
-    warmup(target=cosine(peak=0.1, floor=0.001, steps=900), steps=100, start=0.0, curve='linear', place='before')
+    warmup(target=cosine(peak=0.1, floor=0.001, steps=900), steps=100, start=0.0, curve='linear')
     """
     tr = as_trace(trace, "recover")
     t, r = tr.ticks, tr.rates
@@ -140,11 +143,11 @@ def recover(trace: Any, *, rtol: float | None = None, atol: float | None = None)
 
 
 def _float32_logged(r: np.ndarray) -> bool:
-    """Whether every rate is a float32 value and some are not short decimals (0.10000000149011612, not 0.5)."""
+    """Whether every rate is a float32 value and some are long decimals (0.10000000149011612, not 0.5 or 2**-14)."""
     if not np.array_equal(r.astype(np.float32).astype(np.float64), r):
         return False
     sample = r[:: max(1, r.size // 1000)]
-    return any(len(repr(float(x)).replace("-", "").replace(".", "").lstrip("0").split("e")[0]) > 9 for x in sample)
+    return any(len(repr(float(x)).replace("-", "").replace(".", "").lstrip("0").split("e")[0]) > 12 for x in sample)
 
 
 def _number(name: str, value: Any, lo: float, hi: float) -> float:
@@ -664,9 +667,57 @@ def _tidy(design: Schedule, t: np.ndarray, r: np.ndarray, rtol: float, atol: flo
         except ScheduleError:
             w = None
         if w is not None and fits(w):
-            return w
+            return _snap(w, fits)
     s = stages(*parts) if len(parts) > 1 else parts[0]
-    return s if fits(s) or not fits(design) else design
+    s = s if fits(s) or not fits(design) else design
+    return _snap(s, fits) if fits(s) else s
+
+
+def _snap(design: Schedule, fits: Callable[[Schedule], bool]) -> Schedule:
+    """Each fitted number written with the fewest significant digits (3, 6, 9 or 12) that still fit the trace:
+    ``floor=0.001``, not ``0.0010000000000000148``.  Bounded: at most ``_MAX_SNAP_TRIES`` whole-design tries."""
+    tries = [_MAX_SNAP_TRIES]
+
+    def walk(node: Schedule, rebuild: Callable[[Schedule], Schedule]) -> Schedule:
+        for f in fields(node):
+            if not f.init or tries[0] <= 0:
+                continue
+            v = getattr(node, f.name)
+            if isinstance(v, Schedule):
+                child = walk(v, lambda x, n=node, name=f.name: rebuild(replace(n, **{name: x})))
+                if child is not v:
+                    node = replace(node, **{f.name: child})
+                continue
+            if isinstance(v, tuple) and v and all(isinstance(x, Schedule) for x in v):
+                for i in range(len(v)):
+                    cur = getattr(node, f.name)
+
+                    def put(x: Schedule, n: Schedule = node, name: str = f.name, i: int = i) -> Schedule:
+                        parts = getattr(n, name)
+                        return replace(n, **{name: (*parts[:i], x, *parts[i + 1:])})
+
+                    child = walk(cur[i], lambda x, put=put: rebuild(put(x)))
+                    if child is not cur[i]:
+                        node = put(child)
+                continue
+            if not isinstance(v, float) or v == 0 or not math.isfinite(v):
+                continue
+            for sig in ((0, 3, 6, 9, 12) if abs(v) < 1e-12 else (3, 6, 9, 12)):
+                short = float(f"{v:.{sig}g}") if sig else 0.0  # a residue of the fit (2.8e-17) may be 0
+                if short == v or tries[0] <= 0:
+                    break
+                tries[0] -= 1
+                try:
+                    trial = replace(node, **{f.name: short})
+                    whole = rebuild(trial)
+                except (ScheduleError, ValueError):
+                    continue
+                if fits(whole):
+                    node = trial
+                    break
+        return node
+
+    return walk(design, lambda x: x)
 
 
 def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool], budget: list[int]) -> list[Schedule]:

@@ -153,6 +153,21 @@ class TestTorchSchedulers:
         assert rec.fallback == () and rec.residual == 0.0
         assert (rec.design.kind, *(c.kind for c in rec.design.children())) == kinds, rec.design
 
+    @pytest.mark.parametrize("name, design", [
+        ("step", sw.exp_decay(0.1, 0.5, every=30, steps=200)),
+        ("multi-step", sw.drops(0.1, at=(50, 120, 170), factor=0.2, steps=200)),
+        ("cosine", sw.cosine(0.1, 0.001, steps=250)),
+        ("warm restarts", sw.restarts(sw.cosine(0.1, 0.002, steps=40), cycles=3, growth=2.0)),
+        ("cyclic halving", sw.triangle(0.001, 0.01, half_period=25, shrink=0.5, steps=300)),
+        ("polynomial", sw.poly(0.1, 0.0, steps=200, power=2.0)),
+        ("linear warmup, cosine", sw.warmup(sw.cosine(0.1, 0.0, steps=250), 50, start=0.001)),
+        ("one-cycle", sw.warmup(sw.cosine(0.1, 4e-7, steps=210), 89, start=0.004, curve="cosine")),
+    ])
+    def test_the_design_reads_as_written(self, torch, name, design):
+        """Fitted numbers are written short: the recovered design is the one a person would type (== exactly)."""
+        make, n, _ = TORCH_CASES[name]
+        assert recover(_live(torch, make, n)).design == design
+
     @pytest.mark.parametrize("name", list(TORCH_CASES))
     def test_float32_logging(self, torch, name):
         """The same rates logged as float32 come back to float32's precision (the tolerance it states, 1e-6)."""
