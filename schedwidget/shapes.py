@@ -8,7 +8,7 @@ factories at the bottom of this file.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import ClassVar, Sequence
 
 import numpy as np
@@ -141,6 +141,7 @@ class Drops(_Leaf):
                           doc="multiplier applied at each listed tick",
                           hint="a drop multiplies by a factor in (0, 1]")
     steps: int | None = _steps(optional=True)
+    _levels: np.ndarray = field(init=False, repr=False, compare=False)  # the rate after k drops, derived once
 
     def __post_init__(self) -> None:
         self._validate()
@@ -149,6 +150,11 @@ class Drops(_Leaf):
         if self.steps is not None and self.at[-1] >= self.steps:
             raise complain("drops", "at", self.at, f"ticks < steps = {self.steps}",
                            "a drop at or after the end never runs")
+        # The rate after 0, 1, ... drops, peak * factor ** k by the C library's pow, read by index: numpy's power
+        # answered a 0-d tick and an array of ticks one ulp apart (0.0010000000000000002 against 0.001 after two
+        # x0.1 drops from 0.1), so a scalar call and an array call disagreed.
+        levels = [self.peak * self.factor ** k for k in range(len(self.at) + 1)]
+        object.__setattr__(self, "_levels", np.array(levels, dtype=np.float64))
 
     def _source(self, w, u, bound, ind, sink):
         at = [float(a) for a in self.at]
@@ -162,7 +168,7 @@ class Drops(_Leaf):
 
     def _at(self, u):
         n = np.searchsorted(np.asarray(self.at, dtype=float), u, side="right")
-        return self.peak * np.power(self.factor, n)
+        return self._levels[n]
 
     def _edges(self, hi):
         at = np.asarray(self.at, dtype=float)

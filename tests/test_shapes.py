@@ -242,3 +242,14 @@ class TestEvaluationProtocol:
         out = s(np.arange(12).reshape(3, 4))
         assert out.dtype == np.float64 and out.shape == (3, 4)
         assert s(np.int32(3)) == s(3) and s(3.0) == s(3)
+
+
+def test_drops_scalar_and_array_agree_exactly():
+    """A step schedule has no formula to round differently: a tick read alone and inside an array give the same float
+    (numpy's power answered 0.0010000000000000002 for the 0-d tick and 0.001 for the array after two x0.1 drops)."""
+    s = drops(0.1, at=(30, 60, 80), factor=0.1, steps=90)
+    ticks = np.arange(0, 95)
+    together = s(ticks)
+    assert [s(int(t)) for t in ticks] == together.tolist()
+    # the level after k drops is peak * factor ** k with Python's (the C library's) pow
+    assert s(60) == 0.1 * 0.1 ** 2 and s(80) == 0.1 * 0.1 ** 3
