@@ -102,13 +102,15 @@ class CurvePanel(Panel, W.VBox):
                              animation_duration=0, padding_y=0.05,
                              fig_margin=CURVE_FIGURE[1], layout=W.Layout(**figure_layout(CURVE_FIGURE)))
         self.figure.add_class("sw-curve")
+        # the column's width exactly (width 100% plus the figure's own margin ran 2 px past the designer)
+        self.figure.layout.width = "auto"
         self.bands.on_hover(designer.guarded(self._band_hovered))
         # the rate axis's title sits above the axis (a title beside it would cross long tick labels)
         self.y_title = W.HTML("<span style=\"font-size:12px;color:#374151\">learning rate</span>",
                               layout={"margin": "0 0 -14px 8px"})
         self.y_title.add_class("sw-y-title")
-        # names of the lines: a compact legend beside the plot, never on the curves or outside the figure
-        self.legend = W.HTML("", layout={"max_width": "10em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
+        # names of the lines: a compact legend in a row above the plot, never on the curves or outside the figure
+        self.legend = W.HTML("", layout={"margin": "0 0 4px 8px"})
         self.legend.add_class("sw-legend")
         self.rate_axis = W.ToggleButtons(options=["linear", "log"], value="linear", description="rate axis",
                                          tooltip="linear or logarithmic rate axis",
@@ -131,9 +133,7 @@ class CurvePanel(Panel, W.VBox):
         self.ghost_traces = 0
         self._hover_x: float | None = None          # where the pointer was last (x-axis units)
         self._ends: dict[object, tuple] = {}        # "current" or slot -> (last x, last y, lowest y, highest y, name)
-        plot = W.HBox([self.figure, self.legend], layout={"width": "100%", "align_items": "flex-start"})
-        self.figure.layout.flex = "1 1 auto"
-        super().__init__([self.y_title, plot, W.HBox([self.rate_axis, self.x_choice],
+        super().__init__([self.legend, self.y_title, self.figure, W.HBox([self.rate_axis, self.x_choice],
                                                      layout={"flex_flow": "row wrap"}), self.hover_label])
         g = designer.guarded
         self.rate_axis.observe(g(self._axes_changed), names="value")
@@ -302,7 +302,7 @@ class CurvePanel(Panel, W.VBox):
         return min(e[2] for e in ends), max(e[3] for e in ends)
 
     def _legend(self) -> None:
-        """Name each line in the legend beside the plot (only when there are pins): swatch, name, last rate."""
+        """Name each line in the legend above the plot (only when there are pins): swatch, name, last rate."""
         keys = ["current", *range(len(self.ghosts))]
         if len(self._ends) <= 1:
             html = ""

@@ -93,11 +93,10 @@ class RescalePanel(Panel, W.VBox):
                              animation_duration=0, padding_y=0.05,
                              fig_margin=RESCALE_FIGURE[1], layout=W.Layout(**figure_layout(RESCALE_FIGURE)))
         self.figure.add_class("sw-rescale-figure")
-        # the lines' names in the same compact legend beside the plot as the designer's
-        self.legend = W.HTML("", layout={"max_width": "10em", "flex": "0 0 auto", "margin": "24px 0 0 0"})
+        # the lines' names in the same compact legend above the plot as the designer's
+        self.legend = W.HTML("", layout={"margin": "0 0 4px 0"})
         self.legend.add_class("sw-legend")
-        self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%", "flex": "1 1 auto"})
-        self.plot = W.HBox([self.figure_box, self.legend], layout={"width": "100%", "align_items": "flex-start"})
+        self.figure_box = W.Box([self.figure], layout={"min_height": "280px", "width": "100%"})
         self.y_title = W.HTML('<span style="font-size:12px;color:#374151">learning rate</span>')
         for w in (self.from_batch, self.batch, self.processes, self.rule, self.keep, self.x_axis):
             w.observe(g(lambda c: self.refresh()), names="value")
@@ -105,7 +104,7 @@ class RescalePanel(Panel, W.VBox):
         inputs = W.Box([W.VBox([self.from_batch, self.batch, self.processes], layout={"margin": "0 16px 0 0"}),
                         W.VBox([self.rule, self.keep, self.x_axis])], layout={"flex_flow": "row wrap"})
         super().__init__([inputs,
-                          self.y_title, self.plot, self.summary, W.HBox([self.apply_button]), self.message])
+                          self.legend, self.y_title, self.figure_box, self.summary, W.HBox([self.apply_button]), self.message])
         self.add_class("sw-rescale")
         self.listen(designer, tab, now=True)
 

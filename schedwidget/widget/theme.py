@@ -25,8 +25,8 @@ with warnings.catch_warnings():
 
 __all__ = ["CURVE", "GHOSTS", "JOIN", "METRIC", "AMBER", "ERROR_RED", "OK", "HOVER", "BORDER", "TOGGLE",
            "LABEL_SIZE", "CURVE_FIGURE", "REPLAY_FIGURE", "RESCALE_FIGURE", "figure_layout", "cell", "Tabs",
-           "rate", "rate_html", "number", "count", "epochs", "lines", "share", "pct", "tidy_html", "THIN", "RateAxes", "legend_html",
-           "nice_ceiling"]
+           "rate", "rate_html", "number", "count", "epochs", "lines", "share", "pct", "tidy_html", "THIN", "RateAxes",
+           "legend_html", "nice_ceiling"]
 
 METRIC = "#9ca3af"     # muted grey: a metric history on its own axis, the design before a rescale
 AMBER = "#b45309"      # cautions
@@ -308,12 +308,17 @@ class RateAxes:
 
 
 def legend_html(rows: list[tuple[str, str, float]]) -> str:
-    """A compact legend: one line per (colour, name, last rate), the colour as a short bar."""
+    """A compact legend in a row above the plot: (colour, name, last rate) per line, the colour as a short bar;
+    the row wraps between names and a name is never cut.
+
+    Beside the plot it took width from the figure when a pin arrived, and a bqplot figure does not lay itself
+    out again then: the plot's right end (the last ~13 % of the run) slid under the names.
+    """
     out = []
     for colour, name, last in rows:
-        out.append(f'<div class="sw-legend-item" style="display:flex;align-items:center;gap:6px;'
-                   f'font-size:12px;line-height:1.5;white-space:nowrap;overflow:hidden;text-overflow:ellipsis">'
+        out.append(f'<div class="sw-legend-item" style="display:flex;align-items:center;gap:6px;max-width:100%;'
+                   f'font-size:12px;line-height:1.35;overflow-wrap:anywhere">'
                    f'<span style="display:inline-block;width:18px;height:3px;background:{colour};flex:0 0 auto">'
                    f'</span><span title="{html.escape(name)} (last rate {rate(last)}, exactly {last!r})">'
                    f'{html.escape(name)}</span></div>')
-    return "".join(out)
+    return f'<div style="display:flex;flex-wrap:wrap;gap:2px 16px">{"".join(out)}</div>' if out else ""

@@ -188,7 +188,8 @@ LAYOUT_JS = """(sel) => {
         const need = canvas.measureText(text).width + parseFloat(cs.paddingLeft) + 18;  // 18 px: the arrow
         if (need > s.clientWidth + 1) out.push(`menu cut: '${text}' needs ${need.toFixed(0)} px, has ${s.clientWidth}`);
     }
-    for (const e of root.querySelectorAll('.widget-label, .widget-label-basic, label, button, .widget-html-content')) {
+    for (const e of root.querySelectorAll('.widget-label, .widget-label-basic, label, button, .widget-html-content, '
+                                          + '.sw-legend-item, .sw-legend-item span')) {
         if (!shown(e)) continue;
         if (e.scrollWidth > e.clientWidth + 1 && getComputedStyle(e).overflowX !== 'auto')
             out.push(`text cut: '${name(e)}' (${e.scrollWidth} > ${e.clientWidth} px)`);

@@ -128,6 +128,19 @@ class TestTourInJupyterLab:
         d.locator(".sw-legend-item", has_text=name).first.wait_for()
         assert len(info["ghosts"]) == ghosts + 1
         assert info["curve"]
+        # every name in the legend is whole (a long one wraps; the tour's 'drops at 30/60/80' was cut to '...8')
+        cut = clean.evaluate("""(sel) => [...document.querySelectorAll(sel + ' .sw-legend-item span')]
+            .filter(s => s.offsetWidth > 0 && (s.scrollWidth > s.clientWidth + 1 || s.scrollHeight > s.clientHeight + 1))
+            .map(s => s.textContent)""", DESIGNER)
+        assert not cut, cut
+        # and no name lies on the figure (beside it, names once covered the last ~13 % of the run)
+        hidden = clean.evaluate("""(sel) => {
+            const fig = document.querySelector(sel + ' .sw-curve').getBoundingClientRect();
+            return [...document.querySelectorAll(sel + ' .sw-legend-item')].map(e => e.getBoundingClientRect())
+                .filter(r => r.left < fig.right && fig.left < r.right && r.top < fig.bottom && fig.top < r.bottom)
+                .length;
+        }""", DESIGNER)
+        assert hidden == 0
         shot(clean, "lab-5-pin", d)
 
 

@@ -93,6 +93,7 @@ class TestPlotNeverMisleads:
                 for item in b["legend"]:
                     assert p[0] <= item[0] and item[2] <= p[2] and p[1] <= item[1] and item[3] <= p[3], (item, p)
                 for i, a in enumerate(b["legend"]):
+                    assert not overlaps(a, b["figure"]), ("a name lies on the plot", a, b["figure"])
                     for c in b["legend"][i + 1:]:
                         assert not overlaps(a, c), (a, c)
             shot(page, f"practitioner-labels-{peak}", d)
