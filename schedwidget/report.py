@@ -160,7 +160,7 @@ h1 { font-size: 22px; margin: 0 0 4px; } h2 { font-size: 15px; margin: 14px 0 6p
 .mark { background: #ecfdf5; border: 1px solid #99f6e4; padding: 1px 6px; border-radius: 4px; font-weight: 600; }
 .top, .tables { display: grid; grid-template-columns: 1.15fr 1fr; gap: 18px; align-items: start; }
 figure { margin: 0; } figure svg { width: 100%; height: auto; display: block; }
-.sentence { font-size: 15px; margin: 0 0 8px; } .cautions li { color: #b45309; } .none { color: #64748b; }
+.sentence { font-size: 15px; margin: 0 0 8px; } .cautions li { color: #b45309; } .cautions li.none { color: #64748b; }
 table { border-collapse: collapse; width: 100%; font-size: 13px; }
 th, td { text-align: left; padding: 2px 8px 2px 0; border-bottom: 1px solid #e5e7eb; vertical-align: top; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; font-family: ui-monospace, monospace; }
