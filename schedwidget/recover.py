@@ -25,7 +25,7 @@ import numpy as np
 from .combine import stages
 from .recover_shapes import FAMILIES
 from .recover_tidy import _tidy, node_count
-from .schedule import Schedule, ScheduleError, complain
+from .schedule import MAX_RATE, MAX_TICKS, Schedule, ScheduleError, complain
 from .shapes import flat, knots, ramp
 from .trace import as_trace
 
@@ -115,7 +115,16 @@ def recover(trace: Any, *, rtol: float | None = None, atol: float | None = None)
         rtol = 1e-6 if _float32_logged(r) else 1e-9
     rtol = _number("rtol", rtol, 0.0, 0.5)
     top = float(np.max(r))
+    if top > MAX_RATE:
+        i = int(np.argmax(r))
+        raise complain("recover", f"trace rates[{i}]", top, "a rate <= 1e100 (the highest rate a design may reach)",
+                       f"at tick {int(t[i])}; no learning rate comes near 1e100")
     atol = 1e-12 * top if atol is None else _number("atol", atol, 0.0, math.inf)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):  # inf/nan fail the fits
+        return _recover(t, r, rtol, atol)
+
+
+def _recover(t: np.ndarray, r: np.ndarray, rtol: float, atol: float) -> Recovery:
     walk = _Walk(t, r, rtol, atol)
     parts = walk.run()
     parts = _merge_weak(parts)
@@ -128,15 +137,16 @@ def recover(trace: Any, *, rtol: float | None = None, atol: float | None = None)
         pts = [(int(a), float(b)) for a, b in zip(t, r)]
         if pts[0][0] != 0:
             pts.insert(0, (0, pts[0][1]))
-        design, spans = knots(pts, interp="linear", steps=int(t[-1]) + 1), ((0, int(t[-1])),)
+        design, spans = knots(pts, interp="linear", steps=min(int(t[-1]) + 1, MAX_TICKS)), ((0, int(t[-1])),)
     err = _relative_error(compact, t, r, atol)
     return Recovery(design, compact, 0.0 if not spans else err, rtol, atol, spans, int(t.size))
 
 
 def _float32_logged(r: np.ndarray) -> bool:
     """Whether every rate is a float32 value and some are long decimals (0.10000000149011612, not 0.5 or 2**-14)."""
-    if not np.array_equal(r.astype(np.float32).astype(np.float64), r):
-        return False
+    with np.errstate(over="ignore"):  # a rate beyond float32's range is not a float32 log
+        if not np.array_equal(r.astype(np.float32).astype(np.float64), r):
+            return False
     sample = r[:: max(1, r.size // 1000)]
     return any(len(repr(float(x)).replace("-", "").replace(".", "").lstrip("0").split("e")[0]) > 12 for x in sample)
 
@@ -158,7 +168,7 @@ class _Walk:
 
     def __init__(self, t: np.ndarray, r: np.ndarray, rtol: float, atol: float) -> None:
         self.t, self.r, self.rtol, self.atol = t, r, rtol, atol
-        self.end = int(t[-1]) + 1
+        self.end = min(int(t[-1]) + 1, MAX_TICKS)  # a design's length stays <= 2**53; past it, it holds
         self.memo: dict[tuple[int, int], Any] = {}
         self.stages: list[int] = []
 

@@ -239,6 +239,17 @@ class TestBounds:
         with pytest.raises(ScheduleError, match=r"rates\[1\] must be a finite rate >= 0"):
             recover([0.1, -0.2])
 
+    def test_rates_beyond_any_design_are_refused_by_name(self):
+        """A logged rate above 1e100 cannot be a design's: recover says so, naming the rate and its tick."""
+        with pytest.raises(ScheduleError, match=r"recover: trace rates\[1\] must be a rate <= 1e100 .*got 1e\+300 "
+                                                r"\(at tick 1"):
+            recover([0.1, 1e300])
+
+    def test_ticks_up_to_2_to_the_53(self):
+        """A trace logged at tick 2**53 comes back (the design's length stops at 2**53 and holds)."""
+        rec = recover([(0, 0.1), (2 ** 53, 0.2)])
+        assert rec.design.length <= 2 ** 53 and rec.design(2 ** 53) == pytest.approx(0.2, rel=EXACT)
+
     def test_a_long_noisy_trace_ends_in_bounded_time(self):
         """100,000 random rates (nothing fits): a result, generously under 60 s (hang guard, not a benchmark)."""
         r = np.random.default_rng(1).uniform(0.01, 0.1, 100_000)
