@@ -34,7 +34,7 @@ __all__ = [
     "tracks", "Tracks", "per_group", "GroupDesigns", "inverse_momentum", "tracks_from_spec", "load_tracks",
     # loaded on first use (below): the clock, the tracks' readouts and exports, reading logs back
     "TrackClock", "to_torch_tracks", "track_facts", "tracks_sentence", "tracks_svg", "decay_per_step",
-    "read_trace", "read_traces", "Trace", "check_run", "Verdict", "recover", "Recovery",
+    "read_trace", "read_traces", "Trace", "check_run", "Verdict", "FAULTS", "recover", "Recovery",
     "read_range_test", "RangeReading", "run_range_test", "RangeRun", "sweep_rates",
 ]
 
@@ -44,7 +44,7 @@ _LATER = {
     "track_facts": "track_readouts", "tracks_sentence": "track_readouts", "tracks_svg": "track_readouts",
     "decay_per_step": "track_readouts",
     "read_trace": "trace", "read_traces": "trace", "Trace": "trace",
-    "check_run": "check_run", "Verdict": "check_run", "recover": "recover", "Recovery": "recover",
+    "check_run": "check_run", "Verdict": "check_run", "FAULTS": "check_run", "recover": "recover", "Recovery": "recover",
     "read_range_test": "range_test", "RangeReading": "range_test",
     "run_range_test": "range_run", "RangeRun": "range_run", "sweep_rates": "range_run",
 }
