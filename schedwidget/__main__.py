@@ -1,7 +1,7 @@
 """Command line over spec files: show, export, check, schema.
 
     python -m schedwidget show SPEC.json
-    python -m schedwidget export SPEC.json --to python|torch [--name NAME] [--base-lr X] [-o FILE]
+    python -m schedwidget export SPEC.json --to python|numpy|jax|keras|torch [--name NAME] [--base-lr X] [-o FILE]
     python -m schedwidget check SPEC.json [--steps N]
     python -m schedwidget schema
 
@@ -79,8 +79,12 @@ def _parser() -> argparse.ArgumentParser:
                                     "per-group designs gives one function per track and group, and a snippet "
                                     "whose clock sets each group's lr and tracked keys (no --base-lr).")
     ex.add_argument("spec", metavar="SPEC.json")
-    ex.add_argument("--to", required=True, choices=("python", "torch"), help="what to write")
-    ex.add_argument("--name", default="lr_at", help="name of the generated function (default: lr_at)")
+    ex.add_argument("--to", required=True, choices=EXPORT_TARGETS,
+                    help="what to write: python (stdlib function), numpy (the same on integer arrays, "
+                         "branch-free), jax (jax.jit-traceable, an optax schedule), keras (a Keras 3 "
+                         "LearningRateSchedule class) or torch (a ready snippet)")
+    ex.add_argument("--name", default=None,
+                    help="name of the generated function (default: lr_at) or Keras class (default: ExportedSchedule)")
     ex.add_argument("--base-lr", type=float, default=None, metavar="X",
                     help="torch: the optimizer's lr for every param group (default: the design's peak; "
                          "not for tracks, whose rates are absolute)")
@@ -243,7 +247,15 @@ def _run(args: argparse.Namespace) -> int:
         return 0
     from .export import to_python, to_torch
 
-    if args.to == "python":
+    args.name = args.name if args.name is not None else ("ExportedSchedule" if args.to == "keras" else "lr_at")
+    if args.to in ("numpy", "jax", "keras"):
+        if d.tracks is not None:
+            raise ScheduleError(f"export: --to {args.to} writes one schedule, got a spec of tracks or per-group "
+                                "designs; export them with --to python or --to torch")
+        if args.steps is not None:
+            _check_steps(d, args.steps, "export")
+        text = _array_export(args.to, s, args.name, unit, spe)
+    elif args.to == "python":
         if args.steps is not None:
             _check_steps(d, args.steps, "export")
         text = to_python(s if d.tracks is None else d.tracks, name=args.name, unit=unit, steps_per_epoch=spe)
@@ -266,6 +278,25 @@ def _run(args: argparse.Namespace) -> int:
                         steps_per_epoch=spe)
     _write(text, args.output)
     return 0
+
+
+#: What ``export --to`` writes.
+EXPORT_TARGETS = ("python", "numpy", "jax", "keras", "torch")
+
+
+def _array_export(to: str, s, name: str, unit: str, spe) -> str:
+    """numpy, JAX or Keras source of one design (the text only: none of them is imported)."""
+    if to == "numpy":
+        from .export import to_python
+
+        return to_python(s, name=name, unit=unit, steps_per_epoch=spe, array=True)
+    if to == "jax":
+        from .export_jax import to_jax
+
+        return to_jax(s, name=name, unit=unit, steps_per_epoch=spe)
+    from .export_keras import to_keras
+
+    return to_keras(s, name=name, unit=unit, steps_per_epoch=spe)
 
 
 def _say(line: str) -> None:

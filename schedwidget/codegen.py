@@ -89,6 +89,9 @@ Sink = Callable[[str], str]
 class _Writer:
     """Writes the body of the generated function, one node at a time."""
 
+    #: Most restart cycles a node writes as a table (later cycles: a loop, which branch-free code cannot have).
+    cycle_table_max = CYCLE_TABLE_MAX
+
     def __init__(self) -> None:
         self.lines: list[str] = []
         self.count: dict[str, int] = {}
@@ -252,14 +255,19 @@ def _subject(what: object) -> tuple[str, str]:
     return SUBJECTS[what]
 
 
-def _describe(s: Schedule, unit: str, spe: int | None, what: str = "rate") -> list[str]:
-    """The generated function's docstring, line by line, for the schedule of ``what`` (a ``SUBJECTS`` key)."""
+def _describe(s: Schedule, unit: str, spe: int | None, what: str = "rate", per: str | None = None,
+              title: str | None = None) -> list[str]:
+    """The generated function's docstring, line by line, for the schedule of ``what`` (a ``SUBJECTS`` key).
+
+    ``per`` replaces the words on what one tick is (torch's ``scheduler.step()`` by default) and ``title`` the
+    first line, for exports that run in other training loops.
+    """
     head, word = _subject(what)
     n = s.length
     # an open-ended design is described over twice its longest part (at most 2**53 ticks, the longest clock)
     span = n if n is not None else min(MAX_TICKS, max([10_000] + [2 * c.length for c in s.walk() if c.length is not None]))
     peak, peak_at, exact = _peak(s, span)
-    per = ("one tick is one optimizer update: call scheduler.step() after every optimizer.step()"
+    per = per or ("one tick is one optimizer update: call scheduler.step() after every optimizer.step()"
            if unit == "step" else "one tick is one epoch: call scheduler.step() once after each epoch")
     ep = f" ({n / spe:g} epochs of {spe:,} steps)" if spe and unit == "step" and n is not None else ""
     first = "the first update" if unit == "step" else "the first epoch"
@@ -273,7 +281,7 @@ def _describe(s: Schedule, unit: str, spe: int | None, what: str = "rate") -> li
                      "counts from the start of the run."]
     else:
         warm_line = [f"Warmup: {warm[1]:,.0f} {unit}s before the schedule, whose own ticks start after it."]
-    lines = [f"{head} at tick t (an int >= 0; t = 0 is {first}).", "",
+    lines = [title or f"{head} at tick t (an int >= 0; t = 0 is {first}).", "",
              f"Unit: {unit} ({per}).",
              f"Budget: {n:,} {unit}s{ep}." if n is not None else "Budget: open-ended (no planned length).",
              *warm_line,

@@ -51,7 +51,8 @@ def _spe(owner: str, spe: Any) -> int | None:
     return spe
 
 
-def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_epoch: int | None = None) -> str:
+def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_epoch: int | None = None,
+              array: bool = False) -> str:
     """Source of one function ``name(t)`` equal to ``s(t)``, needing only the standard library.
 
     The text starts with its imports (``math``, and ``bisect`` when a long
@@ -65,6 +66,9 @@ def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_ep
     name : the function's name: a plain ASCII identifier, not a keyword, dunder or builtin.
     unit : "step" or "epoch", the unit of the clock (stated in the docstring).
     steps_per_epoch : adds the budget in epochs to the docstring (unit "step").
+    array : True for numpy source instead: ``name(t)`` takes an int or an integer array of ticks and is
+        branch-free (every piece computed, ``np.where`` picks), equal to ``s(t)`` bit for bit (one schedule
+        only, not tracks).
 
     Examples
     --------
@@ -74,6 +78,16 @@ def to_python(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_ep
     >>> namespace["lr_at"](5_750)
     0.1
     """
+    if not isinstance(array, bool):
+        raise complain("to_python", "array", _brief(array), "True or False")
+    if array:
+        if _tracked(s):
+            raise complain("to_python", "array", True, "False for tracks or per-group designs",
+                           "the array form writes one schedule: export each track's design on its own")
+        _schedule("to_python", s)
+        from .export_array import array_source
+
+        return array_source(s, name, _unit("to_python", unit), _spe("to_python", steps_per_epoch))
     if _tracked(s):
         return _track_functions("to_python", s, name, _unit("to_python", unit),
                                 _spe("to_python", steps_per_epoch))[0]

@@ -8,7 +8,7 @@ from typing import ClassVar
 
 import numpy as np
 
-from .codegen import CYCLE_TABLE_MAX, num
+from .codegen import num
 from .leaf import node
 from .schedule import EDGE_CAP, MAX_TICKS, Schedule, complain, param
 from .stages import _cap, _schedule
@@ -146,7 +146,7 @@ class Restarts(Schedule):
         total = math.inf if self.length is None else float(self.length)
         if self.growth > 1.0:
             starts, lens = self._table(min(bound if bound is not None else 64.0 * L, total))
-            starts, lens = starts[:CYCLE_TABLE_MAX], lens[:CYCLE_TABLE_MAX]
+            starts, lens = starts[:w.cycle_table_max], lens[:w.cycle_table_max]
         else:
             starts, lens = self._table(0.0)
         n, end = len(starts), float(starts[-1] + lens[-1])
