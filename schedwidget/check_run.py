@@ -130,7 +130,7 @@ class Verdict:
             "other": lambda: "None of the known faults explains the whole trace.",
         }[self.fault or "other"]()
         also = f" The trace is explained as well by: {', '.join(self.also)}." if self.also else ""
-        return (f"{head} {why} {self.share:.1%} of the {self.points:,} logged updates are affected "
+        return (f"{head} {why} {100 * self.share:.1f} % of the {self.points:,} logged updates are affected "
                 f"(compared to {tol}).{also}")
 
 
