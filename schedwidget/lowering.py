@@ -32,15 +32,15 @@ class Target:
 
     m: str
     table: str  # a tuple of floats -> an array of the clock's float type
-    abs: str = "abs"
+    exact_div: bool = False  # XLA: divide by a runtime value, never by a constant (see _Expr.visit_BinOp)
 
     def call(self, op: str) -> str:
         return f"{self.m}.{op}"
 
 
 NUMPY = Target("np", "np.asarray")
-JAX = Target("jnp", "jnp.asarray")
-KERAS = Target("ops", "ops.convert_to_tensor")
+JAX = Target("jnp", "jnp.asarray", exact_div=True)
+KERAS = Target("ops", "ops.convert_to_tensor", exact_div=True)
 
 _MATH = {"floor", "cos", "exp", "sqrt", "log"}
 _BUILTINS = {"max": "maximum", "min": "minimum", "abs": "abs"}
@@ -60,8 +60,18 @@ class _ArrayWriter(_Writer):
 class _Expr(ast.NodeTransformer):
     """Rewrites one scalar expression for arrays, reading renamed variables through ``env``."""
 
-    def __init__(self, target: Target, env: dict[str, str], sizes: dict[str, int]) -> None:
-        self.t, self.env, self.sizes = target, env, sizes
+    def __init__(self, target: Target, env: dict[str, str], sizes: dict[str, int], clock: str) -> None:
+        self.t, self.env, self.sizes, self.clock = target, env, sizes, clock
+
+    def visit_BinOp(self, node: ast.BinOp) -> ast.expr:
+        node = self.generic_visit(node)  # type: ignore[assignment]
+        if self.t.exact_div and isinstance(node.op, ast.Div) and isinstance(node.right, ast.Constant):
+            # XLA turns x / c into x * (1 / c): u / 33.0 at u = 33 came out 1.0000000000000002, and a poly's
+            # (1 - u / 33) ** 0.9 nan at its end.  A divisor XLA cannot fold (u * 0.0 + c is c exactly for
+            # every finite clock) keeps the correctly rounded division the core does.
+            zero = ast.BinOp(ast.Name(self.clock, ast.Load()), ast.Mult(), ast.Constant(0.0))
+            node.right = ast.BinOp(zero, ast.Add(), node.right)
+        return node
 
     def _fn(self, name: str) -> ast.expr:
         return ast.parse(self.t.call(name), mode="eval").body
@@ -113,8 +123,8 @@ class _Lowering:
 
     RESULT = "rate"  # the value a ``return`` hands back (a local name: the scalar body never uses it)
 
-    def __init__(self, target: Target) -> None:
-        self.t = target
+    def __init__(self, target: Target, clock: str) -> None:
+        self.t, self.clock = target, clock
         self.lines: list[str] = []
         self.used: dict[str, int] = {}
         self.sizes: dict[str, int] = {}  # table name -> entries
@@ -127,7 +137,7 @@ class _Lowering:
         return new
 
     def expr(self, node: ast.expr, env: dict[str, str]) -> str:
-        return ast.unparse(_Expr(self.t, env, self.sizes).visit(node))
+        return ast.unparse(_Expr(self.t, env, self.sizes, self.clock).visit(node))
 
     def table(self, name: str, values: list[float]) -> str:
         self.sizes[name] = len(values)
@@ -182,7 +192,7 @@ def lower(s: Schedule, target: Target, clock: str = "u") -> tuple[list[str], str
     w.emit(s, clock, float(MAX_TICKS) if n is None else float(n), 1, lambda e: f"return {e}")
     tree = ast.parse("def f():\n" + "\n".join(w.lines) + "\n")
     body = tree.body[0].body  # type: ignore[attr-defined]
-    low = _Lowering(target)
+    low = _Lowering(target, clock)
     low.used[clock] = 1
     env = low.block(body, {})
     return low.lines, env[_Lowering.RESULT]
