@@ -172,11 +172,11 @@ footer { color: #64748b; font-size: 12px; margin-top: 12px; }
 @media print {
   body { max-width: none; padding: 0; font-size: 7.5pt; line-height: 1.25; }
   h1 { font-size: 12pt; } h2 { font-size: 8pt; margin: 5px 0 2px; } .sentence { font-size: 8pt; }
-  .top, .tables { gap: 10px; } table { font-size: 6.5pt; } th, td { padding: 0 5px 0 0; }
-  figure svg { max-height: 62mm; }
+  .top, .tables { gap: 10px; } table { font-size: 6pt; line-height: 1.15; } th, td { padding: 0 5px 0 0; }
+  figure svg { max-height: 56mm; }
   .code { display: block; column-count: 3; column-gap: 8px; }
   .code > div { break-inside: auto; } .code h2 { break-after: avoid; break-inside: avoid; }
-  pre { font-size: 5pt; line-height: 1.12; padding: 3px; border: none; background: none; overflow: visible; }
+  pre { font-size: 4.7pt; line-height: 1.1; padding: 3px; border: none; background: none; overflow: visible; }
   footer { font-size: 6pt; margin-top: 4px; }
 }
 """
