@@ -74,7 +74,10 @@ class TestCheckARun:
         """Without a design the trace is only recovered, and the recovered design is drawn."""
         p = LogsPanel(None, traces=DESIGN(TICKS))
         assert p.verdict is None and "No design to check" in p.verdict_text.value
+        assert p.recovery is None and not p.design_line.visible
+        p.recover_button.click()
         assert p.recovery == recover(DESIGN(TICKS)) and p.design_line.visible
+        assert "the recovered design" in p.legend.value
 
     def test_steps_per_epoch_is_passed_on(self):
         """A given epoch length reaches check_run (the evidence names it)."""
@@ -100,11 +103,16 @@ class TestAdopt:
         old = sw.warmup(sw.restarts(sw.cosine(0.1, 0.001, steps=60), cycles=3, growth=2.0), 20)
         trace = old(np.arange(old.length))
         p = LogsPanel(DESIGN, traces={"old run": trace}, on_adopt=got.append)
-        assert p.adopted is None and not p.use_recovered.disabled
+        assert p.adopted is None and p.use_recovered.disabled and p.recovery is None
+        p.recover_button.click()
+        assert not p.use_recovered.disabled
         p.use_recovered.click()
         assert p.adopted == recover(trace).design == old
         assert got == [old]
         assert "a design of 3 node(s)" in p.recovery_text.value
+        p.pick.value = "none"
+        p.use_trace(PER_EPOCH, "another run")  # a new trace: its design is not recovered yet
+        assert p.recovery is None and p.use_recovered.disabled and p.adopted == old
 
     def test_use_the_suggested_peak(self):
         """The published and the common-practice readings each give the reading's own starting design."""
@@ -128,6 +136,7 @@ class TestAdopt:
         def fails(_s):
             raise RuntimeError("boom")
         p = LogsPanel(DESIGN, traces=PER_EPOCH, on_adopt=fails)
+        p.recover_button.click()
         p.use_recovered.click()
         assert p.adopted == p.recovery.design
         assert "RuntimeError: boom" in p.trace_message.value
@@ -190,6 +199,7 @@ class TestClose:
         p.pick.value = "b"
         p.rate_axis.value = "log"
         p.upload.value = upload(b"step,lr\n0,0.1\n1,oops\n", "bad.csv")
+        p.recover_button.click()
         p.use_recovered.click()
         p.use_peak.click()
         assert len(_instances) > before + 50

@@ -35,7 +35,7 @@ with warnings.catch_warnings():
 from ..check_run import Verdict, check_run
 from ..metrics import MAX_METRIC_BYTES
 from ..range_test import RangeReading, read_range_test
-from ..recover import Recovery, node_count, recover
+from ..recover import Recovery, node_count, recover as recover_design
 from ..sample import trace as curve_points
 from ..schedule import Schedule, complain
 from ..trace import Trace, read_trace
@@ -158,6 +158,9 @@ class LogsPanel(W.VBox):
         self.trace_message = W.HTML("", style={"text_color": ERROR_RED})
         self.verdict_text = W.HTML("")
         self.recovery_text = W.HTML("")
+        self.recover_button = W.Button(description="recover its design", disabled=True,
+                                       tooltip="fit a compact design of our shapes to this trace",
+                                       layout={"width": "auto"})
         self.use_recovered = W.Button(description="use the recovered design", disabled=True,
                                       tooltip="make the design recovered from this trace the designer's design",
                                       layout={"width": "auto"})
@@ -218,7 +221,8 @@ class LogsPanel(W.VBox):
         super().__init__([
             W.HTML(HEAD.format("Check a run and recover its design")),
             W.HBox([self.pick, self.upload, self.column], layout=wrap), self.trace_message, self.verdict_text,
-            self.legend, self.figure, self.rate_axis, self.recovery_text, self.use_recovered,
+            self.legend, self.figure, self.rate_axis, self.recovery_text,
+            W.HBox([self.recover_button, self.use_recovered], layout=wrap),
             W.HTML(HEAD.format("Choose a peak from a range test")),
             W.HBox([self.range_pick, self.range_upload], layout=wrap), self.range_message, self.reading_text,
             self.range_figure, W.HBox([self.reading_choice, self.shape_choice, self.steps_box], layout=wrap),
@@ -232,6 +236,7 @@ class LogsPanel(W.VBox):
         self.upload.observe(g(lambda _c: self._upload_trace(), self._trace_say), names="value")
         self.column.observe(g(lambda _c: self._pick_trace(), self._trace_say), names="value")
         self.rate_axis.observe(g(lambda _c: self._draw_trace(), self._trace_say), names="value")
+        self.recover_button.on_click(g(lambda _b: self.recover(), self._trace_say))
         self.use_recovered.on_click(g(lambda _b: self._adopt(self.recovery.design), self._trace_say))
         self.range_pick.observe(g(lambda _c: self._pick_range(), self._range_say), names="value")
         self.range_upload.observe(g(lambda _c: self._upload_range(), self._range_say), names="value")
@@ -274,7 +279,12 @@ class LogsPanel(W.VBox):
         """Read ``source`` (anything ``read_trace`` reads) as the trace, check it and recover its design."""
         column = self.column.value.strip() or None
         tr = read_trace(source, column) if not isinstance(source, Trace) else source
-        self.trace, self.trace_name = tr, name
+        self.trace, self.trace_name, self.recovery = tr, name, None
+        self.use_recovered.disabled = True
+        self._set(self.recovery_text, lines(tidy_html(
+            f"{name}: {len(tr):,} logged points. Recovering its design fits our shapes to it (a long trace logged "
+            "every k ticks can take a while).")))
+        self.recover_button.disabled = False
         self._check()
 
     def _pick_trace(self) -> None:
@@ -308,18 +318,27 @@ class LogsPanel(W.VBox):
         if tr is None:
             return
         verdict = check_run(self.design, tr, steps_per_epoch=self.steps_per_epoch) if self.design is not None else None
-        recovery = recover(tr)
-        self.verdict, self.recovery = verdict, recovery
+        self.verdict = verdict
         if verdict is None:
-            words = "No design to check the trace against: only its recovered design is shown."
+            words = "No design to check the trace against: recover its design, or give the panel one."
         else:
             code = "matches" if verdict.matches else verdict.fault
             words = f"<b>{html.escape(str(code))}</b>: " + tidy_html(str(verdict))
         self._set(self.verdict_text, lines(words))
-        self._set(self.recovery_text, lines(_recovery_words(recovery, self.trace_name)))
+        self._draw_trace()
+        self._trace_say("")
+
+    def recover(self) -> Recovery | None:
+        """Recover the trace's design (what "recover its design" does); shown, drawn when there is no design,
+        and ready for "use the recovered design"."""
+        if self.trace is None:
+            return None
+        self.recovery = recover_design(self.trace)
+        self._set(self.recovery_text, lines(_recovery_words(self.recovery, self.trace_name)))
         self.use_recovered.disabled = False
         self._draw_trace()
         self._trace_say("")
+        return self.recovery
 
     def _draw_trace(self) -> None:
         tr = self.trace
