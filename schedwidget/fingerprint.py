@@ -19,7 +19,7 @@ from typing import Any
 
 from .schedule import complain
 
-__all__ = ["fingerprint", "canonical", "DIGITS"]
+__all__ = ["fingerprint", "canonical", "docstring_lines", "DIGITS"]
 
 #: Hex digits kept: 48 bits, enough to tell designs apart by eye in a review.
 DIGITS = 12
@@ -60,3 +60,22 @@ def fingerprint(design: Any, unit: str | None = None) -> str:
     False
     """
     return hashlib.sha256(canonical(design, unit).encode("ascii")).hexdigest()[:DIGITS]
+
+
+def docstring_lines(design: Any, unit: str | None = None) -> list[str]:
+    """The lines an exported function's docstring ends with: a blank line and the fingerprint, or none.
+
+    A design no spec file can hold (deeper than ``spec.MAX_DEPTH``, more than ``spec.MAX_NODES`` schedules)
+    has no canonical spec and so no fingerprint: its export is written without the line, never refused.
+
+    >>> from schedwidget import cosine
+    >>> docstring_lines(cosine(0.1, steps=100))[1].startswith("Fingerprint: ")
+    True
+    """
+    from .schedule import ScheduleError
+
+    try:
+        mark = fingerprint(design, unit)
+    except ScheduleError:
+        return []
+    return ["", f"Fingerprint: {mark} (SHA-256 of the design's canonical spec, as its design report shows it)."]

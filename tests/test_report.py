@@ -195,6 +195,21 @@ class TestFingerprint:
         assert len(seen) == len(found)
 
 
+    def test_docstring_lines(self, design):
+        """The lines for an exported docstring carry the same fingerprint; a design no spec can hold gets none."""
+        from schedwidget.fingerprint import docstring_lines
+        from schedwidget.spec import MAX_DEPTH
+
+        assert docstring_lines(design.schedule) == ["", f"Fingerprint: {fingerprint(design)} (SHA-256 of the "
+                                                    "design's canonical spec, as its design report shows it)."]
+        deep = cosine(0.1, steps=10)
+        for _ in range(MAX_DEPTH + 2):
+            deep = deep * 1.0
+        with pytest.raises(ScheduleError, match="to_spec"):
+            fingerprint(deep)
+        assert docstring_lines(deep) == []
+
+
 class TestHtmlSafety:
     """The HTML is one file: no script element, no external reference."""
 
