@@ -407,3 +407,47 @@ class TestTrackSpecs:
         assert "groups must be None when a design is given per group" in err
         err = one_line_error(capsys, ["export", gpath, "--to", "torch", "--steps", "90"])
         assert "got 90" in err
+
+
+class TestExportArrayJaxKeras:
+    """export --to numpy|jax|keras (issue 17): the text of each, for one schedule; tracks are refused."""
+
+    def test_numpy_to_stdout(self, capsys):
+        """The printed numpy function takes an array of ticks and equals the design bit for bit."""
+        assert main(["export", COSINE, "--to", "numpy", "--name", "flake_rate"]) == 0
+        ns = {}
+        exec(capsys.readouterr().out, ns)
+        t = np.arange(0, 103_600, 7)
+        np.testing.assert_array_equal(ns["flake_rate"](t), DEMO(t))
+
+    def test_jax_text(self, capsys):
+        """The JAX text imports jax.numpy only and names the function (jax itself: tests/test_export_jax.py)."""
+        assert main(["export", COSINE, "--to", "jax", "--steps", "103500"]) == 0
+        out = capsys.readouterr().out
+        assert out.startswith("import jax.numpy as jnp\n") and "def lr_at(step):" in out and "jnp.where(" in out
+
+    def test_keras_text_to_file(self, tmp_path, capsys):
+        """The Keras class lands in the file; its default name is ExportedSchedule, --name renames it."""
+        target = tmp_path / "schedule_keras.py"
+        assert main(["export", EPOCHS, "--to", "keras", "-o", str(target)]) == 0
+        assert capsys.readouterr().out == ""
+        assert "class ExportedSchedule(keras.optimizers.schedules.LearningRateSchedule):" in target.read_text()
+        assert main(["export", EPOCHS, "--to", "keras", "--name", "FlakeRate", "-o", str(target)]) == 0
+        assert "class FlakeRate(" in target.read_text() and "Unit: epoch" in target.read_text()
+
+    @pytest.mark.parametrize("to", ["numpy", "jax", "keras"])
+    def test_bad_name_and_budget(self, capsys, to):
+        """A name that is not an identifier, or a budget of another length, is one line with exit code 1."""
+        assert "name must be a plain Python identifier" in one_line_error(
+            capsys, ["export", COSINE, "--to", to, "--name", "x; import os"])
+        assert "length of 103,500 steps, got 12,870 steps" in one_line_error(
+            capsys, ["export", COSINE, "--to", to, "--steps", "12870"])
+
+    @pytest.mark.parametrize("to", ["numpy", "jax", "keras"])
+    def test_tracks_are_refused(self, tmp_path, capsys, to):
+        """A spec of tracks has several schedules: one line says to use python or torch."""
+        from schedwidget import flat, tracks
+
+        path = tmp_path / "tracks.json"
+        save(tracks(DEMO, momentum=flat(0.9)), path)
+        assert f"--to {to} writes one schedule" in one_line_error(capsys, ["export", str(path), "--to", to])
