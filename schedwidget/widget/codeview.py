@@ -132,7 +132,7 @@ class ExportPanel(Panel, W.VBox):
         self.language = W.ToggleButtons(options=[(words, value) for words, value, _, _ in TARGETS],
                                         value="Python", description="code",
                                         tooltips=[what for _, _, _, what in TARGETS],
-                                        style={"button_width": "9.5em", "description_width": "3em"},
+                                        style={"button_width": "11em", "description_width": "3em"},
                                         layout=dict(TOGGLE))
         self.language.add_class("sw-export-target")
         self.base = Entry(description="base rate", placeholder="the peak", continuous_update=False,
