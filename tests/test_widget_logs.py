@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime
+import warnings
 
 import numpy as np
 import pytest
@@ -84,6 +85,15 @@ class TestCheckARun:
         p = LogsPanel(DESIGN, traces=PER_EPOCH, steps_per_epoch=STEPS_PER_EPOCH)
         assert p.verdict == check_run(DESIGN, PER_EPOCH, steps_per_epoch=STEPS_PER_EPOCH)
 
+    def test_a_dataframe_and_a_trace(self):
+        """A DataFrame with a tick column (logged every 4 updates) and a Trace are picked by name."""
+        pd = pytest.importorskip("pandas")
+        frame = pd.DataFrame({"global_step": TICKS[::4], "lr": PER_EPOCH[::4], "loss": 0.5})
+        p = LogsPanel(DESIGN, traces={"frame": frame, "trace": read_trace(DESIGN(TICKS))})
+        assert p.trace == read_trace(frame) and p.verdict.fault == "per_epoch" and p.verdict.first_tick == 4
+        p.pick.value = "trace"
+        assert p.verdict.matches and "logged: trace" in p.legend.value
+
     def test_long_traces_are_drawn_bounded(self):
         """A trace of 103,500 points is drawn from at most MAX_DRAWN points that keep its lowest and highest."""
         d = sw.warmup(sw.cosine(0.1, 0.0, steps=97_750), 5_750)
@@ -153,6 +163,23 @@ class TestFiles:
         p.upload.value = upload(content, "run7.csv")
         assert p.trace == read_trace(content) and p.verdict.fault == "per_epoch"
         assert "logged: run7.csv" in p.legend.value
+
+    def test_upload_a_tensorboard_event_file(self, torch, tmp_path):
+        """An event file written by torch's SummaryWriter, uploaded as bytes, is read by tensorboard's reader."""
+        pytest.importorskip("tensorboard")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DeprecationWarning)  # tensorboard's own imports, not ours
+            from torch.utils.tensorboard import SummaryWriter
+        writer = SummaryWriter(str(tmp_path))
+        for t, lr in enumerate(PER_EPOCH.tolist()):
+            writer.add_scalar("train/lr", lr, t)
+        writer.close()
+        (path,) = tmp_path.glob("*tfevents*")
+        p = LogsPanel(DESIGN)
+        assert "event file" in p.upload.description and p.upload.accept == ""
+        p.upload.value = upload(path.read_bytes(), path.name)
+        assert p.error == "" and p.verdict.fault == "per_epoch" and len(p.trace) == PER_EPOCH.size
+        assert np.allclose(p.trace.rates, PER_EPOCH.astype(np.float32), rtol=0, atol=0)  # float32 in the file
 
     def test_a_bad_csv_shows_the_error(self):
         """A cell that is not a number: read_trace's message on screen, the last verdict kept."""
