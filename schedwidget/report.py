@@ -4,7 +4,8 @@ It holds the picture (compared designs as grey ghosts), the plain sentence, the 
 sides of every join, the cautions, the exported code (stdlib Python and the torch snippet), the spec itself
 and a fingerprint of the design (``schedwidget.fingerprint``), so a reviewer can tell that the code in a
 pull request is the reported design.  No script and no external reference: the HTML prints to one page
-for a design of a few stages; the Markdown shows the picture as an embedded (data: URI) image.
+for a design of a few stages; the Markdown shows the picture as an embedded (data: URI) image.  Tracks and
+per-group designs get every track's picture and sentence, and each group's rate its numbers and join table.
 
     python -m schedwidget report SPEC.json [--compare OTHER.json ...] -o design.html|design.md
 """
@@ -40,30 +41,34 @@ class _Parts:
     """Everything a report shows, computed once for both forms."""
 
     title: str
-    s: Schedule
+    what: str
     unit: str
     spe: int | None
-    facts: Facts
+    #: each rate's facts: ("", facts) for one design; (group name or index, facts) per group of tracks
+    rates: list[tuple[str, Facts]]
+    sentence: str
+    cautions: list[str]
     print_: str
     svg: str
     python: str
     torch: str
-    base_lr: float
     base_said: str
     spec: str
     mark: str
     compared: list[tuple[str, Schedule, Facts, str]]
 
 
-def _design(owner: str, name: str, d: Any) -> Design:
+def _design(owner: str, name: str, d: Any, tracked: bool = False) -> Design:
+    from .tracks import GroupDesigns, Tracks
+
     if isinstance(d, Schedule):
         return Design(d)
-    if isinstance(d, Design):
-        if d.tracks is not None:
-            raise complain(owner, name, "tracks or per-group designs", "one schedule (a Schedule or a Design of one)",
-                           "show tracks with 'python -m schedwidget show'; report their rate alone with d.schedule")
+    if isinstance(d, Design) and (d.tracks is None or tracked):
         return d
-    raise complain(owner, name, type(d).__name__, "a Schedule or a Design (from load_design)")
+    if tracked and isinstance(d, (Tracks, GroupDesigns)):
+        return Design(d.rate if isinstance(d, Tracks) else d.groups[0].rate, "step", None, d)
+    allowed = "a Schedule, tracks(...), per_group(...) or a Design" if tracked else "a Schedule or a Design of one"
+    raise complain(owner, name, type(d).__name__, allowed)
 
 
 def _compared(unit: str, compare: Any) -> list[tuple[str, Schedule]]:
@@ -98,48 +103,81 @@ def _form(path: str | None, form: str | None) -> str:
 
 
 def _parts(design, steps, steps_per_epoch, batch, compare, unit, base_lr, title, log, name) -> _Parts:
-    d = _design("report", "design", design)
+    d = _design("report", "design", design, tracked=True)
     if unit is not None and unit != d.unit and isinstance(design, Design):
         raise complain("report", "unit", unit, f"None or the design's own unit {d.unit!r}")
     unit = unit if unit is not None else d.unit
     spe = steps_per_epoch if steps_per_epoch is not None else d.steps_per_epoch
     spe = spe if unit == "step" else None
-    s = d.schedule
-    n = steps if steps is not None else (s.length if s.length is not None else default_window(s))
-    f = facts(s, steps=n, steps_per_epoch=spe, unit=unit, batch=batch)
     head = HEADING if title is None else title
     if not isinstance(head, str) or not head.strip() or len(head) > 120 or "\n" in head:
         raise complain("report", "title", title, "one line of text, 1 to 120 characters")
+    if d.tracks is not None:
+        return _tracked(d, head.strip(), steps, spe, batch, compare, unit, base_lr, name)
+    s = d.schedule
+    n = steps if steps is not None else (s.length if s.length is not None else default_window(s))
+    f = facts(s, steps=n, steps_per_epoch=spe, unit=unit, batch=batch)
     ghosts = _compared(unit, compare)
     svg = render_svg(s, steps=f.steps, log=log, unit=unit, steps_per_epoch=spe, ghosts=ghosts)
     if base_lr is None:
         if not f.peak > 0:
             raise complain("report", "base_lr", None, "a rate > 0 when the design's peak is 0",
                            "the torch snippet needs the optimizer's lr to divide by")
-        base, said = f.peak, f"the design's peak ({f.peak!r}), the default"
+        base, said = f.peak, f"BASE_LR = {f.peak!r}: the design's peak ({f.peak!r}), the default"
     else:
-        base, said = base_lr, "as given"
+        base, said = base_lr, f"BASE_LR = {base_lr!r}: as given"
     python = to_python(s, name=name, unit=unit, steps_per_epoch=spe)
     torch = to_torch(s, base, unit=unit, name=name, steps_per_epoch=spe)
     spec = json.dumps(to_spec(s, unit, spe), indent=2)
     compared = [(label, g, facts(g, steps=f.steps, steps_per_epoch=spe, unit=unit), fingerprint(g, unit))
                 for label, g in ghosts]
-    return _Parts(head.strip(), s, unit, spe, f, _budget_words(s, f, unit, spe), svg, python, torch, base, said,
-                  spec, fingerprint(s, unit), compared)
+    return _Parts(head.strip(), s.kind, unit, spe, [("", f)], f.sentence, list(f.cautions),
+                  _budget_words(s.length, f.steps, unit, spe), svg, python, torch, said, spec, fingerprint(s, unit),
+                  compared)
 
 
-def _budget_words(s: Schedule, f: Facts, unit: str, spe: int | None) -> str:
-    out = f"{f.steps:,} {unit}s" + (f" ({f.steps / spe:g} epochs of {spe:,} steps)" if spe else "")
-    return out if s.length is not None else f"open-ended, read over {out}"
+def _tracked(d: Design, head, steps, spe, batch, compare, unit, base_lr, name) -> _Parts:
+    """The parts of a report of tracks or per-group designs: each group's rate read alone, every track drawn."""
+    from .track_readouts import tracks_sentence, tracks_svg
+    from .tracks import as_groups
+
+    if list(compare):
+        raise complain("report", "compare", f"{len(compare)} designs", "none with tracks or per-group designs",
+                       "compare the rates alone: report(d.schedule, compare=...)")
+    if base_lr is not None:
+        raise complain("report", "base_lr", base_lr, "None with tracks or per-group designs",
+                       "their rates are absolute: the snippet sets each group's lr directly")
+    g = as_groups("report", d.tracks)
+    sizes = [t.length if t.length is not None else default_window(t.rate) for t in g.groups]
+    n = steps if steps is not None else (None if all(t.length is not None for t in g.groups) else max(sizes))
+    single = len(g) == 1 and g.names is None
+    rates = [("" if single else str(g.names[i] if g.names else i),
+              facts(t.rate, steps=n if n is not None else sizes[i], steps_per_epoch=spe, unit=unit, batch=batch))
+             for i, t in enumerate(g.groups)]
+    names = ", ".join(k.replace("_", " ") for k, _ in g.groups[0].items())
+    what = f"tracks ({names})" if single else f"{len(g)} param groups"
+    size = max(f.steps for _, f in rates)
+    return _Parts(head, what, unit, spe, rates, tracks_sentence(d.tracks, n, spe, unit),
+                  [(f"{k}: " if k else "") + c for k, f in rates for c in f.cautions],
+                  _budget_words(None if any(t.length is None for t in g.groups) else size, size, unit, spe), tracks_svg(d.tracks, n, unit=unit,
+                                                                                     steps_per_epoch=spe),
+                  to_python(d.tracks, name=name, unit=unit, steps_per_epoch=spe),
+                  to_torch(d.tracks, None, unit=unit, name=name, steps_per_epoch=spe),
+                  "no BASE_LR: the snippet sets each group's lr and tracked values directly",
+                  json.dumps(to_spec(d.tracks, unit, spe), indent=2), fingerprint(d.tracks, unit), [])
+
+
+def _budget_words(length: int | None, n: int, unit: str, spe: int | None) -> str:
+    out = f"{n:,} {unit}s" + (f" ({n / spe:g} epochs of {spe:,} steps)" if spe else "")
+    return out if length is not None else f"open-ended, read over {out}"
 
 
 def _epoch(t: int | None, spe: int | None) -> str:
     return "" if t is None or not spe else f"{t / spe:.3f}".rstrip("0").rstrip(".")
 
 
-def _fact_rows(p: _Parts) -> list[tuple[str, str, str, int | None]]:
+def _fact_rows(f: Facts, u: str) -> list[tuple[str, str, str, int | None]]:
     """(key, what, value, tick): the numbers of ``facts``, values written exactly (repr)."""
-    f, u = p.facts, p.unit
     rows = [("first", "first tick", repr(f.first), 0), ("peak", "peak", repr(f.peak), f.peak_at),
             ("minimum", "minimum", repr(f.minimum), f.minimum_at), ("final", "last tick", repr(f.final), f.steps - 1),
             ("after", "held after the budget", repr(f.after), f.steps), ("mean", "mean", repr(f.mean), None),
@@ -187,28 +225,34 @@ def _h(text: Any) -> str:
 
 
 def _html(p: _Parts) -> str:
-    f, spe, u = p.facts, p.spe, p.unit
+    spe, u = p.spe, p.unit
     ep = "<th>epoch</th>" if spe else ""
 
     def cells(t: int | None) -> str:
         tick = "" if t is None else f"{t:,}"
         return f'<td class="n">{tick}</td>' + (f'<td class="n">{_epoch(t, spe)}</td>' if spe else "")
 
-    numbers = [f'<tr data-fact="{k}"><th>{_h(w)}</th><td class="n">{_h(v)}</td>{cells(t)}</tr>'
-               for k, w, v, t in _fact_rows(p)]
-    joins = [f'<tr data-row="{i}"><th>{_h(label)}</th>{cells(t)}<td class="n">{r!r}</td></tr>'
-             for i, (label, t, r) in enumerate(f.boundary)]
-    cautions = ("".join(f"<li>{_h(c)}</li>" for c in f.cautions) if f.cautions
-                else '<li class="none">none</li>')
+    tables = []
+    for key, f in p.rates:
+        group, of = (f' data-group="{_h(key)}"', f" ({_h(key)} rate)") if key else ("", "")
+        tables += [f'<div><h2>Numbers{of}</h2><table class="facts"><tr><th>what</th><th>value</th><th>{u}</th>{ep}'
+                   "</tr>", *[f'<tr data-fact="{k}"{group}><th>{_h(w)}</th><td class="n">{_h(v)}</td>{cells(t)}</tr>'
+                               for k, w, v, t in _fact_rows(f, u)], "</table></div>",
+                   f'<div><h2>Rates at the joins{of}</h2><table class="boundary"><tr><th>where</th><th>{u}</th>{ep}'
+                   "<th>rate</th></tr>", *[f'<tr data-row="{i}"{group}><th>{_h(label)}</th>{cells(t)}'
+                                           f'<td class="n">{r!r}</td></tr>' for i, (label, t, r) in enumerate(f.boundary)],
+                   "</table></div>"]
+    cautions = "".join(f"<li>{_h(c)}</li>" for c in p.cautions) or '<li class="none">none</li>'
+    sentence = "<br>".join(_h(x) for x in p.sentence.splitlines())
     out = ['<!DOCTYPE html>', '<html lang="en">', '<head>', '<meta charset="utf-8">',
            '<meta name="viewport" content="width=device-width, initial-scale=1">',
            f'<meta name="schedwidget-fingerprint" content="{p.mark}">',
            f"<title>{_h(p.title)} ({p.mark})</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
            f"<header><h1>{_h(p.title)}</h1>",
            f'<p class="meta">fingerprint <span class="mark" id="fingerprint">{p.mark}</span> &middot; '
-           f"unit {u} &middot; {_h(p.print_)} &middot; {_h(p.s.kind)}</p></header>",
+           f"unit {u} &middot; {_h(p.print_)} &middot; {_h(p.what)}</p></header>",
            '<section class="top">', f'<figure class="picture">{p.svg}</figure>',
-           f'<div><p class="sentence" id="sentence">{_h(f.sentence)}</p>',
+           f'<div><p class="sentence" id="sentence">{sentence}</p>',
            f'<h2>Cautions</h2><ul class="cautions">{cautions}</ul>']
     if p.compared:
         out.append('<h2>Compared designs (grey)</h2><table class="compared"><tr><th>design</th>'
@@ -217,14 +261,10 @@ def _html(p: _Parts) -> str:
                 f'<td class="n">{g.final:.6g}</td><td class="n">{g.area:.6g}</td></tr>'
                 for label, _, g, m in p.compared]
         out.append("</table>")
-    out += ["</div>", "</section>", '<section class="tables">',
-            f'<div><h2>Numbers</h2><table class="facts"><tr><th>what</th><th>value</th><th>{u}</th>{ep}</tr>',
-            *numbers, "</table></div>",
-            f'<div><h2>Rates at the joins</h2><table class="boundary"><tr><th>where</th><th>{u}</th>{ep}'
-            "<th>rate</th></tr>", *joins, "</table></div>", "</section>", '<section class="code">',
+    out += ["</div>", "</section>", '<section class="tables">', *tables, "</section>", '<section class="code">',
             f'<div><h2>Python (stdlib only)</h2><pre id="python"><code>{_h(p.python)}</code></pre></div>',
             f'<div><h2>Spec (load with schedwidget.load)</h2><pre id="spec"><code>{_h(p.spec)}</code></pre></div>',
-            f"<div><h2>torch (BASE_LR = {p.base_lr!r}: {_h(p.base_said)})</h2>"
+            f"<div><h2>torch ({_h(p.base_said)})</h2>"
             f'<pre id="torch"><code>{_h(p.torch)}</code></pre></div>',
             "</section>", f"<footer>{_h(_footer(p))}</footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"
@@ -248,29 +288,32 @@ def _fence(text: str, lang: str) -> list[str]:
 
 
 def _markdown(p: _Parts) -> str:
-    f, spe, u = p.facts, p.spe, p.unit
+    spe, u = p.spe, p.unit
     ep, bar = (" epoch |", "---:|") if spe else ("", "")
 
     def cells(t: int | None) -> str:
         return f" {'' if t is None else f'{t:,}'} |" + (f" {_epoch(t, spe)} |" if spe else "")
 
     data = base64.b64encode(p.svg.encode("utf-8")).decode("ascii")
+    size = max(f.steps for _, f in p.rates)
     out = [f"# {_cell(p.title)}", "",
-           f"Fingerprint `{p.mark}` · unit {u} · {p.print_} · {p.s.kind}", "",
-           f"![{_cell(p.s.kind)} schedule over {f.steps:,} {u}s](data:image/svg+xml;base64,{data})", "",
-           f"> {f.sentence}", "", "## Cautions", ""]
-    out += [f"- {c}" for c in f.cautions] or ["- none"]
+           f"Fingerprint `{p.mark}` · unit {u} · {p.print_} · {p.what}", "",
+           f"![{_cell(p.what)} over {size:,} {u}s](data:image/svg+xml;base64,{data})", "",
+           *[f"> {x}  " for x in p.sentence.splitlines()], "", "## Cautions", ""]
+    out += [f"- {c}" for c in p.cautions] or ["- none"]
     if p.compared:
         out += ["", "## Compared designs (grey)", "", "| design | fingerprint | peak | last tick | area |",
                 "|---|---|---:|---:|---:|"]
         out += [f"| {_cell(label)} | `{m}` | {g.peak:.6g} | {g.final:.6g} | {g.area:.6g} |"
                 for label, _, g, m in p.compared]
-    out += ["", "## Numbers", "", f"| what | value | {u} |{ep}", f"|---|---:|---:|{bar}"]
-    out += [f"| {_cell(w)} | {v} |{cells(t)}" for _, w, v, t in _fact_rows(p)]
-    out += ["", "## Rates at the joins", "", f"| where | {u} |{ep} rate |", f"|---|---:|{bar}---:|"]
-    out += [f"| {_cell(label)} |{cells(t)} {r!r} |" for label, t, r in f.boundary]
+    for key, f in p.rates:
+        of = f": {_cell(key)} rate" if key else ""
+        out += ["", f"## Numbers{of}", "", f"| what | value | {u} |{ep}", f"|---|---:|---:|{bar}"]
+        out += [f"| {_cell(w)} | {v} |{cells(t)}" for _, w, v, t in _fact_rows(f, u)]
+        out += ["", f"## Rates at the joins{of}", "", f"| where | {u} |{ep} rate |", f"|---|---:|{bar}---:|"]
+        out += [f"| {_cell(label)} |{cells(t)} {r!r} |" for label, t, r in f.boundary]
     out += ["", "## Python (stdlib only)", "", *_fence(p.python, "python"), "",
-            f"## torch (BASE_LR = {p.base_lr!r}: {p.base_said})", "", *_fence(p.torch, "python"), "",
+            f"## torch ({p.base_said})", "", *_fence(p.torch, "python"), "",
             "## Spec (load with schedwidget.load)", "", *_fence(p.spec, "json"), "", _footer(p)]
     return "\n".join(out) + "\n"
 
@@ -283,7 +326,8 @@ def report(design: Schedule | Design, steps: int | None = None, steps_per_epoch:
 
     Parameters
     ----------
-    design : a Schedule, or a Design (``load_design``), whose unit and steps per epoch are used.
+    design : a Schedule, ``tracks(...)``, ``per_group(...)``, or a Design (``load_design``), whose unit and
+        steps per epoch are used.
     steps : the budget in ticks (default: the design's length, or the picture's window when open-ended).
     steps_per_epoch : epochs beside steps in the tables (unit "step"; default the Design's).
     batch : batch size per update, for the cautions (the linear scaling rule, warmup at large batch).
@@ -292,7 +336,8 @@ def report(design: Schedule | Design, steps: int | None = None, steps_per_epoch:
     path : where to write; ``.html``/``.htm`` gives HTML, ``.md``/``.markdown`` Markdown.
     form : ``"html"`` or ``"markdown"``, instead of the suffix (default without a path: Markdown).
     unit : "step" or "epoch" for a Schedule (a Design brings its own).
-    base_lr : the torch snippet's BASE_LR, the optimizer's lr (default: the design's peak, said in the report).
+    base_lr : the torch snippet's BASE_LR, the optimizer's lr (default: the design's peak, said in the report;
+        none for tracks or per-group designs, whose snippet sets each group's lr directly).
     title : the report's heading.  log : a log rate axis.  name : the exported function's name.
 
     Examples

@@ -210,6 +210,42 @@ class TestFingerprint:
         assert docstring_lines(deep) == []
 
 
+class TestTracks:
+    """Tracks and per-group designs: each group's rate read alone, the whole value's spec and fingerprint."""
+
+    def test_groups(self, tmp_path):
+        from schedwidget import per_group, tracks, tracks_from_spec
+
+        head = tracks(warmup(cosine(0.4, steps=9_000), steps=1_000), momentum=ramp(0.85, 0.95, 10_000))
+        backbone = stages(flat(0.0, steps=1_000), warmup(cosine(0.04, steps=8_000), steps=1_000))
+        g = per_group({"backbone": backbone, "head": head})
+        for form in FORMS:
+            text = report(g, steps_per_epoch=1_000, form=form)
+            assert fingerprint(g) in text and "2 param groups" in text
+            assert tracks_from_spec(json.loads(read_block(text, form, "spec", "json"))) == g
+            for name, rate in (("backbone", backbone), ("head", head.rate)):
+                f = facts(rate, steps_per_epoch=1_000)
+                if form == "html":
+                    rows = re.findall(rf'<tr data-row="\d+" data-group="{name}"><th>([^<]*)</th><td class="n">([^<]*)'
+                                      r'</td>.*?<td class="n">([^<]*)</td></tr>', text)
+                    got = [(html.unescape(a), int(b.replace(",", "")), float(c)) for a, b, c in rows]
+                else:
+                    part = text.split(f"## Rates at the joins: {name} rate", 1)[1].split("\n## ", 1)[0]
+                    cells = [[x.strip() for x in line.strip("|").split("|")]
+                             for line in part.splitlines() if line.startswith("| ")][1:]
+                    got = [(c[0], int(c[1].replace(",", "")), float(c[-1])) for c in cells]
+                assert got == list(f.boundary), name
+        assert "no BASE_LR" in text and "TrackClock" in text
+        with pytest.raises(ScheduleError, match="report: compare"):
+            report(g, compare=[backbone])
+        with pytest.raises(ScheduleError, match="report: base_lr"):
+            report(g, base_lr=0.1)
+        path = tmp_path / "groups.json"
+        save(g, path, unit="step", steps_per_epoch=1_000)
+        assert report_main([str(path), "-o", str(tmp_path / "groups.md")]) == 0
+        assert fingerprint(g) in (tmp_path / "groups.md").read_text(encoding="utf-8")
+
+
 class TestHtmlSafety:
     """The HTML is one file: no script element, no external reference."""
 
