@@ -173,6 +173,11 @@ def warmup_of(s: Schedule) -> tuple[str, int] | None:
         s = inner
 
 
+#: The code the caution on a warmup placed before its schedule's jumps suggests: a caution that ends with it is
+#: about positions of the run (the designer, which shows positions on the run's clock, leaves it out).
+OVER_HINT = "warmup(..., place='over')"
+
+
 def _shifted(s: Schedule, brk: np.ndarray, unit: str) -> list[str]:
     """A caution when a warmup placed before its schedule moves the schedule's jumps later on the run's clock.
 
@@ -196,7 +201,7 @@ def _shifted(s: Schedule, brk: np.ndarray, unit: str) -> list[str]:
     run = ", ".join(f"{t:,}" for t in shown) + more
     return [f"the warmup of {w:,} {unit}s comes before the schedule, so the schedule's jumps at its own {unit}s "
             f"{own} happen at {unit}s {run} of the run; if they are meant on the run's clock, lay the warmup over "
-            "them with warmup(..., place='over')"]
+            f"them with {OVER_HINT}"]
 
 
 def _cautions(s: Schedule, f0: float, peak: float, n: int, batch: int | None, unit: str) -> list[str]:
