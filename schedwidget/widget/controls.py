@@ -33,11 +33,12 @@ from typing import Any, Callable
 
 import ipywidgets as W
 
-from .entries import (WORDS, Entry, format_points, from_browser, html_words, number_text, parse_points,
+from .entries import (CHOICE_WORDS, WORDS, Entry, format_points, from_browser, html_words, number_text, parse_points,
                       parse_ticklist, put, round_step)
 from .guard import close_tree
 from .positions import POSITION_FORMS, parse_positions, positions_text, positions_words
 from ..budget import length_words, parse_length, parse_rate
+from ..lengths import ROUNDING
 from ..schedule import Param, complain
 
 __all__ = ["ParamControl", "parse_ticklist", "parse_points", "format_points", "Entry", "number_text", "put",
@@ -113,7 +114,7 @@ class ParamControl:
             self.text = W.FloatText(tooltip=tip, layout=BOX_LAYOUT)
         elif k == "length":
             self.text = Entry(description=words, tooltip=tip + "; steps, epochs ('3 ep') or a share of the run "
-                              "('6\u2009%'); a share or part of an epoch rounds up", continuous_update=False,
+                              "('6\u2009%'); " + ROUNDING, continuous_update=False,
                               style=style, layout={"width": "13em", "flex": "0 0 auto"})
             self.text.add_class("sw-length")
             self.words = W.HTML("", layout=WORDS_LAYOUT)
@@ -140,7 +141,9 @@ class ParamControl:
                                        layout={"width": "8.5em", "min_width": "8.5em", "flex": "0 0 auto"})
                 self.slider.layout.width = "14.5em"
         elif k == "dropdown":
-            self.text = W.Dropdown(options=list(p.choices), description=words, tooltip=tip, style=style)
+            said = CHOICE_WORDS.get(name, {})
+            self.text = W.Dropdown(options=[(said.get(c, str(c)), c) for c in p.choices], description=words,
+                                   tooltip=tip, style=style)
         elif k == "checkbox":
             self.text = W.Checkbox(description=words, tooltip=tip, indent=False)
         elif k == "ticklist":

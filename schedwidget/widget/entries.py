@@ -16,7 +16,7 @@ from traitlets import validate
 from ..schedule import as_whole, complain
 from .theme import pct
 
-__all__ = ["Entry", "number_text", "WORDS", "parse_ticklist", "parse_points", "format_points", "round_step",
+__all__ = ["Entry", "number_text", "WORDS", "CHOICE_WORDS", "parse_ticklist", "parse_points", "format_points", "round_step",
            "html_words", "from_browser", "put"]
 
 
@@ -51,7 +51,10 @@ WORDS = {"steps": "length", "peak": "peak rate", "floor": "end rate", "start": "
          "half_period": "half period", "curve": "curve", "cycles": "cycles", "growth": "growth",
          "peak_decay": "peak decay", "points": "points", "up": "rising share", "rise": "rising share",
          "tail": "tail share", "phases": "phases", "ends": "phase ends", "fall": "fall over", "shrink": "shrink by",
-         "interp": "between points"}
+         "interp": "between points", "place": "goes"}
+
+#: Choices in words, by parameter name: (words, value) pairs for the menu (a choice not listed shows as itself).
+CHOICE_WORDS = {"place": {"before": "before the decay", "over": "laid over the decay's first ticks"}}
 
 
 def parse_ticklist(owner: str, name: str, text: str) -> tuple[int, ...]:

@@ -50,13 +50,19 @@ class Warm:
     steps: int
     start: float = 0.0
     curve: str = "linear"
+    place: str = "before"
 
     kind = "warmup"
+
+    @property
+    def before(self) -> bool:
+        """Whether the warmup comes before the stages (its ticks then add to the design's length)."""
+        return self.place == "before"
 
     @staticmethod
     def params() -> dict[str, Param]:
         """Warmup's declared parameters that the form edits: those it holds (not the target; a parameter the core
-        adds later, such as where the ramp is placed, is left at its default until the form holds it)."""
+        adds later is left at its default until the form holds it)."""
         held = {f.name for f in dataclasses.fields(Warm)}
         return {k: p for k, p in Warmup.params().items() if p.control != "schedule" and k in held}
 
@@ -81,7 +87,7 @@ class Form:
         if self.warm is None:
             return body
         w = self.warm
-        return warmup(body, steps=w.steps, start=w.start, curve=w.curve)
+        return warmup(body, steps=w.steps, start=w.start, curve=w.curve, place=w.place)
 
     def signature(self) -> tuple:
         """What the controls depend on: the kind of each stage and whether it repeats."""
@@ -115,9 +121,7 @@ def read_form(s: Schedule) -> Form | None:
     """
     warm = None
     if s._warmed() is not None:
-        if getattr(s, "place", "before") != "before":  # a ramp laid over the target: not this form's warmup
-            return None
-        warm = Warm(steps=s.steps, start=s.start, curve=s.curve)
+        warm = Warm(steps=s.steps, start=s.start, curve=s.curve, place=getattr(s, "place", "before"))
         s = s._warmed()
     parts = s._stage_parts()
     if not all(_is_stage(p) for p in parts):
@@ -192,7 +196,8 @@ def fit_run(form: Form, total: int, chosen: int | None = None, keep: int | None 
     i = filler(form, chosen)
     if i is None or i == keep or any(st.length is None for st in form.stages):
         return form
-    lengths = [st.length for st in form.stages] + ([form.warm.steps] if form.warm is not None else [])
+    before = form.warm is not None and form.warm.before  # a warmup laid over the stages adds no ticks
+    lengths = [st.length for st in form.stages] + ([form.warm.steps] if before else [])
     new = absorb(lengths, total, i, *(edited or ()))[i]
     if new == form.stages[i].steps:
         return form
@@ -202,8 +207,9 @@ def fit_run(form: Form, total: int, chosen: int | None = None, keep: int | None 
 
 
 def stage_span(form: Form, i: int) -> tuple[int, int | None]:
-    """Where stage ``i`` starts on the run's clock and its length (None: open-ended)."""
-    start = form.warm.steps if form.warm is not None else 0
+    """Where stage ``i`` starts on the run's clock and its length (None: open-ended); a warmup laid over the
+    stages moves no start."""
+    start = form.warm.steps if form.warm is not None and form.warm.before else 0
     for st in form.stages[:i]:
         start += st.length or 0
     return start, form.stages[i].length

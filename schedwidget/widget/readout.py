@@ -11,9 +11,11 @@ from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
 
-from ..facts import Facts
+from ..facts import OVER_HINT, Facts
 from ..svg import render_svg
+from .form import read_form
 from .guard import Panel
+from .solve_row import SolveRow
 from .theme import AMBER, epochs, number, pct, rate, rate_html, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -91,9 +93,14 @@ def facts_html(f: Facts) -> str:
             f"<div style=\"display:flex;flex-wrap:wrap;gap:4px 24px;align-items:flex-start\">{num}{boundary}</div>")
 
 
-def cautions_html(f: Facts) -> str:
-    """The cautions as HTML lines (empty string when there are none)."""
-    return "".join(f'<div style="line-height:1.4;margin:0 0 2px 0">&#9888; {tidy_html(c)}</div>' for c in f.cautions)
+def cautions_html(f: Facts, run_positions: bool = False) -> str:
+    """The cautions as HTML lines (empty string when there are none).
+
+    ``run_positions``: the designer already shows the design's positions on the run's clock (its stages panel
+    does for an editable design), so the caution that suggests code for them (``facts.OVER_HINT``) is left out.
+    """
+    said = [c for c in f.cautions if not (run_positions and c.endswith(OVER_HINT))]
+    return "".join(f'<div style="line-height:1.4;margin:0 0 2px 0">&#9888; {tidy_html(c)}</div>' for c in said)
 
 
 class ReadoutPanel(Panel, W.VBox):
@@ -110,7 +117,8 @@ class ReadoutPanel(Panel, W.VBox):
         self.cautions.add_class("sw-caution")
         self.sentence = W.HTML("")
         self.sentence.add_class("sw-sentence")
-        super().__init__([self.cautions, self.sentence])
+        self.solver = SolveRow(designer)
+        super().__init__([self.cautions, self.sentence, self.solver])
         self.listen(designer)
 
     @property
@@ -118,8 +126,8 @@ class ReadoutPanel(Panel, W.VBox):
         """The facts shown (the designer's)."""
         return self.d.facts
 
-    def shows(self) -> Facts | None:
-        return self.d.facts
+    def shows(self) -> tuple:
+        return self.d.facts, self.d.schedule
 
     def paint(self) -> None:
         if self.d.facts is not None:
@@ -127,7 +135,7 @@ class ReadoutPanel(Panel, W.VBox):
 
     def show(self, f: Facts) -> None:
         """Show ``f`` (writes only what changed)."""
-        text, warn = facts_html(f), cautions_html(f)
+        text, warn = facts_html(f), cautions_html(f, read_form(self.d.schedule) is not None)
         if self.text.value != text:
             self.text.value = text
         said = f'<div style="line-height:1.4;color:#374151">{tidy_html(f.sentence)}</div>'

@@ -105,7 +105,7 @@ class ReplayPanel(Panel, W.VBox):
                                             label=LABELS.get(name), label_width="11em")
                          for name, p in PlateauRule.params().items()}
         goal = self.controls["goal"].text
-        goal.options = [(GOAL_WORDS.get(k, k), k) for k in goal.options]
+        goal.options = [(GOAL_WORDS.get(k, k), k) for k in self.controls["goal"].p.choices]
         # one grid: every label 11em, every slider track 12em, every exact box 7em beside it (no readouts)
         goal.layout.width = "26em"
         for c in self.controls.values():

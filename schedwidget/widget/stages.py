@@ -14,15 +14,15 @@ import html
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
-import numpy as np
 
+from ..lengths import ROUNDING
 from ..schedule import complain
 from .controls import LABEL, Entry, ParamControl, number_text, put
 from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, leaf_of, read_form, stage_span
 from .budget_row import BudgetMethods, BudgetRow
 from .stage_edits import StageEdits
 from .guard import Panel, close_tree
-from .theme import BORDER
+from .theme import BORDER, tidy_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -67,7 +67,7 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
         self.add.add_class("sw-add-stage")
         self.note = W.HTML("")
         self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3,450, '
-                           '3 ep or 6\u2009% of the run (parts of a step round up: common practice, no source); '
+                           f'3 ep or 6\u2009% of the run ({tidy_html(ROUNDING)}); '
                            'rates as 3e-4 or 1\u2009% of the peak.</div>')
         self.rule.add_class("sw-rule")
         self.fill: int | None = None  # the stage chosen to fill the rest of the run (None: the longest)
@@ -161,14 +161,13 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
 
     # ------------------------------------------------------------ building
     def _title(self, form: Form, where: str) -> str:
-        starts = np.concatenate([[0], np.cumsum([s.length or 0 for s in form.stages])])
-        w = form.warm.steps if form.warm is not None else 0
         u = self.d.unit
         if where == "warm":
-            return f"warmup · {u}s 0–{w:,}"
+            w = form.warm.steps
+            return f"warmup · {u}s 0–{w:,}" + ("" if form.warm.before else " (over the stages)")
         i = int(where)
         s = form.stages[i]
-        a = w + int(starts[i])
+        a = stage_span(form, i)[0]
         span = f"from {u} {a:,}" if s.length is None else f"{u}s {a:,}–{a + s.length:,}"
         return f"stage {i}{' (repeated)' if s._repeated() is not None else ''} · {span}"  # as designer.control(i, ...)
 
