@@ -224,7 +224,7 @@ class TestReportButton:
         e.report_button.click()
         assert d.error == ""
         assert e.reported[2:] == (["in steps"], ["in epochs"])
-        assert "left out (pinned on the other clock): in epochs" in e.message.value
+        assert "left out (pinned in epochs, one picture has one clock): in epochs" in e.message.value
         text = (tmp_path / "r.html").read_text("utf-8")
         assert "in steps" in text and "in epochs" not in text
 

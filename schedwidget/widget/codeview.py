@@ -307,7 +307,8 @@ class ExportPanel(Panel, W.VBox):
         words = f"report written to {target}, fingerprint"
         tail = f"; pins drawn as ghosts: {', '.join(drawn)}" if drawn else "; no pins to draw"
         if left:
-            tail += f"; left out (pinned on the other clock): {', '.join(left)}"
+            other = "steps" if self.d.unit == "epoch" else "epochs"
+            tail += f"; left out (pinned in {other}, one picture has one clock): {', '.join(left)}"
         return words, f"<code>{mark}</code>" + tidy_html(tail)
 
     def _typed(self, change: dict) -> None:
