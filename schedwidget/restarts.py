@@ -114,6 +114,10 @@ class Restarts(Schedule):
         return k, start, ln
 
     def _source(self, w, u, bound, ind, sink):
+        if self.cycles == 1:  # as the core: one cycle is the target itself, read held (no cycle clock to round)
+            v, pb = w.held(self.target, u, bound, ind)
+            w.emit(self.target, v, pb, ind, sink)
+            return
         L = float(self.target.length)
         last = None if self.cycles is None else self.cycles - 1
         k, start, ln = w.fresh("k"), w.fresh("start"), w.fresh("span")

@@ -168,6 +168,6 @@ class TestNamesAndArguments:
         tree = ast.parse(to_python(s, array=True))
         stored = {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Store)}
         loaded = {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and isinstance(n.ctx, ast.Load)}
-        assert loaded <= stored | {"np", "t", "float", "ValueError"}, loaded - stored
+        assert loaded <= stored | {"np", "t", "float", "bool", "ValueError"}, loaded - stored
         strings = {n.value for n in ast.walk(tree) if isinstance(n, ast.Constant) and isinstance(n.value, str)}
         assert strings <= {"ignore", "right", "iu", "f"} | {s for s in strings if s.startswith(("lr_at:", "Learning"))}
