@@ -9,10 +9,12 @@ from __future__ import annotations
 from typing import Any
 
 from .budget import Budget, check_length, scale_for_batch
+from .check_run import FAULTS, Verdict, check_run
 from .combine import restarts, stages, warmup
 from .export import RateFactor, make_scheduler, to_python, to_torch, torch_factor
 from .facts import Facts, facts
 from .metrics import read_metric
+from .recover import Recovery, recover
 from .plateau import PlateauReplay, plateau_source, replay_plateau
 from .schedule import Schedule, ScheduleError
 from .shapes import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, triangle
@@ -32,19 +34,22 @@ __all__ = [
     "Budget", "check_length", "scale_for_batch",
     "Design", "to_spec", "from_spec", "save", "load", "load_design", "json_schema",
     "tracks", "Tracks", "per_group", "GroupDesigns", "inverse_momentum", "tracks_from_spec", "load_tracks",
-    # loaded on first use (below): the clock, the tracks' readouts and exports, reading logs back
+    "check_run", "Verdict", "FAULTS", "recover", "Recovery",
+    # loaded on first use (below): the clock, the tracks' readouts and exports, traces, the range test
     "TrackClock", "to_torch_tracks", "track_facts", "tracks_sentence", "tracks_svg", "decay_per_step",
-    "read_trace", "read_traces", "Trace", "check_run", "Verdict", "FAULTS", "recover", "Recovery",
+    "read_trace", "read_traces", "Trace",
     "read_range_test", "RangeReading", "run_range_test", "RangeRun", "sweep_rates",
 ]
 
 #: Names loaded from their module on first use, so ``import schedwidget`` stays light for training code.
+#: A function named like its own module (check_run, recover, solve, tracks) is imported above instead: once the
+#: submodule is imported anywhere, Python binds the package attribute to the module and __getattr__ never runs
+#: (``from schedwidget import check_run`` then gave the module: "'module' object is not callable").
 _LATER = {
     "TrackClock": "clock", "to_torch_tracks": "track_export",
     "track_facts": "track_readouts", "tracks_sentence": "track_readouts", "tracks_svg": "track_readouts",
     "decay_per_step": "track_readouts",
     "read_trace": "trace", "read_traces": "trace", "Trace": "trace",
-    "check_run": "check_run", "Verdict": "check_run", "FAULTS": "check_run", "recover": "recover", "Recovery": "recover",
     "read_range_test": "range_test", "RangeReading": "range_test",
     "run_range_test": "range_run", "RangeRun": "range_run", "sweep_rates": "range_run",
 }

@@ -74,3 +74,19 @@ def test_import_benchmark_case_runs():
         assert r.value is not None and math.isfinite(r.value) and r.status in ("PASS", "MISS", "info")
     ratio = next(r for r in rows if r.kind == "ratio")
     assert ratio.target == "<= 2" and ratio.value > 0
+
+
+def test_no_public_name_is_shadowed_by_its_module():
+    """Once every core module is imported, each public name is still the function or class, never the submodule of
+    the same name (check_run, recover, solve, tracks): a lazily exported check_run read as the module after
+    ``import schedwidget.check_run`` ran anywhere, and the README's ``check_run(design, trace)`` raised
+    "'module' object is not callable"."""
+    code = (
+        "import importlib, pkgutil, types, schedwidget\n"
+        "for m in pkgutil.iter_modules(schedwidget.__path__):\n"
+        "    if m.name not in ('widget', '__main__'):\n"
+        "        importlib.import_module('schedwidget.' + m.name)\n"
+        "bad = [n for n in schedwidget.__all__ if isinstance(getattr(schedwidget, n), types.ModuleType)]\n"
+        "print(bad)\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, check=True)
+    assert out.stdout.strip() == "[]", out.stdout + out.stderr
