@@ -73,8 +73,10 @@ def _parser() -> argparse.ArgumentParser:
                           description="Print the facts sentence, the numbers and the table of rates on both "
                                       "sides of every stage join, in the spec's unit.")
     show.add_argument("spec", metavar="SPEC.json")
-    ex = sub.add_parser("export", help="write the design as Python or as a torch snippet",
-                        description="Write the design as one stdlib-only Python function (--to python) or a "
+    ex = sub.add_parser("export", help="write the design as Python, numpy, JAX, Keras or a torch snippet",
+                        description="Write the design as one stdlib-only Python function (--to python), the same "
+                                    "for integer arrays of ticks with numpy (--to numpy), a jax.jit-traceable "
+                                    "function (--to jax), a Keras 3 LearningRateSchedule class (--to keras) or a "
                                     "ready torch snippet (--to torch), to FILE or stdout. A spec of tracks or "
                                     "per-group designs gives one function per track and group, and a snippet "
                                     "whose clock sets each group's lr and tracked keys (no --base-lr).")
