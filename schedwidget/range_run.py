@@ -52,6 +52,8 @@ def sweep_rates(lowest: float, highest: float, updates: int) -> np.ndarray:
 
 def _rate(name: str, value: Any) -> float:
     ok = isinstance(value, (int, float, np.floating, np.integer)) and not isinstance(value, bool)
+    if ok and isinstance(value, int) and abs(value) > 10 ** 101:  # float() of a huge int overflows: refuse it first
+        ok = False
     if not ok or not (0.0 < float(value) <= 1e100):
         raise complain(OWNER, name, value, "a rate in (0, 1e+100]")
     return float(value)

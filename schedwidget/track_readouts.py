@@ -23,6 +23,9 @@ def decay_per_step(t: Tracks) -> Schedule | None:
     torch's AdamW (and Adam or SGD with decoupled weight decay) multiplies every weight by
     ``1 - lr * weight_decay`` at each step (``p -= lr * wd * p``), so the decay per step follows the rate.
     """
+    if not isinstance(t, Tracks):
+        raise complain("decay_per_step", "t", _brief(t), "tracks(...)",
+                       "the decay per step is the rate times the weight-decay track of a tracks value")
     if t.weight_decay is None:
         return None
     return t.rate * t.weight_decay

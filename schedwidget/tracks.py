@@ -179,7 +179,7 @@ class GroupDesigns:
     def __post_init__(self) -> None:
         from .factor import MAX_GROUPS
 
-        if not self.groups or len(self.groups) > MAX_GROUPS:
+        if not isinstance(self.groups, tuple) or not self.groups or len(self.groups) > MAX_GROUPS:
             raise complain("per_group", "designs", _brief(self.groups),
                            f"between 1 and {MAX_GROUPS:,} designs, one per param group")
         for i, g in enumerate(self.groups):
