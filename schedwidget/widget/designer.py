@@ -17,11 +17,13 @@ from time import perf_counter
 from typing import Any, Callable, Iterator
 
 import ipywidgets as W
+from traitlets import Any as AnyTrait
 from traitlets import Instance, Int, Tuple, Unicode, observe, validate
 
 from .. import spec as specs
 from ..facts import Facts, facts
-from ..schedule import Schedule, complain
+from ..schedule import Schedule, ScheduleError, complain
+from ..tracks import GroupDesigns, Tracks
 from .canvas import Clock, CurvePanel
 from .codeview import ExportPanel, FileMethods
 from .compare import ComparePanel, PinMethods
@@ -32,6 +34,7 @@ from .replay import ReplayPanel
 from .rescale import RescalePanel
 from .stages import BudgetMethods, StagesPanel
 from .theme import ERROR_RED, Tabs, lines, tidy_html
+from .tracks_view import TracksPanel, as_held, check_group, group_tracks, with_rate
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
 
@@ -65,6 +68,10 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     batch = Int(None, allow_none=True, help="batch size per update, or None (for cautions only)")
     facts = Instance(Facts, allow_none=True, help="the facts of the design over its budget (once per change)")
     pinned = Tuple(help="the pinned designs (Pin values), oldest first")
+    tracks = AnyTrait(None, allow_none=True, help="tracks(...) or per_group(...) whose rate (of ``group``) is "
+                      "``schedule``; None when the designer holds a rate only")
+    group = Int(0, help="the param group whose rate the stages edit (0 unless ``tracks`` is per_group(...))")
+    tracks_problem = Unicode("", help="why the companion tracks could not follow the last change of the rate")
     revision = Int(0, help="bumped once per accepted change, when every trait above holds its new value")
 
     def __init__(self, schedule: Schedule | None = None, steps: int | None = None,
@@ -77,8 +84,12 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
             schedule = demo_design()
             steps_per_epoch = DEMO_STEPS_PER_EPOCH if steps_per_epoch is None else steps_per_epoch
             batch = DEMO_BATCH if batch is None else batch
+        held = None
+        if isinstance(schedule, (Tracks, GroupDesigns)):  # a rate with companion tracks, or a design per group
+            held, schedule = schedule, group_tracks(schedule, 0).rate
         if not isinstance(schedule, Schedule):
-            raise complain("ScheduleDesigner", "schedule", schedule, "a Schedule (cosine(...), stages(...), ...)")
+            raise complain("ScheduleDesigner", "schedule", schedule, "a Schedule (cosine(...), stages(...), ...), "
+                           "tracks(...) or per_group(...)")
         if steps is None and schedule.length is None:
             raise complain("ScheduleDesigner", "steps", None, "a whole number >= 1 for an open-ended design",
                            "pass steps=the number of ticks to draw and read")
@@ -86,6 +97,7 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.unit, self.steps_per_epoch, self.batch = unit, steps_per_epoch, batch
         self.steps = schedule.length if steps is None else steps
         self.schedule = schedule
+        self.tracks = held
         self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale", "Numbers"))
         self.canvas = CurvePanel(self, "epochs" if unit == "epoch" else "steps")  # observes first: marks first
         self.observe(self._derive, names="revision")  # then the facts every other panel reads
@@ -96,7 +108,10 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.stages.list.layout = W.Layout(max_height="380px", overflow="auto")
         left = W.VBox([self.stages, self.error_line],
                       layout={"width": "390px", "flex": "0 0 390px", "padding": "0 8px 0 0"})
-        right = W.VBox([self.canvas, self.readout, self.compare.pin_row],
+        self.companions = W.VBox([])  # the tracks panel, started when the designer first holds tracks
+        self.tracks_panel: TracksPanel | None = None
+        self._start_tracks()
+        right = W.VBox([self.canvas, self.companions, self.readout, self.compare.pin_row],
                        layout={"flex": "1 1 470px", "min_width": "0", "width": "auto"})
         left.add_class("sw-left")
         right.add_class("sw-right")
@@ -125,10 +140,57 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         return whole("ScheduleDesigner", name, proposal["value"], name != "steps")
 
     # ------------------------------------------------------------ one change, one redraw
-    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned")
+    @validate("tracks")
+    def _check_tracks(self, proposal: dict) -> Tracks | GroupDesigns | None:
+        value = proposal["value"]
+        return None if value is None else as_held(value)
+
+    @validate("group")
+    def _check_group(self, proposal: dict) -> int:
+        return check_group(self.tracks, proposal["value"])
+
+    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned", "tracks", "group")
     def _changed(self, change: dict) -> None:
         with self._one_redraw():
+            if change["name"] == "schedule":
+                self._rate_to_tracks()
+            elif change["name"] in ("tracks", "group"):
+                self._tracks_to_rate(change)
             self._dirty = True  # the run's length (steps) never follows the design: a mismatch is a caution
+
+    # ------------------------------------------------------------ tracks: the rate is one of them
+    def _rate_to_tracks(self) -> None:
+        """The held tracks follow an accepted rate (companions stretched to its length); why not, when not."""
+        held = self.tracks
+        if held is None or group_tracks(held, self.group).rate == self.schedule:
+            if self.tracks_problem:
+                self.tracks_problem = ""  # the rate is back to one the tracks hold
+            return
+        try:
+            self.tracks = with_rate(held, self.group, self.schedule)
+            self.tracks_problem = ""
+        except ScheduleError as exc:
+            self.tracks_problem = f"the companion tracks keep their last shape: {exc}"
+
+    def _tracks_to_rate(self, change: dict) -> None:
+        """New tracks or another group: the stages edit that group's rate."""
+        held = self.tracks
+        if held is None:
+            if self.group != 0:
+                self.group = 0
+            return
+        if change["name"] == "tracks" and not (isinstance(held, GroupDesigns) and self.group < len(held)):
+            if self.group != 0:
+                self.group = 0  # runs this again for the group
+                return
+        self._start_tracks()
+        self.tracks_problem = ""
+        self.schedule = group_tracks(held, self.group).rate
+
+    def _start_tracks(self) -> None:
+        if self.tracks is not None and getattr(self, "companions", None) is not None and self.tracks_panel is None:
+            self.tracks_panel = TracksPanel(self)
+            self.companions.children = (self.tracks_panel,)
 
     @contextmanager
     def _one_redraw(self) -> Iterator[None]:

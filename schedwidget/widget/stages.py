@@ -17,6 +17,7 @@ import ipywidgets as W
 
 from ..lengths import ROUNDING
 from ..schedule import complain
+from ..tracks import GroupDesigns
 from .controls import LABEL, Entry, ParamControl, number_text, put
 from .form import LEAVES, SHAPE_WORDS, Form, Warm, filler, leaf_of, read_form, stage_span
 from .budget_row import BudgetMethods, BudgetRow
@@ -66,6 +67,11 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
         self.add = W.Button(description="Add stage", tooltip="add a stage of this shape", icon="plus")
         self.add.add_class("sw-add-stage")
         self.note = W.HTML("")
+        self.group_menu = W.Dropdown(options=[("group 0", 0)], value=0, description="edit group",
+                                     tooltip="the param group whose rate the stages below edit (each group has "
+                                             "a design of its own)", style=LABEL,
+                                     layout={"width": "22em", "flex": "0 0 auto", "display": "none"})
+        self.group_menu.add_class("sw-group")
         self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3,450, '
                            f'3 ep or 6\u2009% of the run ({tidy_html(ROUNDING)}); '
                            'rates as 3e-4 or 1\u2009% of the peak.</div>')
@@ -80,16 +86,37 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
         self.total.observe(g(self._total_edited), names="value")
         self.batch.observe(g(self._batch_edited), names="value")
         self.add.on_click(g(self._add))
+        self.group_menu.observe(g(self._group_chosen), names="value")
         wrap = {"flex_flow": "row wrap"}
         super().__init__([W.HBox([self.total, self.unit], layout=wrap), W.HBox([self.spe, self.batch], layout=wrap),
-                          self.total_words, self.rule, self.note, self.list,
+                          self.total_words, self.rule, self.group_menu, self.note, self.list,
                           W.HBox([self.shape, self.add], layout=wrap)])
         d.observe(self._refused, names="error")
         self.listen(d)
 
     def shows(self) -> tuple:
         d = self.d
-        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch
+        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch, d.tracks, d.group
+
+    def _group_chosen(self, change: dict) -> None:
+        if self._quiet or change["new"] is None:
+            return
+        self.d.group = change["new"]
+
+    def _show_groups(self) -> None:
+        """The group menu: shown when the designer holds a design per param group, on the group being edited."""
+        held = self.d.tracks
+        groups = held if isinstance(held, GroupDesigns) else None
+        display = "none" if groups is None else "flex"
+        if self.group_menu.layout.display != display:
+            self.group_menu.layout.display = display
+        if groups is None:
+            return
+        options = [(f"group {i}" if groups.names is None else f"{groups.names[i]} (group {i})", i)
+                   for i in range(len(groups))]
+        if list(self.group_menu.options) != options:
+            self.group_menu.options = options
+        put(self.group_menu, self.d.group)
 
     def paint(self) -> None:
         self.sync()
@@ -125,6 +152,7 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
                 words += (f' <span style="color:#b45309">&#9888; the design is {d.schedule.length:,} {d.unit}s, '
                           f'{abs(gap):,} {"more" if gap > 0 else "fewer"} than the run</span>')
             put(self.total_words, words)
+            self._show_groups()
             form = self.form
             put(self.note, "" if form is not None else f"<i>{NOT_EDITABLE}</i>")
             put(self.add, form is None, "disabled")

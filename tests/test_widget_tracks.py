@@ -1,0 +1,146 @@
+"""Companion tracks and per-group designs in the designer (issue 15)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from schedwidget import ScheduleDesigner, ScheduleError, cosine, flat, one_cycle, ramp, stages, warmup
+from schedwidget.sample import trace
+from schedwidget.tracks import inverse_momentum, per_group, tracks
+from schedwidget.widget.tracks_view import with_rate
+
+
+def one_cycle_tracks(n: int = 1000):
+    """A one-cycle rate with its momentum companion (Smith 2018: momentum falls while the rate rises; 0.95 and
+    0.85 are common practice, no source) and a constant weight decay."""
+    r = one_cycle(0.1, steps=n, tail=0.1)
+    return tracks(r, momentum=inverse_momentum(r), weight_decay=flat(5e-4))
+
+
+class TestCompanions:
+    """Companion tracks are drawn under the curve on the curve's own x scale, each with its own y axis."""
+
+    def test_drawn_on_the_same_clock(self):
+        """One figure per companion the tracks hold, sharing the curve's x scale; the line is the core's trace."""
+        t = one_cycle_tracks()
+        d = ScheduleDesigner(t)
+        p = d.tracks_panel
+        assert d.schedule == t.rate and d.tracks == t
+        assert p.shown() == ("momentum", "weight_decay")
+        m = p.multiples["momentum"]
+        assert m.line.scales["x"] is d.canvas.xs
+        assert m.ys is not d.canvas.rate_scale and m.y_axis.scale is m.ys
+        tr = trace(t.momentum, d.steps)
+        assert np.array_equal(m.line.x, tr.x) and np.array_equal(m.line.y, tr.y)
+        assert m.ys.min <= 0.85 and m.ys.max >= 0.95
+        assert np.array_equal(m.x_axis.tick_values, d.canvas.x_axis.tick_values)
+        assert p.multiples["beta2"].box.layout.display == "none"
+
+    def test_x_axis_in_epochs(self):
+        """Switching the x axis to epochs moves every companion with the curve."""
+        d = ScheduleDesigner(one_cycle_tracks(1000), steps_per_epoch=100)
+        d.canvas.x_choice.value = "epochs"
+        m = d.tracks_panel.multiples["momentum"]
+        assert m.line.x[-1] == pytest.approx(d.canvas.curve.x[-1])
+        assert m.line.x[-1] == pytest.approx(9.99)
+
+    def test_follow_the_rate_length(self):
+        """A new length of the rate stretches the companions with a length (same clock); constants stay."""
+        d = ScheduleDesigner(one_cycle_tracks(1000))
+        d.control(0, "steps").text.value = "1,500"
+        assert d.error == ""
+        assert d.schedule.length == 1500
+        assert d.tracks.rate == d.schedule and d.tracks.momentum.length == 1500
+        assert d.tracks.weight_decay == flat(5e-4)
+
+    def test_open_ended_rate_is_said(self):
+        """A rate the companions cannot follow (open-ended) keeps them, and the panel says why."""
+        d = ScheduleDesigner(one_cycle_tracks(1000))
+        before = d.tracks
+        d.schedule = flat(0.1)
+        assert d.tracks == before
+        assert "open-ended" in d.tracks_panel.problem.value
+        d.schedule = one_cycle(0.1, steps=1000, tail=0.1)
+        assert d.tracks_problem == ""
+
+    def test_assigned_later_and_removed(self):
+        """Tracks given after the start appear under the curve; None removes them and keeps the rate."""
+        d = ScheduleDesigner(cosine(0.1, steps=1000))
+        assert d.tracks_panel is None
+        t = one_cycle_tracks()
+        d.tracks = t
+        assert d.schedule == t.rate and d.tracks_panel.shown() == ("momentum", "weight_decay")
+        d.tracks = None
+        assert d.tracks_panel.shown() == () and d.schedule == t.rate
+
+    def test_read_only_note(self):
+        """The panel says the companions are shown as they are and set in code."""
+        d = ScheduleDesigner(one_cycle_tracks())
+        assert "set a track in code" in d.tracks_panel.note.value
+
+    def test_with_rate(self):
+        """with_rate replaces the rate, stretches the companions and refuses an open-ended rate with a reason."""
+        t = tracks(cosine(0.1, steps=100), momentum=ramp(0.85, 0.95, steps=100))
+        assert with_rate(t, 0, cosine(0.1, steps=300)).momentum == ramp(0.85, 0.95, steps=100).stretch(300)
+        with pytest.raises(ScheduleError, match="momentum track"):
+            with_rate(t, 0, flat(0.1))
+
+    def test_bad_tracks_value(self):
+        """Something that is not tracks is refused naming the trait."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        with pytest.raises(ScheduleError, match="tracks"):
+            d.tracks = "momentum"
+
+
+def backbone_and_head():
+    """A frozen-then-warmed backbone (rate 0 for 200 ticks, its own warmup into a cosine) and a head with tracks."""
+    backbone = stages(flat(0.0, steps=200), warmup(cosine(0.01, steps=700), 100))
+    return per_group({"backbone": backbone, "head": one_cycle_tracks(1000)})
+
+
+class TestGroups:
+    """A design per param group: the stages panel's group menu chooses which group's rate is edited."""
+
+    def test_menu(self):
+        """The menu lists the groups by name and shows only for per-group designs."""
+        d = ScheduleDesigner(backbone_and_head())
+        menu = d.stages.group_menu
+        assert menu.options == (("backbone (group 0)", 0), ("head (group 1)", 1))
+        assert menu.layout.display == "flex" and menu.value == 0
+        assert d.schedule == backbone_and_head().groups[0].rate
+        assert ScheduleDesigner(one_cycle_tracks()).stages.group_menu.layout.display == "none"
+
+    def test_choose_and_edit_a_group(self):
+        """Choosing the head edits its rate; the edit lands in that group only; its companions show."""
+        g = backbone_and_head()
+        d = ScheduleDesigner(g)
+        assert d.tracks_panel.shown() == ()
+        d.stages.group_menu.value = 1
+        assert d.group == 1 and d.schedule == g.groups[1].rate
+        assert d.tracks_panel.shown() == ("momentum", "weight_decay")
+        d.control(0, "peak").text.value = 0.2
+        assert d.tracks.groups[1].rate.peak == 0.2
+        assert d.tracks.groups[0] == g.groups[0] and d.tracks.names == g.names
+        d.stages.group_menu.value = 0
+        assert d.schedule == g.groups[0].rate
+
+    def test_group_out_of_range(self):
+        """A group index the design does not have is refused naming the range."""
+        d = ScheduleDesigner(backbone_and_head())
+        with pytest.raises(ScheduleError, match="0 .. 1"):
+            d.group = 2
+
+    def test_fewer_groups(self):
+        """New tracks with fewer groups go back to group 0."""
+        d = ScheduleDesigner(backbone_and_head())
+        d.group = 1
+        d.tracks = one_cycle_tracks()
+        assert d.group == 0 and d.schedule == one_cycle_tracks().rate
+
+    def test_list_of_designs(self):
+        """A plain list of designs is read as per_group(...)."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        d.tracks = [cosine(0.1, steps=100), flat(0.01, steps=100)]
+        assert d.tracks == per_group([cosine(0.1, steps=100), flat(0.01, steps=100)])
+        assert d.stages.group_menu.options == (("group 0", 0), ("group 1", 1))
