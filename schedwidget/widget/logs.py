@@ -38,6 +38,7 @@ from ..range_test import RangeReading, read_range_test
 from ..recover import Recovery, node_count, recover as recover_design
 from ..sample import trace as curve_points
 from ..schedule import Schedule, complain
+from ..svg import nice_ticks  # one tick rule for the live and static curves
 from ..trace import Trace, read_trace
 from .guard import quietly
 from .theme import (AMBER, CURVE, CURVE_FIGURE, ERROR_RED, JOIN, METRIC, TOGGLE, RateAxes, figure_layout, lines,
@@ -134,7 +135,6 @@ class LogsPanel(W.VBox):
     def __init__(self, design: Schedule | None = None, traces: Any = None, range_logs: Any = None, *,
                  steps_per_epoch: int | None = None, steps: int | None = None,
                  on_adopt: Callable[[Schedule], Any] | None = None, **kwargs: Any) -> None:
-        super().__init__(**kwargs)
         if design is not None and not isinstance(design, Schedule):
             raise complain("LogsPanel", "design", design, "a Schedule or None")
         if on_adopt is not None and not callable(on_adopt):
@@ -201,17 +201,20 @@ class LogsPanel(W.VBox):
                                  stroke_width=2, visible=False)
         self.marks_at = Lines(x=np.ones((1, 2)), y=np.array([[0.0, 1.0]]), scales={"x": self.rx, "y": self.unit_scale},
                               colors=[CURVE], line_style="dashed", stroke_width=1, visible=False)
+        self.rx_axis = Axis(scale=self.rx, label="learning rate (log)", tick_format=".0e")
+        self.range_legend = W.HTML(_legend([(METRIC, "loss as logged"), (CURVE, "smoothed; dashed: published bounds"),
+                                            (JOIN, "dashed: common-practice peak")]))
         self.range_figure = Figure(marks=[self.loss_raw, self.loss_smooth, self.marks_at],
-                                   axes=[Axis(scale=self.rx, label="learning rate (log)", tick_format=".0e"),
+                                   axes=[self.rx_axis,
                                          Axis(scale=self.ry, side="left", label="loss",
                                               tick_format=".3~g")],
                                    animation_duration=0, fig_margin=CURVE_FIGURE[1],
                                    layout=W.Layout(**figure_layout(CURVE_FIGURE)))
         self.reading_choice = W.ToggleButtons(options=list(READINGS), value="published", description="reading",
-                                              style={"button_width": "9em", "description_width": "5em"},
+                                              style={"button_width": "11em", "description_width": "5em"},
                                               layout=TOGGLE)
         self.shape_choice = W.ToggleButtons(options=list(SHAPES), value="one cycle", description="shape",
-                                            style={"button_width": "9em", "description_width": "5em"},
+                                            style={"button_width": "11em", "description_width": "5em"},
                                             layout=TOGGLE)
         self.steps_box = W.IntText(value=1000, description="over steps", style=LABEL, layout={"width": "14em"})
         self.proposal_text = W.HTML("")
@@ -225,8 +228,8 @@ class LogsPanel(W.VBox):
             W.HBox([self.recover_button, self.use_recovered], layout=wrap),
             W.HTML(HEAD.format("Choose a peak from a range test")),
             W.HBox([self.range_pick, self.range_upload], layout=wrap), self.range_message, self.reading_text,
-            self.range_figure, W.HBox([self.reading_choice, self.shape_choice, self.steps_box], layout=wrap),
-            self.proposal_text, self.use_peak])
+            self.range_legend, self.range_figure, W.HBox([self.reading_choice, self.shape_choice, self.steps_box], layout=wrap),
+            self.proposal_text, W.HBox([self.use_peak])], **kwargs)
         self.add_class("sw-logs")
         # traits first, then the observers (no callback runs on a half-built panel)
         self.design = design
@@ -374,8 +377,11 @@ class LogsPanel(W.VBox):
         with self.departure_line.hold_sync():
             self.departure_line.x = np.array([[float(v.first_tick), float(v.first_tick)]]) if off else np.zeros((1, 2))
             self.departure_line.visible = bool(off)
+        top = float(max(span - 1, 1))
         with self.xs.hold_sync():
-            self.xs.min, self.xs.max = 0.0, float(max(span - 1, 1))
+            self.xs.min, self.xs.max = 0.0, top
+        ticks = nice_ticks(0.0, top, 5)  # round numbers, as the designer's curve
+        self.x_axis.tick_values = ticks[(ticks >= 0.0) & (ticks <= top)]
         self.rates.show(log)
         who = "the design" if self.design is not None else "the recovered design"
         rows = [(CURVE, who)] if shown is not None else []
@@ -416,6 +422,8 @@ class LogsPanel(W.VBox):
         r = self.reading
         with self.rx.hold_sync():
             self.rx.min, self.rx.max = float(r.rates[0]), float(r.rates[-1])
+        decades = np.arange(np.ceil(np.log10(r.rates[0]) - 1e-9), np.floor(np.log10(r.rates[-1]) + 1e-9) + 1)
+        self.rx_axis.tick_values = 10.0 ** decades[:: max(1, int(np.ceil(decades.size / 8)))]
         for mark, y in ((self.loss_raw, r.losses), (self.loss_smooth, r.smoothed)):
             x, yy = envelope(r.rates, np.asarray(y, float))
             with mark.hold_sync():
