@@ -429,3 +429,18 @@ class TestBoundedSource:
         for t in (2**53 + 1, 10**400):
             with pytest.raises(ValueError, match=r"lr_at: t must be <= 2\*\*53"):
                 fn(t)
+
+
+class TestFrameworkExportsImportNothing:
+    """to_python(array=True), to_jax and to_keras write text only: no framework is imported (issue 17)."""
+
+    def test_no_framework_is_imported(self):
+        code = ("import sys; from schedwidget import cosine, warmup; from schedwidget.export import to_python; "
+                "from schedwidget.export_jax import to_jax; from schedwidget.export_keras import to_keras; "
+                "d = warmup(cosine(0.1, steps=100), steps=10); "
+                "texts = [to_python(d, array=True), to_jax(d), to_keras(d)]; "
+                "print(sorted(m for m in sys.modules if m.split('.')[0] in "
+                "('jax', 'jaxlib', 'keras', 'optax', 'tensorflow', 'torch')))")
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+        assert out.returncode == 0, out.stderr
+        assert out.stdout.strip() == "[]"
