@@ -266,7 +266,7 @@ class TestOtherPanels:
     def test_tabs_start_on_first_opening(self):
         """Four tabs in order; the Replay tab holds one panel (or a note) once it is selected."""
         d = ScheduleDesigner()
-        assert d.tabs.titles == ("Compare", "Export", "Replay", "Rescale", "Numbers")
+        assert d.tabs.titles == ("Compare", "Export", "Replay", "Rescale", "Numbers", "Logs")
         assert d.tabs.children[2].children == ()
         d.tabs.selected_index = 2
         (panel,) = d.tabs.children[2].children

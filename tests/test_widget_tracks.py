@@ -144,3 +144,40 @@ class TestGroups:
         d.tracks = [cosine(0.1, steps=100), flat(0.01, steps=100)]
         assert d.tracks == per_group([cosine(0.1, steps=100), flat(0.01, steps=100)])
         assert d.stages.group_menu.options == (("group 0", 0), ("group 1", 1))
+
+
+class TestLogsTab:
+    """The logs panel (issue 16) is the designer's Logs tab: it checks against the design, and what it adopts
+    becomes the design."""
+
+    def open(self, d):
+        d.tabs.selected_index = d.tabs.titles.index("Logs")
+        return d.logs
+
+    def test_started_when_shown(self):
+        """The panel starts when its tab is first shown, with the design and the traces given to the designer."""
+        d = ScheduleDesigner(cosine(0.1, steps=100), traces={"run": [0.1] * 100})
+        assert d.logs is None
+        logs = self.open(d)
+        assert d.tabs.children[d.tabs.titles.index("Logs")].children == (logs,)
+        assert logs.design == d.schedule and list(logs.pick.options)[-1] == "run"
+
+    def test_follows_the_design(self):
+        """An edit in the designer is the design the logs are checked against."""
+        d = ScheduleDesigner(cosine(0.1, steps=100))
+        logs = self.open(d)
+        d.control(0, "peak").text.value = 0.2
+        assert logs.design == cosine(0.2, steps=100)
+
+    def test_adopted_design_replaces_the_designers(self):
+        """A recovered design adopted in the panel becomes the designer's design (and is edited in the stages)."""
+        run = [0.1] * 50 + [0.01] * 50
+        d = ScheduleDesigner(cosine(0.1, steps=100), traces={"run": run})
+        logs = self.open(d)
+        logs.pick.value = "run"
+        logs.recover_button.click()
+        logs.use_recovered.click()
+        assert d.error == "" and logs.error == ""
+        assert d.schedule == logs.adopted
+        assert np.allclose(d.schedule(np.arange(100)), run, rtol=1e-9)
+        assert d.stages.form is not None

@@ -47,11 +47,13 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     """An ipywidgets box to shape a learning-rate schedule and read it exactly.
 
     Parameters: ``schedule`` (None: the demo scenario, :func:`demo_design`, 1,150 steps per
-    epoch, batch 128), ``steps`` (the budget; default the design's length), ``steps_per_epoch``,
-    ``unit`` (``"step"`` or ``"epoch"``), ``batch`` (for cautions), ``autosave`` (a spec file
-    written atomically after every valid change).  ``set_total`` and ``set_unit`` convert the
-    design in proportion; assigning ``steps`` or ``unit`` only changes what is read.  Panels:
-    ``stages``, ``canvas``, ``readout``, ``compare``, ``export`` and ``tabs``.
+    epoch, batch 128; ``tracks(...)`` or ``per_group(...)``: the stages edit the rate of ``group``, the
+    companion tracks are drawn under the curve), ``steps`` (the budget; default the design's length),
+    ``steps_per_epoch``, ``unit`` (``"step"`` or ``"epoch"``), ``batch`` (for cautions), ``autosave`` (a
+    spec file written atomically after every valid change), ``traces`` and ``range_logs`` (what the Logs
+    tab offers to pick).  ``set_total`` and ``set_unit`` convert the design in proportion; assigning
+    ``steps`` or ``unit`` only changes what is read.  Panels: ``stages``, ``canvas``, ``readout``,
+    ``compare``, ``export``, ``tracks_panel`` (with tracks), ``logs`` (once its tab is shown) and ``tabs``.
 
     >>> from schedwidget import ScheduleDesigner, cosine
     >>> d = ScheduleDesigner(cosine(0.1, steps=1000))
@@ -76,9 +78,11 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
 
     def __init__(self, schedule: Schedule | None = None, steps: int | None = None,
                  steps_per_epoch: int | None = None, unit: str = "step", batch: int | None = None,
-                 autosave: str | os.PathLike | None = None, **kwargs: Any) -> None:
+                 autosave: str | os.PathLike | None = None, traces: Any = None, range_logs: Any = None,
+                 **kwargs: Any) -> None:
         self._hold, self._dirty, self._good, self._saved, self._read = 1, False, None, None, None
         self.redraws, self.timing = 0, {}
+        self._traces, self._range_logs = traces, range_logs  # for the Logs tab (LogsPanel's own arguments)
         super().__init__(**kwargs)
         if schedule is None:
             schedule = demo_design()
@@ -98,7 +102,7 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.steps = schedule.length if steps is None else steps
         self.schedule = schedule
         self.tracks = held
-        self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale", "Numbers"))
+        self.tabs = Tabs(("Compare", "Export", "Replay", "Rescale", "Numbers", "Logs"))
         self.canvas = CurvePanel(self, "epochs" if unit == "epoch" else "steps")  # observes first: marks first
         self.observe(self._derive, names="revision")  # then the facts every other panel reads
         self.readout, self.stages = ReadoutPanel(self), StagesPanel(self)
@@ -118,7 +122,8 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         self.tabs.fill(0, self.compare)
         self.tabs.fill(1, self.export)
         self.tabs.fill(4, self.readout.text)
-        self.later: dict[int, type] = {2: ReplayPanel, 3: RescalePanel}  # started when first shown
+        self.logs: Any = None  # the logs panel (LogsPanel), started when its tab is first shown
+        self.later: dict[int, Callable] = {2: ReplayPanel, 3: RescalePanel, 5: self._logs_panel}  # when first shown
         self.tabs.observe(self.guarded(self._tab_changed), names="selected_index")
         # side by side when there is room (390 + 470 px), one above the other below that
         self.children = [W.Box([left, right], layout={"flex_flow": "row wrap", "width": "100%"}), self.tabs.bar,
@@ -267,6 +272,26 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     def clock_for(self, unit: str, steps_per_epoch: int | None) -> Clock:
         """The x-axis mapping for a design on another clock (used for pins)."""
         return Clock(unit, steps_per_epoch, self.canvas.x_choice.value)
+
+    # ------------------------------------------------------------ the logs tab
+    def _logs_panel(self, _designer: ScheduleDesigner, tab: int) -> W.Widget:
+        """The logs panel in tab ``tab``: it checks logged traces against the design, and a design it adopts (a
+        recovered one, or one around a range test's peak) becomes the designer's."""
+        from .logs import LogsPanel  # loaded on first use: it reads traces, recovers designs, reads range tests
+
+        spe = self.steps_per_epoch if self.unit == "step" else None
+        self.logs = LogsPanel(self.schedule, self._traces, self._range_logs, steps_per_epoch=spe, steps=self.steps)
+        self.logs.observe(self.guarded(self._adopted), names="adopted")
+        self.observe(self.guarded(self._logs_follow), names="schedule")
+        return self.logs
+
+    def _adopted(self, change: dict) -> None:
+        if change["new"] is not None and change["new"] != self.schedule:
+            self.propose(change["new"])
+
+    def _logs_follow(self, change: dict) -> None:
+        if self.logs is not None and self.logs.design != change["new"]:
+            self.logs.design = change["new"]  # the run is checked against the design as it is now
 
     # ------------------------------------------------------------ tabs, display
     def _tab_changed(self, change: dict) -> None:
