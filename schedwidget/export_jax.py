@@ -28,6 +28,7 @@ PRECISION = [
     "4, ...), so the rate is the design's at a tick up to a few steps away, and step counts past a budget",
     "of more than 2**24 ticks read the budget's float32 neighbour.  Use x64 for budgets above 2**24.",
     "A negative step count is not refused inside jit (traced values cannot raise): pass counts >= 0.",
+    "Without x64, JAX's integers are int32: a step count above 2**31 - 1 cannot be passed at all.",
 ]
 
 

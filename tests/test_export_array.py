@@ -64,7 +64,8 @@ class TestEqualToTheCore:
     def test_random_nested_designs(self, s):
         assert_equal_everywhere(s)
 
-    @settings(max_examples=60, deadline=None, database=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
+    @settings(max_examples=60, deadline=None, database=None, derandomize=True,
+              suppress_health_check=[HealthCheck.too_slow])
     @given(strategies.combine(strategies.combine(strategies.leaves())))
     def test_property_strategy_designs(self, s):
         assert_equal_everywhere(s)

@@ -3,7 +3,6 @@ that drives a real optax optimizer with the design's rates."""
 
 from __future__ import annotations
 
-import os
 import random
 
 import numpy as np
@@ -46,7 +45,8 @@ def ticks_of(s: Schedule, margin: int = 50, window: int = 600) -> np.ndarray:
     n = s.length if s.length is not None else window
     if n <= 100_000:
         return np.arange(n + margin)
-    t = np.unique(np.concatenate([np.arange(20_000), np.linspace(0, n, 20_000).astype(np.int64), n + np.arange(margin)]))
+    t = np.unique(np.concatenate([np.arange(20_000), np.linspace(0, n, 20_000).astype(np.int64),
+                                  n + np.arange(margin)]))
     return t[t <= 2 ** 53]
 
 
