@@ -29,6 +29,7 @@ PRECISION = [
     "of more than 2**24 ticks read the budget's float32 neighbour.  Use x64 for budgets above 2**24.",
     "A negative step count is not refused inside jit (traced values cannot raise): pass counts >= 0.",
     "Without x64, JAX's integers are int32: a step count above 2**31 - 1 cannot be passed at all.",
+    "Divisions read x / (u * 0.0 + c): XLA turns x / c into x * (1 / c), which is not the design's rounding.",
 ]
 
 

@@ -54,7 +54,9 @@ def to_keras(s: Schedule, name: str = "ExportedSchedule", unit: str = "step",
     doc = head_lines(s, name, unit, spe, "Learning rate at a step count (Keras passes optimizer.iterations).",
                      f"one tick is one {'optimizer update' if unit == 'step' else 'epoch'}",
                      ["Branch-free keras.ops code; float32 rates (Keras' learning-rate type): within float32",
-                      "rounding of the design, and step counts above 2**24 = 16,777,216 are rounded to a float32."])
+                      "rounding of the design, and step counts above 2**24 = 16,777,216 are rounded to a float32.",
+                      "Divisions read x / (u * 0.0 + c): XLA turns x / c into x * (1 / c), which is not the",
+                      "design's rounding."])
     out = ["import keras", "from keras import ops", "", "",
            '@keras.saving.register_keras_serializable(package="schedwidget")',
            f"class {name}(keras.optimizers.schedules.LearningRateSchedule):", *doc, "",
