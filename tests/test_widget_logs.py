@@ -14,7 +14,7 @@ from schedwidget.check_run import check_run
 from schedwidget.range_test import read_range_test
 from schedwidget.recover import recover
 from schedwidget.trace import read_trace
-from schedwidget.widget.logs import MAX_DRAWN, LogsPanel, envelope
+from schedwidget.widget.logs import MAX_DRAWN, DesignerLogs, LogsPanel, envelope
 
 STEPS_PER_EPOCH = 20
 #: 40 updates of warmup, then a cosine over 200: 12 epochs of 20 updates.
@@ -232,6 +232,46 @@ class TestClose:
         assert len(_instances) > before + 50
         p.close()
         assert len(_instances) == before
+
+
+class TestInTheDesigner:
+    """DesignerLogs: the panel as a designer tab reads the designer's design and proposes what it adopts."""
+
+    def test_follows_and_adopts(self):
+        """A new design is checked again; the recovered design and the suggested peak become the designer's."""
+        d = sw.ScheduleDesigner()  # the demo: 90 epochs of 1,150 steps
+        rates, loss = range_log()
+        p = DesignerLogs(d, range_logs=(rates, loss))
+        t = np.arange(d.steps)
+        p.use_trace(d.schedule(t // 1_150), "per epoch")
+        assert p.verdict.fault == "per_epoch" and p.steps_per_epoch == 1_150 and p.steps_box.value == 103_500
+        other = sw.warmup(sw.cosine(0.05, 0.0, steps=97_750), 5_750)
+        d.schedule = other
+        assert p.design == other and p.verdict.fault == "other"
+        p.use_trace(other(t), "as designed")
+        assert p.verdict.matches
+        p.recover_button.click()
+        p.use_recovered.click()
+        assert d.schedule == p.recovery.design == other and d.error == ""
+        p.use_peak.click()
+        assert d.schedule == read_range_test(rates, loss).design(103_500) and d.error == ""
+
+    def test_hidden_tab_waits_and_close_stops(self):
+        """In a hidden tab it reads the design only when shown; closed, it no longer follows and leaves nothing."""
+        d = sw.ScheduleDesigner(sw.cosine(0.1, steps=100))
+        before = len(_instances)
+        p = DesignerLogs(d, tab=4)  # as if in the Numbers pane: hidden while Compare (0) is shown
+        assert p.design == d.schedule
+        d.schedule = sw.cosine(0.2, steps=100)
+        assert p.stale and p.design == sw.cosine(0.1, steps=100)
+        d.tabs.selected_index = 4
+        assert not p.stale and p.design == sw.cosine(0.2, steps=100)
+        d.tabs.selected_index = 0
+        p.close()
+        assert len(_instances) == before
+        d.tabs.selected_index = 4
+        d.schedule = sw.cosine(0.3, steps=100)
+        assert p.design == sw.cosine(0.2, steps=100) and d.error == ""
 
 
 def test_envelope_keeps_order_and_extremes():

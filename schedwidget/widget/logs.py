@@ -40,11 +40,11 @@ from ..sample import trace as curve_points
 from ..schedule import Schedule, complain
 from ..svg import nice_ticks  # one tick rule for the live and static curves
 from ..trace import Trace, read_trace
-from .guard import quietly
+from .guard import Panel, quietly
 from .theme import (AMBER, CURVE, CURVE_FIGURE, ERROR_RED, JOIN, METRIC, TOGGLE, RateAxes, figure_layout, lines,
                     tidy_html)
 
-__all__ = ["LogsPanel", "envelope", "close_all", "MAX_DRAWN"]
+__all__ = ["LogsPanel", "DesignerLogs", "envelope", "close_all", "MAX_DRAWN"]
 
 #: A trace longer than this is drawn as a min/max envelope of about this many points.
 MAX_DRAWN = 3000
@@ -497,3 +497,39 @@ def _legend(rows: list[tuple[str, str]]) -> str:
                     f'<span style="display:inline-block;width:18px;height:3px;background:{c}"></span>'
                     f'{html.escape(name)}</span>' for c, name in rows)
     return f'<div style="display:flex;flex-wrap:wrap">{items}</div>'
+
+
+class DesignerLogs(Panel, LogsPanel):
+    """The logs panel as one of the designer's tabs: checks against the designer's design, adopts into it.
+
+    It follows the designer's panel rules (``guard.Panel``): it reads the design, the clock and the budget
+    when they change and it is on screen (or when its tab is shown), and an adopted design is proposed to the
+    designer (``designer.propose``), whose message line gets any refusal.  The designer starts it as it starts
+    Replay and Rescale: ``later[i] = DesignerLogs`` (called with the designer and ``tab=i``).
+    """
+
+    def __init__(self, designer: Any, tab: int | None = None, **kwargs: Any) -> None:
+        LogsPanel.__init__(self, designer.schedule, steps=designer.steps, on_adopt=designer.guarded(designer.propose),
+                           steps_per_epoch=designer.steps_per_epoch if designer.unit == "step" else None, **kwargs)
+        self.listen(designer, tab, now=True)
+
+    def shows(self) -> tuple:
+        d = self.d
+        return d.schedule, d.unit, d.steps_per_epoch, d.steps
+
+    def paint(self) -> None:
+        d = self.d
+        self.steps_per_epoch = d.steps_per_epoch if d.unit == "step" else None
+        if self.steps_box.value != d.steps:
+            self.steps_box.value = d.steps  # the proposed starting design fills the designer's budget
+        self.design = d.schedule  # checks the trace again (observe("design")) when the design changed
+
+    def heard(self, change: dict | None = None) -> None:
+        if self.comm is not None:  # a closed panel no longer follows the designer
+            Panel.heard(self, change)
+
+    def close(self) -> None:
+        """Stop following the designer, then close every widget of the panel."""
+        if self.comm is not None:
+            self.d.unobserve(self.heard, names="revision")
+        LogsPanel.close(self)
