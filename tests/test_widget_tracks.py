@@ -181,3 +181,16 @@ class TestLogsTab:
         assert d.schedule == logs.adopted
         assert np.allclose(d.schedule(np.arange(100)), run, rtol=1e-9)
         assert d.stages.form is not None
+
+
+class TestAxes:
+    """Each companion's y axis has round labels inside its range; its x axis has the curve's labels."""
+
+    def test_round_labels(self):
+        """Momentum 0.85 .. 0.95 is labelled 0.85, 0.9, 0.95 (not the range's ends); the x labels are the curve's."""
+        d = ScheduleDesigner(one_cycle_tracks(10_000))
+        m = d.tracks_panel.multiples["momentum"]
+        assert m.y_axis.tick_values.tolist() == [0.85, 0.9, 0.95]
+        assert m.ys.min <= 0.85 and m.ys.max >= 0.95
+        assert np.array_equal(m.x_axis.tick_values, d.canvas.x_axis.tick_values)
+        assert d.tracks_panel.multiples["weight_decay"].y_axis.tick_values.tolist() == [0.00045, 0.0005, 0.00055]

@@ -50,7 +50,8 @@ class TestWhereTheWarmupGoes:
         assert c.text.options == (("before the decay", "before"), ("laid over the decay's first ticks", "over"))
         assert c.text.value == "over" and c.text.description == "goes"
         assert set(CHOICE_WORDS["place"]) == {"before", "over"}
-        assert "0–5 (over the stages)" in d.stages.list.children[0].children[0].children[0].value
+        assert d.stages.list.children[1].children[0].children[0].value.startswith("stage 0 · epochs 0–90")
+        assert d.readout.solver.parameter.value == "target.peak"  # the menu is never empty
         assert d.stages.note.value == ""  # editable: no 'edit it in code' note
 
     def test_switching_keeps_positions_of_the_run(self):

@@ -110,8 +110,9 @@ class SolveRow(Panel, W.VBox):
         chosen = self.parameter.value
         if list(self.parameter.options) != options:
             self.parameter.options = options
-            if chosen in {p for _w, p in options}:
-                self.parameter.value = chosen
+            held = [p for _w, p in options]
+            if held:  # the one chosen before when it is still there, else the first (never an empty menu)
+                self.parameter.value = chosen if chosen in held else held[0]
         if self._said is not None and self._said != s:
             self._said = None
             put(self.message, "")

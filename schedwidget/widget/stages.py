@@ -73,8 +73,8 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
                                      layout={"width": "22em", "flex": "0 0 auto", "display": "none"})
         self.group_menu.add_class("sw-group")
         self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3,450, '
-                           f'3 ep or 6\u2009% of the run ({tidy_html(ROUNDING)}); '
-                           'rates as 3e-4 or 1\u2009% of the peak.</div>')
+                           '3 ep or 6\u2009% of the run; rates as 3e-4 or 1\u2009% of the peak. Rounding: '
+                           f'{tidy_html(ROUNDING)}.</div>')
         self.rule.add_class("sw-rule")
         self.fill: int | None = None  # the stage chosen to fill the rest of the run (None: the longest)
         self.list = W.VBox([])
@@ -192,7 +192,7 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
         u = self.d.unit
         if where == "warm":
             w = form.warm.steps
-            return f"warmup · {u}s 0–{w:,}" + ("" if form.warm.before else " (over the stages)")
+            return f"warmup · {u}s 0–{w:,}"  # where it goes is its 'goes' menu
         i = int(where)
         s = form.stages[i]
         a = stage_span(form, i)[0]

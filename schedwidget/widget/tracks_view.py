@@ -25,6 +25,7 @@ with warnings.catch_warnings():
     from bqplot import Axis, Figure, LinearScale, Lines
 
 from ..sample import trace
+from ..svg import nice_ticks  # one tick rule for the live and static pictures
 from ..schedule import Schedule, complain
 from ..tracks import TRACK_NAMES, GroupDesigns, Tracks, per_group
 from .guard import Panel
@@ -97,7 +98,7 @@ class _Multiple:
         title, axis = TRACK_WORDS[name]
         self.line = Lines(x=np.zeros(1), y=np.zeros(1), scales={"x": xs, "y": self.ys},
                           colors=[TRACK_COLOURS[name]], stroke_width=1.75)
-        self.y_axis = Axis(scale=self.ys, side="left", tick_format=".3~g", label="", num_ticks=3)
+        self.y_axis = Axis(scale=self.ys, side="left", tick_format=".3~g", label="")
         self.x_axis = Axis(scale=xs, label="", tick_format="~s", num_ticks=6)
         self.figure = Figure(marks=[self.line], axes=[self.x_axis, self.y_axis], animation_duration=0,
                              padding_y=0.05, fig_margin=TRACK_FIGURE[1], layout=W.Layout(**figure_layout(TRACK_FIGURE)))
@@ -126,6 +127,10 @@ class _Multiple:
             bottom, top = 0.0, nice_ceiling(hi * 1.02) if hi > 0 else 1.0
         with self.ys.hold_sync():
             self.ys.min, self.ys.max = float(bottom), float(top)
+        # round labels inside the range (bqplot's own labelled the range's ends: 0.974, 0.000557)
+        levels = np.array([float(f"{t:.12g}") for t in nice_ticks(float(bottom), float(top), 3)])
+        if self.y_axis.tick_values is None or not np.array_equal(self.y_axis.tick_values, levels):
+            self.y_axis.tick_values = levels
         with self.line.hold_sync():
             self.line.x = tr.x * factor
             self.line.y = y
