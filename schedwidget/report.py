@@ -141,15 +141,16 @@ def _tracked(d: Design, head, steps, spe, batch, compare, unit, base_lr, name) -
     from .track_readouts import tracks_sentence, tracks_svg
     from .tracks import as_groups
 
-    if list(compare):
-        raise complain("report", "compare", f"{len(compare)} designs", "none with tracks or per-group designs",
-                       "compare the rates alone: report(d.schedule, compare=...)")
+    if not isinstance(compare, Sequence) or len(compare):
+        raise complain("report", "compare", type(compare).__name__, "no compared designs with tracks or "
+                       "per-group designs", "compare the rates alone: report(d.schedule, compare=...)")
     if base_lr is not None:
         raise complain("report", "base_lr", base_lr, "None with tracks or per-group designs",
                        "their rates are absolute: the snippet sets each group's lr directly")
     g = as_groups("report", d.tracks)
     sizes = [t.length if t.length is not None else default_window(t.rate) for t in g.groups]
-    n = steps if steps is not None else (None if all(t.length is not None for t in g.groups) else max(sizes))
+    open_ended = any(t.length is None for t in g.groups)
+    n = steps if steps is not None else (max(sizes) if open_ended else None)
     single = len(g) == 1 and g.names is None
     rates = [("" if single else str(g.names[i] if g.names else i),
               facts(t.rate, steps=n if n is not None else sizes[i], steps_per_epoch=spe, unit=unit, batch=batch))
@@ -157,10 +158,10 @@ def _tracked(d: Design, head, steps, spe, batch, compare, unit, base_lr, name) -
     names = ", ".join(k.replace("_", " ") for k, _ in g.groups[0].items())
     what = f"tracks ({names})" if single else f"{len(g)} param groups"
     size = max(f.steps for _, f in rates)
-    return _Parts(head, what, unit, spe, rates, tracks_sentence(d.tracks, n, spe, unit),
-                  [(f"{k}: " if k else "") + c for k, f in rates for c in f.cautions],
-                  _budget_words(None if any(t.length is None for t in g.groups) else size, size, unit, spe), tracks_svg(d.tracks, n, unit=unit,
-                                                                                     steps_per_epoch=spe),
+    cautions = [(f"{k}: " if k else "") + c for k, f in rates for c in f.cautions]
+    return _Parts(head, what, unit, spe, rates, tracks_sentence(d.tracks, n, spe, unit), cautions,
+                  _budget_words(None if open_ended else size, size, unit, spe),
+                  tracks_svg(d.tracks, n, unit=unit, steps_per_epoch=spe),
                   to_python(d.tracks, name=name, unit=unit, steps_per_epoch=spe),
                   to_torch(d.tracks, None, unit=unit, name=name, steps_per_epoch=spe),
                   "no BASE_LR: the snippet sets each group's lr and tracked values directly",
@@ -235,13 +236,14 @@ def _html(p: _Parts) -> str:
     tables = []
     for key, f in p.rates:
         group, of = (f' data-group="{_h(key)}"', f" ({_h(key)} rate)") if key else ("", "")
+        numbers = [f'<tr data-fact="{k}"{group}><th>{_h(w)}</th><td class="n">{_h(v)}</td>{cells(t)}</tr>'
+                   for k, w, v, t in _fact_rows(f, u)]
+        joins = [f'<tr data-row="{i}"{group}><th>{_h(label)}</th>{cells(t)}<td class="n">{r!r}</td></tr>'
+                 for i, (label, t, r) in enumerate(f.boundary)]
         tables += [f'<div><h2>Numbers{of}</h2><table class="facts"><tr><th>what</th><th>value</th><th>{u}</th>{ep}'
-                   "</tr>", *[f'<tr data-fact="{k}"{group}><th>{_h(w)}</th><td class="n">{_h(v)}</td>{cells(t)}</tr>'
-                               for k, w, v, t in _fact_rows(f, u)], "</table></div>",
+                   "</tr>", *numbers, "</table></div>",
                    f'<div><h2>Rates at the joins{of}</h2><table class="boundary"><tr><th>where</th><th>{u}</th>{ep}'
-                   "<th>rate</th></tr>", *[f'<tr data-row="{i}"{group}><th>{_h(label)}</th>{cells(t)}'
-                                           f'<td class="n">{r!r}</td></tr>' for i, (label, t, r) in enumerate(f.boundary)],
-                   "</table></div>"]
+                   "<th>rate</th></tr>", *joins, "</table></div>"]
     cautions = "".join(f"<li>{_h(c)}</li>" for c in p.cautions) or '<li class="none">none</li>'
     sentence = "<br>".join(_h(x) for x in p.sentence.splitlines())
     out = ['<!DOCTYPE html>', '<html lang="en">', '<head>', '<meta charset="utf-8">',

@@ -130,9 +130,10 @@ class TestContents:
         from schedwidget import to_python, to_torch
 
         form, text = made
-        assert read_block(text, form, "python", "python").rstrip("\n") == to_python(design.schedule, steps_per_epoch=SPE).rstrip("\n")
-        assert read_block(text, form, "torch", "python").rstrip("\n") == to_torch(design.schedule, 0.4,
-                                                                      steps_per_epoch=SPE).rstrip("\n")
+        python = to_python(design.schedule, steps_per_epoch=SPE)
+        torch = to_torch(design.schedule, 0.4, steps_per_epoch=SPE)
+        assert read_block(text, form, "python", "python").rstrip("\n") == python.rstrip("\n")
+        assert read_block(text, form, "torch", "python").rstrip("\n") == torch.rstrip("\n")
         said = "BASE_LR = 0.4: the design's peak (0.4), the default"
         assert (html.escape(said) if form == "html" else said) in text
 
