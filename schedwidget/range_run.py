@@ -146,6 +146,7 @@ def run_range_test(model: Any, loader: Any, loss_fn: Callable[..., Any] | None, 
     rates = sweep_rates(lowest, highest, updates)
     if stop_above is not None:
         ok = isinstance(stop_above, (int, float, np.floating, np.integer)) and not isinstance(stop_above, bool)
+        ok = ok and not (isinstance(stop_above, int) and abs(stop_above) > 10 ** 300)  # float() would overflow
         if not ok or not (1.0 < float(stop_above) <= 1e6):
             raise complain(OWNER, "stop_above", stop_above, "None or a factor in (1, 1e6]",
                            "the run stops when the running loss passes this many times its lowest")

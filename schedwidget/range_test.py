@@ -213,6 +213,8 @@ class RangeReading:
 
 def _checked(name: str, value: Any, lo: float, hi: float, allowed: str) -> float:
     ok = isinstance(value, (int, float, np.floating, np.integer)) and not isinstance(value, bool)
+    if ok and isinstance(value, int) and abs(value) > 10 ** 300:  # float() of a huge int overflows: refuse it first
+        ok = False
     if not ok or not (lo < float(value) < hi):
         raise complain(OWNER, name, value, allowed)
     return float(value)

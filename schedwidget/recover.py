@@ -143,12 +143,20 @@ def _recover(t: np.ndarray, r: np.ndarray, rtol: float, atol: float) -> Recovery
 
 
 def _float32_logged(r: np.ndarray) -> bool:
-    """Whether every rate is a float32 value and some are long decimals (0.10000000149011612, not 0.5 or 2**-14)."""
+    """Whether every rate is a float32 value and some are a short decimal rounded to float32: 0.10000000149011612
+    is 0.1 as float32, a logged 0.1.  A long decimal that is no short float32 either (2 ** -18 = 3.814697265625e-06,
+    float32 3.8146973e-06; 2 ** -20, float32 9.536743e-07) is an exact rate of a design, such as 0.5 ** t, and is
+    read to 1e-9."""
     with np.errstate(over="ignore"):  # a rate beyond float32's range is not a float32 log
         if not np.array_equal(r.astype(np.float32).astype(np.float64), r):
             return False
     sample = r[:: max(1, r.size // 1000)]
-    return any(len(repr(float(x)).replace("-", "").replace(".", "").lstrip("0").split("e")[0]) > 12 for x in sample)
+    return any(_digits(repr(float(x))) > 12 and _digits(str(np.float32(x))) <= 5 for x in sample)
+
+
+def _digits(text: str) -> int:
+    """Significant digits of a number's shortest repr (``'3.8146973e-06'`` -> 8)."""
+    return len(text.replace("-", "").replace(".", "").split("e")[0].lstrip("0").rstrip("0") or "0")
 
 
 def _number(name: str, value: Any, lo: float, hi: float) -> float:

@@ -116,7 +116,7 @@ def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool], budg
     while i < len(out) - 1:
         first = out[i]
         j = i + 1
-        while j < len(out) and out[j].kind == first.kind:
+        while j < len(out) and _alike(out[j], first):
             j += 1
         run = j - i
         done = False
@@ -155,6 +155,21 @@ def _fold_restarts(parts: list[Schedule], fits: Callable[[Schedule], bool], budg
                 break
         i += 1
     return out
+
+
+def _alike(a: Schedule, b: Schedule) -> bool:
+    """Whether ``a`` may be another cycle of ``b``: the same kind, or rates in one ratio at their first ticks (a
+    cycle fitted as an exponential decay and the next, half as high, as the geometric ramp through the same rates)."""
+    if a.kind == b.kind:
+        return True
+    if a.length is None or a.length != b.length:
+        return False
+    u = np.arange(min(a.length, 4096))
+    ya, yb = a(u), b(u)
+    if not yb[0] > 0:
+        return False
+    c = ya[0] / yb[0]
+    return bool(np.all(np.abs(ya - c * yb) <= 1e-9 * np.maximum(np.abs(ya), np.abs(c * yb))))
 
 
 def _growths(lengths: list[int]) -> set[float]:

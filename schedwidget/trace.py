@@ -382,14 +382,24 @@ def _position(owner: str, name: str, value: Any, header: list[str], where: str) 
 
 
 # ------------------------------------------------------------------ TensorBoard
-def _event_files(path: str) -> Iterable[str]:
-    if os.path.isdir(path):
-        for root, _, files in os.walk(path):
-            for f in files:
-                if "tfevents" in f:
-                    yield os.path.join(root, f)
-    else:
+#: Most entries looked at when a folder is searched for event files (a run's log folder holds a handful; a path such
+#: as "/" must be refused in bounded time, not walked).
+MAX_FOLDER_ENTRIES = 10_000
+
+
+def _event_files(path: str, owner: str = "read_trace") -> Iterable[str]:
+    if not os.path.isdir(path):
         yield path
+        return
+    seen = 0
+    for root, dirs, files in os.walk(path):
+        seen += len(dirs) + len(files)
+        if seen > MAX_FOLDER_ENTRIES:
+            raise complain(owner, "source", path, f"an event file or a run's log folder of at most "
+                           f"{MAX_FOLDER_ENTRIES:,} files and folders", "name the run's own log folder")
+        for f in files:
+            if "tfevents" in f:
+                yield os.path.join(root, f)
 
 
 def _from_tensorboard(path: str, tag: Any, owner: str, one: bool) -> list[Trace]:
@@ -399,7 +409,7 @@ def _from_tensorboard(path: str, tag: Any, owner: str, one: bool) -> list[Trace]
     except ImportError:
         raise complain(owner, "source", path, "a CSV file, or a TensorBoard log with the tensorboard package "
                        "installed", "pip install 'schedwidget[tensorboard]' to read event files") from None
-    files = list(_event_files(path))
+    files = list(_event_files(path, owner))
     if not files:
         raise complain(owner, "source", path, "a TensorBoard event file or a folder holding some",
                        "no file with 'tfevents' in its name was found")

@@ -193,3 +193,28 @@ def test_reading_traces_imports_neither_pandas_nor_tensorboard():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert json.loads(out.stdout.strip().splitlines()[-1]) == []
+
+
+def test_a_wide_folder_is_refused_not_walked(tmp_path, monkeypatch):
+    """A folder is searched for event files only up to MAX_FOLDER_ENTRIES entries: recover(Path('/')) walked the
+    whole file system (found by the fuzz suite as a call over its 1 s CPU limit)."""
+    pytest.importorskip("tensorboard")
+    monkeypatch.setattr(trace_mod, "MAX_FOLDER_ENTRIES", 5)
+    for i in range(3):
+        sub = tmp_path / f"run{i}"
+        sub.mkdir()
+        for j in range(2):
+            (sub / f"note{j}.txt").write_text("x")
+    with pytest.raises(ScheduleError, match="at most 5 files and folders"):
+        read_trace(tmp_path)
+
+
+@pytest.mark.parametrize("call", [
+    lambda: __import__("schedwidget").read_range_test([0.857] * 21, onset=10 ** 400),
+    lambda: __import__("schedwidget").sweep_rates(-(10 ** 400), 1.0, 10),
+    lambda: __import__("schedwidget").run_range_test(None, None, None, None, stop_above=10 ** 400),
+])
+def test_huge_integers_are_refused_by_name(call):
+    """A 400-digit int where a number is asked gets a ScheduleError, not float()'s OverflowError (fuzz finding)."""
+    with pytest.raises(ScheduleError):
+        call()
