@@ -36,6 +36,7 @@ __all__ = [
     "tracks", "Tracks", "per_group", "GroupDesigns", "inverse_momentum", "tracks_from_spec", "load_tracks",
     "check_run", "Verdict", "FAULTS", "recover", "Recovery",
     # loaded on first use (below): the clock, the tracks' readouts and exports, traces, the range test
+    "to_jax", "to_keras",
     "TrackClock", "to_torch_tracks", "track_facts", "tracks_sentence", "tracks_svg", "decay_per_step",
     "read_trace", "read_traces", "Trace",
     "read_range_test", "RangeReading", "run_range_test", "RangeRun", "sweep_rates",
@@ -46,6 +47,7 @@ __all__ = [
 #: submodule is imported anywhere, Python binds the package attribute to the module and __getattr__ never runs
 #: (``from schedwidget import check_run`` then gave the module: "'module' object is not callable").
 _LATER = {
+    "to_jax": "export_jax", "to_keras": "export_keras",
     "TrackClock": "clock", "to_torch_tracks": "track_export",
     "track_facts": "track_readouts", "tracks_sentence": "track_readouts", "tracks_svg": "track_readouts",
     "decay_per_step": "track_readouts",
