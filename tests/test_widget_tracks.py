@@ -74,10 +74,10 @@ class TestCompanions:
         d.tracks = None
         assert d.tracks_panel.shown() == () and d.schedule == t.rate
 
-    def test_read_only_note(self):
-        """The panel says the companions are shown as they are and set in code."""
+    def test_note(self):
+        """The panel says how to edit another track."""
         d = ScheduleDesigner(one_cycle_tracks())
-        assert "set a track in code" in d.tracks_panel.note.value
+        assert "edit track" in d.tracks_panel.note.value
 
     def test_with_rate(self):
         """with_rate replaces the rate, stretches the companions and refuses an open-ended rate with a reason."""
@@ -194,3 +194,60 @@ class TestAxes:
         assert m.ys.min <= 0.85 and m.ys.max >= 0.95
         assert np.array_equal(m.x_axis.tick_values, d.canvas.x_axis.tick_values)
         assert d.tracks_panel.multiples["weight_decay"].y_axis.tick_values.tolist() == [0.00045, 0.0005, 0.00055]
+
+
+class TestEditATrack:
+    """The stages panel edits a companion track with the same controls, chosen in its 'edit track' menu."""
+
+    def test_menu_lists_the_tracks(self):
+        """The menu lists the tracks the group holds, in words; hidden without tracks."""
+        d = ScheduleDesigner(one_cycle_tracks())
+        assert d.stages.track_menu.options == (("learning rate", "rate"), ("momentum", "momentum"),
+                                               ("weight decay", "weight_decay"))
+        assert d.stages.track_menu.layout.display == "flex"
+        assert ScheduleDesigner(cosine(0.1, steps=10)).stages.track_menu.layout.display == "none"
+
+    def test_edit_the_momentum(self):
+        """Choosing momentum puts it on the curve and in the stages; an edit lands in the momentum track only; the
+        rate is drawn under the curve meanwhile; back on the rate, the rate is the design again."""
+        t = one_cycle_tracks()
+        d = ScheduleDesigner(t)
+        d.stages.track_menu.value = "momentum"
+        assert d.track == "momentum" and d.schedule == t.momentum
+        assert "momentum" in d.canvas.y_title.value
+        assert d.tracks_panel.shown() == ("rate", "weight_decay")
+        d.control(0, "start").text.value = 0.9
+        assert d.error == ""
+        assert d.tracks.momentum.parts[0].start == 0.9 and d.tracks.rate == t.rate
+        d.stages.track_menu.value = "rate"
+        assert d.schedule == t.rate and "learning rate" in d.canvas.y_title.value
+        assert d.tracks_panel.shown() == ("momentum", "weight_decay")
+
+    def test_out_of_range_is_refused(self):
+        """A momentum of 1 or more is refused with the core's message; the last valid track stays."""
+        t = one_cycle_tracks()
+        d = ScheduleDesigner(t)
+        d.track = "momentum"
+        d.control(0, "start").text.value = 1.2
+        assert "momentum" in d.error and d.tracks == t and d.schedule == t.momentum
+
+    def test_weight_decay(self):
+        """A constant weight decay is edited as a constant stage."""
+        d = ScheduleDesigner(one_cycle_tracks())
+        d.track = "weight_decay"
+        d.control(0, "lr").text.value = 1e-3
+        assert d.tracks.weight_decay == flat(1e-3)
+
+    def test_unknown_track(self):
+        """A track the design does not hold is refused naming the ones it holds."""
+        d = ScheduleDesigner(one_cycle_tracks())
+        with pytest.raises(ScheduleError, match="'momentum', 'weight_decay'"):
+            d.track = "beta2"
+
+    def test_group_without_the_track(self):
+        """Another group without the edited track goes back to its rate."""
+        d = ScheduleDesigner(backbone_and_head())
+        d.group = 1
+        d.track = "momentum"
+        d.group = 0
+        assert d.track == "rate" and d.schedule == backbone_and_head().groups[0].rate

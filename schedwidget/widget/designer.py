@@ -11,6 +11,7 @@ an invalid proposal never replaces the design: its message goes to ``error``.
 
 from __future__ import annotations
 
+import html
 import os
 from contextlib import contextmanager
 from time import perf_counter
@@ -34,7 +35,7 @@ from .replay import ReplayPanel
 from .rescale import RescalePanel
 from .stages import BudgetMethods, StagesPanel
 from .theme import ERROR_RED, Tabs, lines, tidy_html
-from .tracks_view import TracksPanel, as_held, check_group, group_tracks, with_rate
+from .tracks_view import TRACK_WORDS, TracksPanel, as_held, check_group, group_tracks, with_track
 
 __all__ = ["ScheduleDesigner", "demo_design", "READOUT_EXACT"]
 
@@ -73,6 +74,8 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     tracks = AnyTrait(None, allow_none=True, help="tracks(...) or per_group(...) whose rate (of ``group``) is "
                       "``schedule``; None when the designer holds a rate only")
     group = Int(0, help="the param group whose rate the stages edit (0 unless ``tracks`` is per_group(...))")
+    track = Unicode("rate", help="the track the stages edit: 'rate', or a companion the tracks hold ('momentum', "
+                    "'beta2', 'weight_decay')")
     tracks_problem = Unicode("", help="why the companion tracks could not follow the last change of the rate")
     revision = Int(0, help="bumped once per accepted change, when every trait above holds its new value")
 
@@ -154,12 +157,29 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     def _check_group(self, proposal: dict) -> int:
         return check_group(self.tracks, proposal["value"])
 
-    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned", "tracks", "group")
+    @validate("track")
+    def _check_track(self, proposal: dict) -> str:
+        name, held = proposal["value"], self.tracks
+        named = () if held is None else group_tracks(held, self.group).names()
+        if name != "rate" and name not in named:
+            raise complain("ScheduleDesigner", "track", name, "'rate' or a track the design holds: "
+                           + (", ".join(repr(n) for n in named) or "'rate' only (no tracks)"))
+        return name
+
+    @validate("schedule")
+    def _check_schedule(self, proposal: dict) -> Schedule:
+        """A companion track's design must stay in its range and on the rate's clock (the core's check)."""
+        s = proposal["value"]
+        if getattr(self, "tracks", None) is not None and self.track != "rate" and isinstance(s, Schedule):
+            with_track(self.tracks, self.group, self.track, s)  # raises ScheduleError naming the track
+        return s
+
+    @observe("schedule", "steps", "steps_per_epoch", "unit", "batch", "pinned", "tracks", "group", "track")
     def _changed(self, change: dict) -> None:
         with self._one_redraw():
             if change["name"] == "schedule":
                 self._rate_to_tracks()
-            elif change["name"] in ("tracks", "group"):
+            elif change["name"] in ("tracks", "group", "track"):
                 self._tracks_to_rate(change)
             self._dirty = True  # the run's length (steps) never follows the design: a mismatch is a caution
 
@@ -167,12 +187,12 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
     def _rate_to_tracks(self) -> None:
         """The held tracks follow an accepted rate (companions stretched to its length); why not, when not."""
         held = self.tracks
-        if held is None or group_tracks(held, self.group).rate == self.schedule:
+        if held is None or getattr(group_tracks(held, self.group), self.track) == self.schedule:
             if self.tracks_problem:
                 self.tracks_problem = ""  # the rate is back to one the tracks hold
             return
         try:
-            self.tracks = with_rate(held, self.group, self.schedule)
+            self.tracks = with_track(held, self.group, self.track, self.schedule)
             self.tracks_problem = ""
         except ScheduleError as exc:
             self.tracks_problem = f"the companion tracks keep their last shape: {exc}"
@@ -181,16 +201,32 @@ class ScheduleDesigner(BudgetMethods, FileMethods, PinMethods, DisplayMethods, W
         """New tracks or another group: the stages edit that group's rate."""
         held = self.tracks
         if held is None:
+            if self.track != "rate":
+                self.track = "rate"
             if self.group != 0:
                 self.group = 0
+            self._say_track()
             return
         if change["name"] == "tracks" and not (isinstance(held, GroupDesigns) and self.group < len(held)):
             if self.group != 0:
                 self.group = 0  # runs this again for the group
                 return
+        if getattr(group_tracks(held, self.group), self.track) is None:
+            self.track = "rate"  # runs this again for the rate
+            return
         self._start_tracks()
         self.tracks_problem = ""
-        self.schedule = group_tracks(held, self.group).rate
+        self.schedule = getattr(group_tracks(held, self.group), self.track)
+        self._say_track()
+
+    def _say_track(self) -> None:
+        """The curve's axis title names the track the stages edit."""
+        canvas = getattr(self, "canvas", None)
+        if canvas is not None:
+            words = html.escape(TRACK_WORDS[self.track][0])
+            said = f"<span style=\"font-size:12px;color:#374151\">{words}</span>"
+            if canvas.y_title.value != said:
+                canvas.y_title.value = said
 
     def _start_tracks(self) -> None:
         if self.tracks is not None and getattr(self, "companions", None) is not None and self.tracks_panel is None:

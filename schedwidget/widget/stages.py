@@ -24,6 +24,7 @@ from .budget_row import BudgetMethods, BudgetRow
 from .stage_edits import StageEdits
 from .guard import Panel, close_tree
 from .theme import BORDER, tidy_html
+from .tracks_view import TRACK_WORDS, group_tracks
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -72,6 +73,11 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
                                              "a design of its own)", style=LABEL,
                                      layout={"width": "22em", "flex": "0 0 auto", "display": "none"})
         self.group_menu.add_class("sw-group")
+        self.track_menu = W.Dropdown(options=[("learning rate", "rate")], value="rate", description="edit track",
+                                     tooltip="the track the stages below edit: the rate, or a companion (momentum, "
+                                             "second beta, weight decay) on the same clock", style=LABEL,
+                                     layout={"width": "22em", "flex": "0 0 auto", "display": "none"})
+        self.track_menu.add_class("sw-track")
         self.rule = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Type lengths as 3,450, '
                            '3 ep or 6\u2009% of the run; rates as 3e-4 or 1\u2009% of the peak. Rounding: '
                            f'{tidy_html(ROUNDING)}.</div>')
@@ -87,16 +93,22 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
         self.batch.observe(g(self._batch_edited), names="value")
         self.add.on_click(g(self._add))
         self.group_menu.observe(g(self._group_chosen), names="value")
+        self.track_menu.observe(g(self._track_chosen), names="value")
         wrap = {"flex_flow": "row wrap"}
         super().__init__([W.HBox([self.total, self.unit], layout=wrap), W.HBox([self.spe, self.batch], layout=wrap),
-                          self.total_words, self.rule, self.group_menu, self.note, self.list,
+                          self.total_words, self.rule, self.group_menu, self.track_menu, self.note, self.list,
                           W.HBox([self.shape, self.add], layout=wrap)])
         d.observe(self._refused, names="error")
         self.listen(d)
 
     def shows(self) -> tuple:
         d = self.d
-        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch, d.tracks, d.group
+        return d.schedule, d.steps, d.unit, d.steps_per_epoch, d.batch, d.tracks, d.group, d.track
+
+    def _track_chosen(self, change: dict) -> None:
+        if self._quiet or change["new"] is None:
+            return
+        self.d.track = change["new"]
 
     def _group_chosen(self, change: dict) -> None:
         if self._quiet or change["new"] is None:
@@ -106,6 +118,15 @@ class StagesPanel(StageEdits, BudgetRow, Panel, W.VBox):
     def _show_groups(self) -> None:
         """The group menu: shown when the designer holds a design per param group, on the group being edited."""
         held = self.d.tracks
+        shown = "none" if held is None else "flex"
+        if self.track_menu.layout.display != shown:
+            self.track_menu.layout.display = shown
+        if held is not None:
+            names = group_tracks(held, self.d.group).names()
+            options = [(TRACK_WORDS[n][0].split(" (")[0], n) for n in names]  # short: the menu is narrow
+            if list(self.track_menu.options) != options:
+                self.track_menu.options = options
+            put(self.track_menu, self.d.track)
         groups = held if isinstance(held, GroupDesigns) else None
         display = "none" if groups is None else "flex"
         if self.group_menu.layout.display != display:

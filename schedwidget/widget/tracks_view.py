@@ -3,8 +3,8 @@
 Small multiples: one short figure per companion track the design holds, stacked under the curve panel.  Every
 figure uses the curve panel's own x scale (the same object, so the same clock and the same range, also when
 the x axis switches between steps and epochs), and a y axis of its own.  Points come from
-``schedwidget.sample.trace`` like the rate's.  The tracks are shown, not edited here: the stages panel edits
-the rate; a companion track is set in code (``designer.tracks = tracks(...)``).
+``schedwidget.sample.trace`` like the rate's.  The track the stages panel edits (``designer.track``: the rate, or a
+companion chosen in its 'edit track' menu) is the main curve; every other track is drawn here.
 
 ``with_rate`` is the pure part: the designer's tracks with the rate (of one group) replaced, the companions
 stretched in proportion when the rate's length changes (they run on the rate's clock).
@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import html
 import warnings
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as W
@@ -29,20 +30,20 @@ from ..svg import nice_ticks  # one tick rule for the live and static pictures
 from ..schedule import Schedule, complain
 from ..tracks import TRACK_NAMES, GroupDesigns, Tracks, per_group
 from .guard import Panel
-from .theme import figure_layout, nice_ceiling, rate
+from .theme import CURVE, figure_layout, nice_ceiling, rate
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
 
-__all__ = ["TracksPanel", "TRACK_COLOURS", "TRACK_WORDS", "with_rate", "group_tracks", "TRACK_FIGURE", "as_held",
+__all__ = ["TracksPanel", "TRACK_COLOURS", "TRACK_WORDS", "with_rate", "with_track", "group_tracks", "TRACK_FIGURE", "as_held",
            "check_group"]
 
 #: A companion's figure: short, the curve figure's side margins (so the x axes line up).
 TRACK_FIGURE = (130, {"top": 8, "bottom": 34, "left": 64, "right": 24})
 #: Each companion in words (title, y axis) and its colour (muted, so the rate stays the main curve).
-TRACK_WORDS = {"momentum": ("momentum (SGD momentum or the first Adam beta)", "momentum"),
+TRACK_WORDS = {"rate": ("learning rate", "rate"), "momentum": ("momentum (SGD momentum or the first Adam beta)", "momentum"),
                "beta2": ("second Adam beta", "beta2"), "weight_decay": ("weight decay", "weight decay")}
-TRACK_COLOURS = {"momentum": "#7c3aed", "beta2": "#2563eb", "weight_decay": "#9a3412"}
+TRACK_COLOURS = {"rate": CURVE, "momentum": "#7c3aed", "beta2": "#2563eb", "weight_decay": "#9a3412"}
 COMPANIONS = TRACK_NAMES[1:]
 
 
@@ -73,6 +74,24 @@ def with_rate(held: Tracks | GroupDesigns, group: int, s: Schedule) -> Tracks | 
                            "the companion tracks run on the rate's clock; give the rate a length first")
         changes[name] = c.stretch(n)
     new = Tracks(**{name: changes.get(name, getattr(old, name)) for name in TRACK_NAMES})
+    if isinstance(held, Tracks):
+        return new
+    groups = list(held.groups)
+    groups[group] = new
+    return GroupDesigns(tuple(groups), held.names)
+
+
+def with_track(held: Tracks | GroupDesigns, group: int, name: str, s: Schedule) -> Tracks | GroupDesigns:
+    """``held`` with track ``name`` of group ``group`` replaced by ``s`` (the rate: ``with_rate``); a companion
+    is checked for its own range and the rate's length (ScheduleError naming the track otherwise).
+
+    >>> from schedwidget import cosine, flat, tracks
+    >>> with_track(tracks(cosine(0.1, steps=10), momentum=flat(0.9)), 0, "momentum", flat(0.95)).momentum
+    flat(lr=0.95, steps=None)
+    """
+    if name == "rate":
+        return with_rate(held, group, s)
+    new = replace(group_tracks(held, group), **{name: s})
     if isinstance(held, Tracks):
         return new
     groups = list(held.groups)
@@ -145,14 +164,14 @@ class _Multiple:
 
 
 class TracksPanel(Panel, W.VBox):
-    """The companion tracks of the designer's current group under the curve (class ``sw-tracks``), each in its
-    own short figure (``multiples[name].figure``) on the curve's x scale; a note says they are read-only here."""
+    """The tracks of the designer's current group other than the one edited, under the curve (class
+    ``sw-tracks``), each in its own short figure (``multiples[name].figure``) on the curve's x scale."""
 
     def __init__(self, designer: ScheduleDesigner) -> None:
-        self.multiples = {name: _Multiple(name, designer.canvas.xs) for name in COMPANIONS}
-        self.note = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">Companion tracks on the '
-                           "rate's clock, shown as they are: the stages above edit the rate; set a track in code "
-                           "(designer.tracks = tracks(...)). They follow the rate's length in proportion.</div>")
+        self.multiples = {name: _Multiple(name, designer.canvas.xs) for name in TRACK_NAMES}
+        self.note = W.HTML('<div style="color:#4b5563;font-size:12px;line-height:1.35">The other tracks on the '
+                           "same clock. Choose the track the stages edit with 'edit track'; companions follow the "
+                           "rate's length in proportion.</div>")
         self.note.add_class("sw-tracks-note")
         self.problem = W.HTML("")
         self.problem.add_class("sw-tracks-problem")
@@ -164,7 +183,7 @@ class TracksPanel(Panel, W.VBox):
 
     def shows(self) -> tuple:
         d = self.d
-        return d.tracks, d.group, d.steps, d.clock, d.tracks_problem
+        return d.tracks, d.group, d.track, d.steps, d.clock, d.tracks_problem
 
     def paint(self) -> None:
         d = self.d
@@ -173,7 +192,8 @@ class TracksPanel(Panel, W.VBox):
         clock = d.clock
         fmt = ",.4~g" if clock.label == "epoch" else "~s"
         for name, m in self.multiples.items():
-            m.draw(None if t is None else getattr(t, name), d.steps, clock.factor, fmt, d.canvas.x_axis.tick_values)
+            shown = None if t is None or name == d.track else getattr(t, name)  # the edited one is the curve
+            m.draw(shown, d.steps, clock.factor, fmt, d.canvas.x_axis.tick_values)
         said = d.tracks_problem
         self.problem.value = (f'<div style="color:#b45309;line-height:1.4">&#9888; {html.escape(said)}</div>'
                               if said else "")
