@@ -96,6 +96,10 @@ def highlighted(code: str) -> str:
     from pygments.lexers import PythonLexer
 
     body = highlight(code, PythonLexer(), HtmlFormatter(noclasses=True, style="friendly", nobackground=True))
+    # long lines scroll sideways: the notebook's own CSS wraps a widget's <pre> mid-word ("updat / e")
+    keep = "white-space:pre;overflow-wrap:normal;word-break:normal;"
+    body = body.replace('<pre style="', f'<pre style="{keep}', 1) if '<pre style="' in body \
+        else body.replace("<pre", f'<pre style="{keep}"', 1)
     return (f'<div style="max-height:420px;overflow:auto;border:1px solid {BORDER};padding:4px 8px;'
             f'font-size:12px;background:#fafafa">{body}</div>')
 
@@ -132,7 +136,7 @@ class ExportPanel(Panel, W.VBox):
         self.language = W.ToggleButtons(options=[(words, value) for words, value, _, _ in TARGETS],
                                         value="Python", description="code",
                                         tooltips=[what for _, _, _, what in TARGETS],
-                                        style={"button_width": "11em", "description_width": "3em"},
+                                        style={"button_width": "11em", "description_width": "3.6em"},
                                         layout=dict(TOGGLE))
         self.language.add_class("sw-export-target")
         self.base = Entry(description="base rate", placeholder="the peak", continuous_update=False,
@@ -165,7 +169,7 @@ class ExportPanel(Panel, W.VBox):
         self.report_path.add_class("sw-report-path")
         self.report_form = W.ToggleButtons(options=[("HTML", "html"), ("Markdown", "markdown")], value="html",
                                            tooltips=["one page that prints", "renders on code-hosting sites"],
-                                           style={"button_width": "6.5em"}, layout=dict(TOGGLE))
+                                           style={"button_width": "7.5em"}, layout=dict(TOGGLE))
         self.report_form.add_class("sw-report-form")
         self.report_button = W.Button(description="Write report", icon="file-text-o",
                                       tooltip="write a report of the current design, its pins drawn as grey ghosts "
