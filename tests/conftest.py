@@ -25,3 +25,17 @@ def torch():
     if not mod.__version__.startswith("2.13."):
         pytest.fail(f"the torch reference checks are pinned to torch 2.13, found {mod.__version__}")
     return mod
+
+
+#: Test modules that load JAX into the test process (Keras runs on JAX here).
+_JAX_MODULES = ("test_export_jax.py", "test_export_keras.py")
+
+
+def pytest_collection_modifyitems(session, config, items):
+    """Run the JAX and Keras checks after everything else.
+
+    JAX starts threads and registers an at-fork hook that warns (an error here: warnings are errors) whenever the
+    process forks afterwards, because a forked child of a multithreaded JAX process may deadlock.  The fuzz suite
+    runs each case in a forked child, so it must run before JAX is loaded; a stable sort keeps every other order.
+    """
+    items.sort(key=lambda item: item.path.name in _JAX_MODULES)

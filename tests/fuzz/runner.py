@@ -230,6 +230,9 @@ def run_cases(cases: list[Case], isolate: bool = True, progress: Callable[[int],
             return [run_one(i, c) for i, c in enumerate(cases)]
         finally:
             signal.signal(signal.SIGPROF, old)
+    if "jax" in sys.modules:  # a forked child of a multithreaded JAX process may deadlock (JAX warns at every fork)
+        raise RuntimeError("the fuzz runner forks one child per batch of cases: run it before JAX is imported "
+                           "(tests/conftest.py runs the JAX and Keras checks last)")
     results: list[Outcome] = []
     start = 0
     while start < len(cases):
