@@ -205,11 +205,13 @@ def length_words(ticks: int, unit: str = "step", steps_per_epoch: int | None = N
     """
     words = []
     if steps_per_epoch and unit == "step":
-        words.append(f"{ticks / steps_per_epoch:,.3g} epochs")
+        epochs = ticks / steps_per_epoch  # never an exponent: 1,000 epochs, not 1e+03
+        words.append(f"{epochs:,.3g} epochs" if epochs < 1000 else f"{epochs:,.0f} epochs")
     elif steps_per_epoch:
         words.append(f"{ticks * steps_per_epoch:,} steps")
     if total:
-        words.append(f"{100 * ticks / total:.2g} % of the run")
+        share = 100 * ticks / total  # two significant digits below 10 %, three above ('100 %', not '1e+02 %')
+        words.append(f"{share:.2g} % of the run" if share < 10 else f"{share:.3g} % of the run")
     return ("= " + " · ".join(words)) if words else ""
 
 

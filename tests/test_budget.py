@@ -292,3 +292,12 @@ class TestBudgetModules:
         out = absorb_rounding(parts, -2)
         assert out == (parts[0], cosine(0.1, steps=5), parts[2], parts[3])
         assert absorb_rounding((restarts(cosine(0.1, steps=5), cycles=2), flat(0.0)), 1) is None
+
+
+def test_length_words_never_write_an_exponent():
+    """'100 % of the run' and '1,000 epochs', not '1e+02 %' and '1e+03 epochs' (seen beside a stage filling the run)."""
+    from schedwidget.lengths import length_words
+
+    assert length_words(103_500, "step", 1150, 103_500) == "= 90 epochs · 100 % of the run"
+    assert length_words(1_150_000, "step", 1150, 1_150_000) == "= 1,000 epochs · 100 % of the run"
+    assert length_words(3450, "step", 1150, 103_500) == "= 3 epochs · 3.3 % of the run"

@@ -251,3 +251,23 @@ class TestEditATrack:
         d.track = "momentum"
         d.group = 0
         assert d.track == "rate" and d.schedule == backbone_and_head().groups[0].rate
+
+
+def test_save_and_autosave_write_every_track_while_a_companion_is_edited(tmp_path):
+    """Save writes the whole tracks value, not the track the stages happen to edit (a momentum design was written
+    as 'the design' while the momentum track was being edited); load and from_file bring the tracks back."""
+    from schedwidget import cosine, flat, load_tracks, tracks, warmup
+    from schedwidget.widget import ScheduleDesigner
+
+    held = tracks(warmup(cosine(0.1, steps=900), 100), momentum=flat(0.9, steps=1000))
+    d = ScheduleDesigner(held, autosave=tmp_path / "auto.json")
+    d.track = "momentum"
+    assert d.schedule == flat(0.9, steps=1000)
+    d.save(tmp_path / "t.json")
+    assert load_tracks(tmp_path / "t.json") == held
+    other = ScheduleDesigner(cosine(0.1, steps=1000))
+    other.load(tmp_path / "t.json")
+    assert other.tracks == held and other.schedule == held.rate
+    assert ScheduleDesigner.from_file(tmp_path / "t.json").tracks == held
+    for w in (d, other):
+        w.close()

@@ -339,13 +339,19 @@ class ExportPanel(Panel, W.VBox):
 class FileMethods:
     """The designer's spec-file methods (the export panel's buttons call them; ``autosave`` after each change)."""
 
+    def _whole(self) -> Any:
+        """What a spec file holds: the tracks or per-group designs when the designer has them (``schedule`` is then
+        the one track the stages edit, possibly a momentum), else the schedule."""
+        held = getattr(self, "tracks", None)
+        return self.schedule if held is None else held
+
     def to_spec(self) -> dict:
-        """The current design as a spec dict, with its unit and steps per epoch."""
-        return specs.to_spec(self.schedule, self.unit, self.steps_per_epoch)
+        """The current design as a spec dict, with its unit and steps per epoch (all its tracks and groups)."""
+        return specs.to_spec(self._whole(), self.unit, self.steps_per_epoch)
 
     def save(self, path: str | os.PathLike) -> os.PathLike:
-        """Write the current design to ``path`` atomically (``schedwidget.spec.save``)."""
-        return specs.save(self.schedule, path, unit=self.unit, steps_per_epoch=self.steps_per_epoch)
+        """Write the current design (all its tracks and groups) to ``path`` atomically (``schedwidget.spec.save``)."""
+        return specs.save(self._whole(), path, unit=self.unit, steps_per_epoch=self.steps_per_epoch)
 
     def load(self, path: str | os.PathLike) -> str:
         """Read a spec file into the editor (validated; loading never runs code)."""
@@ -356,7 +362,11 @@ class FileMethods:
                 self.steps_per_epoch = d.steps_per_epoch
             if d.schedule.length is not None:
                 self.steps = d.schedule.length
-            self.propose(d.schedule)
+            if d.tracks is not None:
+                self.track, self.group = "rate", 0
+                self.tracks = d.tracks
+            else:
+                self.propose(d.schedule)
         return os.fspath(path)
 
     @classmethod
@@ -365,7 +375,7 @@ class FileMethods:
         d = specs.load_design(path)
         kwargs.setdefault("unit", d.unit)
         kwargs.setdefault("steps_per_epoch", d.steps_per_epoch)
-        return cls(d.schedule, **kwargs)
+        return cls(d.schedule if d.tracks is None else d.tracks, **kwargs)
 
     def _autosave(self) -> None:
         if self.autosave is not None and self.to_spec() != self._saved:

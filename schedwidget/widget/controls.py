@@ -149,7 +149,7 @@ class ParamControl:
         elif k == "ticklist":
             self.text = W.Text(description=words, tooltip="positions on the run's clock, counted from the start of "
                                "the run: " + POSITION_FORMS, continuous_update=False, style=style,
-                               layout={"width": "17em", "flex": "0 0 auto"})
+                               layout={"width": "22em", "flex": "0 0 auto"})  # '30 ep; 60 ep; 80 ep' whole
             self.text.add_class("sw-positions")
             self.words = W.HTML("", layout=WORDS_LAYOUT)
             self.words.add_class("sw-positions-words")
