@@ -210,8 +210,8 @@ def length_words(ticks: int, unit: str = "step", steps_per_epoch: int | None = N
     elif steps_per_epoch:
         words.append(f"{ticks * steps_per_epoch:,} steps")
     if total:
-        share = 100 * ticks / total  # two significant digits below 10 %, three above ('100 %', not '1e+02 %')
-        words.append(f"{share:.2g} % of the run" if share < 10 else f"{share:.3g} % of the run")
+        share = 100 * ticks / total  # two significant digits, whole from 100 on ('100 %', not '1e+02 %')
+        words.append(f"{share:.2g} % of the run" if share < 100 else f"{share:.0f} % of the run")
     return ("= " + " · ".join(words)) if words else ""
 
 
