@@ -4,6 +4,7 @@
     python -m schedwidget export SPEC.json --to python|numpy|jax|keras|torch [--name NAME] [--base-lr X] [-o FILE]
     python -m schedwidget check SPEC.json [--steps N]
     python -m schedwidget schema
+    python -m schedwidget report SPEC.json [--compare OTHER.json ...] -o design.html|design.md
 
 A spec of tracks (momentum, beta2, weight decay beside the rate) or of one design per param group is
 shown track by track and exported as one function per track and group (``--to python``) or as
@@ -340,6 +341,11 @@ def _one_line(exc: BaseException) -> str:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit code (0 ok, 1 bad input, 141 broken pipe, 130 interrupted)."""
+    rest = list(sys.argv[1:] if argv is None else argv)
+    if rest[:1] == ["report"]:  # the design report has its own options (schedwidget.report.report_main)
+        from .report import report_main
+
+        return report_main(rest[1:])
     try:
         args = _parser().parse_args(argv)
         code = _run(args)

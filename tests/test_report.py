@@ -326,3 +326,37 @@ class TestCommandLine:
     def test_help(self, capsys):
         assert report_main(["--help"]) == 0
         assert "--compare" in capsys.readouterr().out
+
+
+def test_exported_code_carries_the_reports_fingerprint(tmp_path):
+    """The mark a reviewer compares: the report's fingerprint is in the docstring of every export of the design
+    (Python, torch, numpy, JAX, Keras text), and a changed parameter changes it in both."""
+    from schedwidget import cosine, to_python, to_torch, warmup
+    from schedwidget.export_jax import to_jax
+    from schedwidget.export_keras import to_keras
+    from schedwidget.fingerprint import fingerprint
+    from schedwidget.report import report
+
+    s = warmup(cosine(0.1, 0.001, steps=9000), 1000)
+    mark = fingerprint(s)
+    text = report(s, path=tmp_path / "r.md")
+    assert mark in text
+    for code in (to_python(s), to_torch(s, 0.1), to_python(s, array=True), to_jax(s), to_keras(s)):
+        assert f"Fingerprint: {mark}" in code
+    other = warmup(cosine(0.1, 0.002, steps=9000), 1000)
+    assert fingerprint(other) != mark and f"Fingerprint: {fingerprint(other)}" in to_python(other)
+
+
+def test_report_through_the_command_line(tmp_path):
+    """python -m schedwidget report SPEC -o FILE writes the report (one line on stdout, exit 0)."""
+    import subprocess
+    import sys
+
+    from schedwidget import cosine, save, warmup
+
+    spec = tmp_path / "d.json"
+    save(warmup(cosine(0.1, 0.001, steps=9000), 1000), spec)
+    out = subprocess.run([sys.executable, "-m", "schedwidget", "report", str(spec), "-o", str(tmp_path / "d.html")],
+                         capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0 and out.stdout.count("\n") == 1, out.stderr
+    assert (tmp_path / "d.html").read_text().lstrip().lower().startswith("<!doctype html")
