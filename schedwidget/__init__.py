@@ -9,16 +9,13 @@ from __future__ import annotations
 from typing import Any
 
 from .budget import Budget, check_length, scale_for_batch
-from .check_run import FAULTS, Verdict, check_run
 from .combine import restarts, stages, warmup
 from .export import RateFactor, make_scheduler, to_python, to_torch, torch_factor
 from .facts import Facts, facts
 from .metrics import read_metric
-from .recover import Recovery, recover
 from .plateau import PlateauReplay, plateau_source, replay_plateau
 from .schedule import Schedule, ScheduleError
 from .shapes import cosine, drops, exp_decay, flat, inv_sqrt, knots, one_cycle, poly, ramp, triangle
-from .solve import solve
 from .spec import Design, from_spec, json_schema, load, load_design, save, to_spec
 from .tracks import GroupDesigns, Tracks, inverse_momentum, load_tracks, per_group, tracks, tracks_from_spec
 
@@ -28,25 +25,28 @@ __all__ = [
     "Schedule", "ScheduleError",
     "flat", "ramp", "cosine", "exp_decay", "drops", "poly", "inv_sqrt", "triangle", "one_cycle", "knots",
     "stages", "warmup", "restarts",
-    "Facts", "facts", "solve",
+    "Facts", "facts",
     "replay_plateau", "plateau_source", "PlateauReplay", "read_metric",
     "to_python", "to_torch", "torch_factor", "RateFactor", "make_scheduler",
     "Budget", "check_length", "scale_for_batch",
     "Design", "to_spec", "from_spec", "save", "load", "load_design", "json_schema",
     "tracks", "Tracks", "per_group", "GroupDesigns", "inverse_momentum", "tracks_from_spec", "load_tracks",
-    "check_run", "Verdict", "FAULTS", "recover", "Recovery",
-    # loaded on first use (below): the clock, the tracks' readouts and exports, traces, the range test
+    # loaded on first use (below): inverse questions, exports to other frameworks, the clock, the tracks' readouts
+    # and exports, reading logs back (traces, check_run, recover, the range test)
+    "solve", "check_run", "Verdict", "FAULTS", "recover", "Recovery",
     "to_jax", "to_keras",
     "TrackClock", "to_torch_tracks", "track_facts", "tracks_sentence", "tracks_svg", "decay_per_step",
     "read_trace", "read_traces", "Trace",
     "read_range_test", "RangeReading", "run_range_test", "RangeRun", "sweep_rates",
 ]
 
-#: Names loaded from their module on first use, so ``import schedwidget`` stays light for training code.
-#: A function named like its own module (check_run, recover, solve, tracks) is imported above instead: once the
-#: submodule is imported anywhere, Python binds the package attribute to the module and __getattr__ never runs
-#: (``from schedwidget import check_run`` then gave the module: "'module' object is not callable").
+#: Names loaded from their module on first use, so ``import schedwidget`` stays light for training code.  No module
+#: is named like a function it exports (the solver lives in inverse.py, check_run in run_check.py, recover in
+#: recovery.py): once a submodule is imported anywhere, Python binds the package attribute of its name to the
+#: module, and __getattr__ would never run for a function of the same name.
 _LATER = {
+    "solve": "inverse", "check_run": "run_check", "Verdict": "run_check", "FAULTS": "run_check",
+    "recover": "recovery", "Recovery": "recovery",
     "to_jax": "export_jax", "to_keras": "export_keras",
     "TrackClock": "clock", "to_torch_tracks": "track_export",
     "track_facts": "track_readouts", "tracks_sentence": "track_readouts", "tracks_svg": "track_readouts",

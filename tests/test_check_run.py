@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import schedwidget as sw
-from schedwidget.check_run import FAULTS, Verdict, check_run
+from schedwidget.run_check import FAULTS, Verdict, check_run
 from schedwidget.schedule import ScheduleError
 from schedwidget.trace import Trace, read_trace
 

@@ -77,10 +77,10 @@ def test_import_benchmark_case_runs():
 
 
 def test_no_public_name_is_shadowed_by_its_module():
-    """Once every core module is imported, each public name is still the function or class, never the submodule of
-    the same name (check_run, recover, solve, tracks): a lazily exported check_run read as the module after
-    ``import schedwidget.check_run`` ran anywhere, and the README's ``check_run(design, trace)`` raised
-    "'module' object is not callable"."""
+    """Once every core module is imported, each public name is still the function or class, never a submodule of
+    the same name: check_run, exported lazily from a module of that name, read as the module once that module had
+    been imported anywhere, and the README's ``check_run(design, trace)`` raised "'module' object is not callable"
+    (the modules are now run_check, recovery and inverse, and a test of the whole list guards it)."""
     code = (
         "import importlib, pkgutil, types, schedwidget\n"
         "for m in pkgutil.iter_modules(schedwidget.__path__):\n"

@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import schedwidget as sw
-from schedwidget.recover import Recovery, node_count, recover
+from schedwidget.recovery import Recovery, node_count, recover
 from schedwidget.schedule import ScheduleError
 from schedwidget.trace import Trace
 from tests.strategies import leaves

@@ -15,7 +15,7 @@ from schedwidget import Design, ScheduleError, cosine, drops, exp_decay, flat, r
 from schedwidget.facts import facts
 from schedwidget.fingerprint import canonical, fingerprint
 from schedwidget.report import report, report_main
-from schedwidget.solve import paths
+from schedwidget.inverse import paths
 from schedwidget.spec import from_spec, read_design, save, to_spec
 from schedwidget.svg import render_svg
 

@@ -11,8 +11,8 @@ import pytest
 
 import schedwidget as sw
 from schedwidget import ScheduleError, cosine, exp_decay, facts, flat, poly, ramp, solve, stages, triangle, warmup
-from schedwidget.solve import _area, _bounds, _find, _first_under_share
-from schedwidget.solve import paths as solve_paths
+from schedwidget.inverse import _area, _bounds, _find, _first_under_share
+from schedwidget.inverse import paths as solve_paths
 
 
 class TestIssueQuestions:
@@ -260,7 +260,7 @@ def test_random_targets_are_answered_or_refused_correctly():
             text = str(exc)
 
             def build(v):
-                from schedwidget.solve import _rebuild
+                from schedwidget.inverse import _rebuild
                 return _rebuild(s, segs, v)
 
             scan = _scan(build, lo, hi, whole, m)
@@ -305,7 +305,7 @@ def _follow(s, segs):
 
 
 def _rebuild_at(s, segs, v):
-    from schedwidget.solve import _rebuild
+    from schedwidget.inverse import _rebuild
 
     return _rebuild(s, segs, v)
 
@@ -352,7 +352,7 @@ class TestSearch:
 
     @staticmethod
     def search(f, goal, lo=0.0, hi=10.0, whole=False):
-        from schedwidget.solve import _Search
+        from schedwidget.inverse import _Search
 
         return _Search("solve", "x", lo, hi, whole, lambda v: v, f, goal, "f(x)", False).run()
 

@@ -187,7 +187,7 @@ class TestBounds:
 
 def test_reading_traces_imports_neither_pandas_nor_tensorboard():
     """The core reads pandas objects by duck typing and TensorBoard only when asked (fresh interpreter)."""
-    code = ("import schedwidget.trace as T, schedwidget.check_run, schedwidget.recover, sys, json\n"
+    code = ("import schedwidget.trace as T, schedwidget.run_check, schedwidget.recovery, sys, json\n"
             "T.read_trace(b'step,lr\\n0,0.1\\n')\n"
             "print(json.dumps(sorted({m.split('.')[0] for m in sys.modules} & {'pandas', 'tensorboard', 'torch'})))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)

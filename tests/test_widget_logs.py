@@ -10,9 +10,9 @@ import pytest
 from ipywidgets.widgets.widget import _instances  # ipywidgets' registry of open widgets
 
 import schedwidget as sw
-from schedwidget.check_run import check_run
+from schedwidget.run_check import check_run
 from schedwidget.range_test import read_range_test
-from schedwidget.recover import recover
+from schedwidget.recovery import recover
 from schedwidget.trace import read_trace
 from schedwidget.widget.logs import MAX_DRAWN, DesignerLogs, LogsPanel, envelope
 

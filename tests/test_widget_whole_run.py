@@ -8,7 +8,7 @@ from schedwidget import ScheduleDesigner, cosine, drops, exp_decay, flat, restar
 from schedwidget.budget import Budget
 from schedwidget.facts import OVER_HINT, facts
 from schedwidget.lengths import ROUNDING
-from schedwidget.solve import paths, solve
+from schedwidget.inverse import paths, solve
 from schedwidget.widget.entries import CHOICE_WORDS
 from schedwidget.widget.form import Form, Warm, fit_run, read_form, stage_span
 from schedwidget.widget.solve_row import path_words

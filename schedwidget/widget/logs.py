@@ -32,10 +32,10 @@ with warnings.catch_warnings():
     warnings.filterwarnings("ignore", message="metadata .* was set from the constructor", category=DeprecationWarning)
     from bqplot import Axis, Figure, LinearScale, Lines, LogScale, Scatter
 
-from ..check_run import Verdict, check_run
+from ..run_check import Verdict, check_run
 from ..metrics import MAX_METRIC_BYTES
 from ..range_test import RangeReading, read_range_test
-from ..recover import Recovery, node_count, recover as recover_design
+from ..recovery import Recovery, node_count, recover as recover_design
 from ..sample import trace as curve_points
 from ..schedule import Schedule, complain
 from ..svg import nice_ticks  # one tick rule for the live and static curves

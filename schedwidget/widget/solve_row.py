@@ -15,7 +15,7 @@ import ipywidgets as W
 
 from ..lengths import parse_length, parse_rate
 from ..schedule import Schedule, ScheduleError, complain
-from ..solve import paths, solve
+from ..inverse import paths, solve
 from .entries import WORDS, Entry, number_text, put
 from .guard import Panel
 from .theme import ERROR_RED, tidy_html
