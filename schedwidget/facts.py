@@ -297,7 +297,7 @@ def facts(s: Schedule, steps: int | None = None, steps_per_epoch: int | None = N
         rows.append((f"{word} {k}: last tick before", j - 1, before))
         rows.append((f"{word} {k}: first tick after", j, after_))
     rows.append(("last tick", n - 1, final))
-    rows.append(("held after the budget", n, after))
+    rows.append(("after the run (held)", n, after))
     under_10, under_1 = _first_under(s, grid, n, peak_at, (0.1 * peak, 0.01 * peak)) if peak > 0 else (None, None)
     hl = _half_life(s)
     hl_epochs = None if hl is None else (hl[0] if unit == "epoch" else

@@ -181,7 +181,7 @@ def _fact_rows(f: Facts, u: str) -> list[tuple[str, str, str, int | None]]:
     """(key, what, value, tick): the numbers of ``facts``, values written exactly (repr)."""
     rows = [("first", "first tick", repr(f.first), 0), ("peak", "peak", repr(f.peak), f.peak_at),
             ("minimum", "minimum", repr(f.minimum), f.minimum_at), ("final", "last tick", repr(f.final), f.steps - 1),
-            ("after", "held after the budget", repr(f.after), f.steps), ("mean", "mean", repr(f.mean), None),
+            ("after", "after the run (held)", repr(f.after), f.steps), ("mean", "mean", repr(f.mean), None),
             ("area", "area (sum of rates)", repr(f.area), None), ("jumps", "jumps", str(len(f.breaks)), None),
             ("under_10", "first under 10 % of peak", "" if f.under_10 is not None else "never", f.under_10),
             ("under_1", "first under 1 % of peak", "" if f.under_1 is not None else "never", f.under_1)]

@@ -37,7 +37,7 @@ class TestFacts:
         s = warmup(cosine(0.1, steps=100), steps=10)
         f = facts(s)
         assert f.boundary == (("first tick", 0, 0.0), ("join 1: last tick before", 9, s(9)), ("join 1: first tick after", 10, 0.1),
-                              ("last tick", 109, s(109)), ("held after the budget", 110, 0.0))
+                              ("last tick", 109, s(109)), ("after the run (held)", 110, 0.0))
         assert "join 1: first tick after" in f.table() and "0.1" in f.table()
 
     def test_breaks(self):

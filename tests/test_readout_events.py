@@ -36,7 +36,7 @@ class TestDropRows:
         assert labels == ["first tick", "join 1: last tick before", "join 1: first tick after",
                           "drop 1: last tick before", "drop 1: first tick after",
                           "drop 2: last tick before", "drop 2: first tick after",
-                          "join 2: last tick before", "join 2: first tick after", "last tick", "held after the budget"]
+                          "join 2: last tick before", "join 2: first tick after", "last tick", "after the run (held)"]
         ticks = [r[1] for r in f.boundary]
         assert ticks == [0, 9, 10, 14, 15, 24, 25, 29, 30, 39, 40]
         assert all(r == s(t) for _, t, r in f.boundary)

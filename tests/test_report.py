@@ -66,7 +66,7 @@ def read_block(text: str, form: str, what: str, lang: str = "") -> str:
 
 FORMS = ("html", "markdown")
 LABELS = {"first tick": "first", "peak": "peak", "minimum": "minimum", "last tick": "final",
-          "held after the budget": "after", "mean": "mean", "area (sum of rates)": "area", "jumps": "jumps",
+          "after the run (held)": "after", "mean": "mean", "area (sum of rates)": "area", "jumps": "jumps",
           "first under 10 % of peak": "under_10", "first under 1 % of peak": "under_1"}
 
 

@@ -49,7 +49,7 @@ def _length(n: float, f: Facts) -> str:
 #: The core's boundary labels in plain words.
 BOUNDARY_WORDS = (("last tick before", "last {u} before"), ("first tick after", "first {u} after"),
                   ("first tick", "start"), ("last tick", "end"), ("join", "stage change"),
-                  ("held after the budget", "after the run"))
+                  ("after the run (held)", "after the run"))
 
 
 def _plain(label: str, unit: str) -> str:
