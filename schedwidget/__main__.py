@@ -117,7 +117,7 @@ def _rows(f, unit: str, rate: bool = True) -> list[str]:
     def at(t):
         return f"{unit} {t:,}" if t is not None else "never"
     rows = [("peak", f"{f.peak:.6g} at {at(f.peak_at)}"), ("first", f"{f.first:.6g}"),
-            ("final", f"{f.final:.6g} at {at(f.steps - 1)}"), ("after the run", f"{f.after:.6g}"),
+            ("final", f"{f.final:.6g} at {at(f.steps - 1)}"), ("after the budget", f"{f.after:.6g}"),
             ("minimum", f"{f.minimum:.6g} at {at(f.minimum_at)}"), ("mean", f"{f.mean:.6g}")]
     if rate:
         rows += [("area", f"{f.area:.6g} (sum of rates)"), ("jumps", f"{len(f.breaks):,}"),
