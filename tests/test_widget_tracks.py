@@ -271,3 +271,21 @@ def test_save_and_autosave_write_every_track_while_a_companion_is_edited(tmp_pat
     assert ScheduleDesigner.from_file(tmp_path / "t.json").tracks == held
     for w in (d, other):
         w.close()
+
+
+def test_export_writes_every_track_while_a_companion_is_edited():
+    """Export's Python and torch code hold every track (one function each; the snippet that sets lr and momentum),
+    not the momentum design the stages happen to edit; numpy, JAX and Keras take the edited group's rate."""
+    from schedwidget import cosine, flat, to_python, tracks, warmup
+    from schedwidget.track_export import to_torch_tracks
+    from schedwidget.widget import ScheduleDesigner
+    from schedwidget.widget.codeview import code_for
+
+    held = tracks(warmup(cosine(0.1, steps=900), 100), momentum=flat(0.9, steps=1000))
+    d = ScheduleDesigner(held)
+    d.track = "momentum"
+    assert code_for(d, "Python") == to_python(held, name="lr_at", unit="step", steps_per_epoch=d.steps_per_epoch)
+    assert code_for(d, "torch") == to_torch_tracks(held, unit="step", steps_per_epoch=d.steps_per_epoch)
+    assert code_for(d, "numpy") == to_python(held.rate, name="lr_at", unit="step",
+                                             steps_per_epoch=d.steps_per_epoch, array=True)
+    d.close()

@@ -26,6 +26,7 @@ from ..schedule import Schedule, complain
 from .controls import Entry
 from .guard import Panel
 from .theme import AMBER, BORDER, ERROR_RED, OK, TOGGLE, lines, tidy_html
+from .tracks_view import group_tracks
 
 if TYPE_CHECKING:  # pragma: no cover
     from .designer import ScheduleDesigner
@@ -62,6 +63,17 @@ def code_for(designer: ScheduleDesigner, language: str, base: float | None = Non
     param group (``groups``; None: the same rate in every group).
     """
     s, unit, spe = designer.schedule, designer.unit, designer.steps_per_epoch
+    held = getattr(designer, "tracks", None)
+    if held is not None and language in ("Python", "torch"):
+        # the whole tracks value, not the one track the stages edit (which may be a momentum): one function per
+        # track and group, or the snippet that sets every group's lr and tracked keys (its rates are absolute)
+        if language == "torch":
+            from ..track_export import to_torch_tracks
+
+            return to_torch_tracks(held, unit=unit, steps_per_epoch=spe)
+        return export.to_python(held, name="lr_at", unit=unit, steps_per_epoch=spe)
+    if held is not None:
+        s = group_tracks(held, designer.group).rate  # numpy, JAX and Keras take one rate design: the edited group's rate
     if language == "torch":
         if base is None:
             peak = designer.facts.peak if designer.facts is not None else 0.0
