@@ -8,6 +8,8 @@ the core's order with numpy's own functions, so it equals ``s(t)`` bit for bit a
 
 from __future__ import annotations
 
+from typing import Any
+
 from .codegen import TAKEN, _describe, check_name
 from .lowering import NUMPY, lower
 from .schedule import MAX_TICKS, Schedule
@@ -23,6 +25,19 @@ def head_lines(s: Schedule, name: str, unit: str, spe: int | None, title: str, p
     text = _describe(s, unit, spe, per=per, title=title)
     text[1:1] = [""] + extra if extra else []
     return ['    """' + text[0]] + [("    " + x).rstrip() for x in text[1:]] + ['    """']
+
+
+def checked_lowering(owner: str, s: Schedule, name: str, taken: frozenset[str], unit: str, steps_per_epoch: int | None,
+                     target: Any) -> tuple[str, int | None, list[str], str]:
+    """The checks every framework export makes (a schedule, a free name, the clock's unit, steps per epoch) and the
+    branch-free lowering of ``s`` for ``target``: ``(unit, steps_per_epoch, lines, result)``."""
+    from .export import _schedule, _spe, _unit
+
+    _schedule(owner, s)
+    check_name(owner, name, taken)
+    unit, spe = _unit(owner, unit), _spe(owner, steps_per_epoch)
+    lines, result = lower(s, target)
+    return unit, spe, lines, result
 
 
 def array_source(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_epoch: int | None = None) -> str:

@@ -7,9 +7,9 @@ imports ``jax.numpy`` only; schedwidget never imports jax.
 
 from __future__ import annotations
 
-from .codegen import TAKEN, check_name
-from .export_array import head_lines
-from .lowering import JAX, lower
+from .codegen import TAKEN
+from .export_array import checked_lowering, head_lines
+from .lowering import JAX
 from .schedule import Schedule
 
 __all__ = ["to_jax", "JAX_TAKEN", "FLOAT32_EXACT"]
@@ -56,13 +56,8 @@ def to_jax(s: Schedule, name: str = "lr_at", unit: str = "step", steps_per_epoch
     >>> text.splitlines()[0], "jnp.where(" in text
     ('import jax.numpy as jnp', True)
     """
-    from .export import _schedule, _spe, _unit
-
-    _schedule("to_jax", s)
-    check_name("to_jax", name, JAX_TAKEN)
-    unit, spe = _unit("to_jax", unit), _spe("to_jax", steps_per_epoch)
+    unit, spe, lines, result = checked_lowering("to_jax", s, name, JAX_TAKEN, unit, steps_per_epoch, JAX)
     n = s.length
-    lines, result = lower(s, JAX)
     doc = head_lines(s, name, unit, spe, "Learning rate at a step count (a traced int scalar or array, >= 0).",
                      f"one tick is one {'optimizer update: optax counts them' if unit == 'step' else 'epoch'}",
                      ["Branch-free jax.numpy code: jax.jit traces it and optax calls it as a schedule.", "",

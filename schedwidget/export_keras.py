@@ -8,9 +8,9 @@ class is registered as serializable (package ``schedwidget``): ``model.save()`` 
 
 from __future__ import annotations
 
-from .codegen import TAKEN, check_name
-from .export_array import head_lines
-from .lowering import KERAS, lower
+from .codegen import TAKEN
+from .export_array import checked_lowering, head_lines
+from .lowering import KERAS
 from .schedule import Schedule
 
 __all__ = ["to_keras", "KERAS_TAKEN"]
@@ -44,13 +44,8 @@ def to_keras(s: Schedule, name: str = "ExportedSchedule", unit: str = "step",
     >>> "class ExportedSchedule(keras.optimizers.schedules.LearningRateSchedule):" in text
     True
     """
-    from .export import _schedule, _spe, _unit
-
-    _schedule("to_keras", s)
-    check_name("to_keras", name, KERAS_TAKEN)
-    unit, spe = _unit("to_keras", unit), _spe("to_keras", steps_per_epoch)
+    unit, spe, lines, result = checked_lowering("to_keras", s, name, KERAS_TAKEN, unit, steps_per_epoch, KERAS)
     n = s.length
-    lines, result = lower(s, KERAS)
     doc = head_lines(s, name, unit, spe, "Learning rate at a step count (Keras passes optimizer.iterations).",
                      f"one tick is one {'optimizer update' if unit == 'step' else 'epoch'}",
                      ["Branch-free keras.ops code; float32 rates (Keras' learning-rate type): within float32",
@@ -67,6 +62,6 @@ def to_keras(s: Schedule, name: str = "ExportedSchedule", unit: str = "step",
     out += ["        " + x for x in lines]
     out += [f'        return ops.broadcast_to(ops.maximum(ops.cast({result}, "float32"), 0.0), ops.shape(u))', "",
             "    def get_config(self):",
-            "        return {}  # the design is this class's code: nothing else to save",
+            "        return {}  # the design is written into the code itself: nothing else to save",
             ""]
     return "\n".join(out)

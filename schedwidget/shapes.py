@@ -49,7 +49,7 @@ class Ramp(ClosedForm):
     steps: int = _steps()
     curve: str = param("linear", kind="choice", choices=("linear", "geometric", "cosine", "sqrt"),
                        doc="linear, geometric (constant ratio per tick), a half cosine, or sqrt: "
-                           "end + (start - end) * (1 - sqrt(t / steps)), the 1-sqrt cooldown")
+                           "end + (start - end) * (1 - sqrt(t / steps)), the closing 1-sqrt decay")
 
     def __post_init__(self) -> None:
         self._validate()
@@ -65,7 +65,7 @@ class Ramp(ClosedForm):
             return self.start + (self.end - self.start) * x
         if self.curve == "geometric":
             return exp(math.log(self.start) + (math.log(self.end) - math.log(self.start)) * x)
-        if self.curve == "sqrt":  # Hägele et al. 2024's (1-sqrt) cooldown; end = 0 leaves start * (1 - sqrt(x))
+        if self.curve == "sqrt":  # Hägele et al. 2024's closing (1-sqrt) decay; end = 0 leaves start * (1 - sqrt(x))
             return self.end + (self.start - self.end) * (1.0 - sqrt(x))
         return self.end + (self.start - self.end) * (1.0 + cos(math.pi * x)) / 2.0
 
@@ -243,9 +243,9 @@ def flat(lr: float, steps: int | None = None) -> Schedule:
 def ramp(start: float, end: float, steps: int, curve: str = "linear") -> Schedule:
     """From ``start`` at tick 0 to ``end`` at tick ``steps`` (the next stage's first tick).
 
-    ``curve="sqrt"`` is the (1-sqrt) cooldown of warmup-stable-decay runs (Hägele et al. 2024):
+    ``curve="sqrt"`` is the closing (1-sqrt) decay of warmup-stable-decay runs (Hägele et al. 2024):
     ``end + (start - end) * (1 - sqrt(t / steps))``, which for ``end = 0`` is ``start * (1 - sqrt(t / steps))``;
-    ``end > 0`` is a floor the cooldown ends on.
+    ``end > 0`` is a floor the decay ends on.
 
     >>> ramp(0.0, 1.0, 4)(2)
     0.5

@@ -127,13 +127,18 @@ def jupyter_server(app: str, notebooks: dict[str, Path | dict]) -> Iterator[Serv
         _wait_ready(proc, server)
         yield server
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(timeout=15)
-        # kernels are children of the server; end the ones it left behind (its own process group only)
-        with contextlib.suppress(ProcessLookupError, PermissionError):
-            os.killpg(proc.pid, 9)
-        shutil.rmtree(tmp, ignore_errors=True)
+        stop(proc, tmp)
+
+
+def stop(proc: subprocess.Popen, tmp: Path) -> None:
+    """End a server started with ``start_new_session=True``, the kernels it left behind, and its scratch root."""
+    proc.terminate()
+    try:
+        proc.wait(timeout=15)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.wait(timeout=15)
+    # kernels are children of the server; end the ones it left behind (its own process group only)
+    with contextlib.suppress(ProcessLookupError, PermissionError):
+        os.killpg(proc.pid, 9)
+    shutil.rmtree(tmp, ignore_errors=True)

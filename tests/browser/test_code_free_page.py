@@ -29,7 +29,7 @@ import pytest
 
 from .conftest import DEMAND, new_page
 from .pages import figure, shot, wait_for_change, wait_for_curve, widget_error_shown
-from .server import config_dir, free_port
+from .server import config_dir, free_port, stop
 
 NOTEBOOKS = Path(__file__).resolve().parents[2] / "notebooks"
 PAGES = {"designer": "designer_page.ipynb", "teaching": "teaching.ipynb"}
@@ -92,15 +92,7 @@ def voila_server(notebooks: dict[str, Path]) -> Iterator[str]:
             time.sleep(0.25)
         yield base
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(timeout=15)
-        with contextlib.suppress(ProcessLookupError, PermissionError):  # its kernels: its own process group only
-            os.killpg(proc.pid, 9)
-        shutil.rmtree(tmp, ignore_errors=True)
+        stop(proc, tmp)
 
 
 @pytest.fixture(scope="module")
