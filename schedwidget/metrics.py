@@ -150,7 +150,8 @@ class _Label(str):
         return str(self)
 
 
-def _is_number(cell: str) -> bool:
+def is_number(cell: str) -> bool:
+    """Whether a CSV cell reads as a number (a row of them is data, not a header)."""
     try:
         float(cell)
     except ValueError:
@@ -177,7 +178,7 @@ def _from_csv_text(text: str, column: str | int | None, where: str) -> np.ndarra
                        f"line {n} cannot be read as CSV: {exc}; a field holds at most "
                        f"{csv.field_size_limit():,} characters") from None
     first = [c.strip() for c in rows[0]]
-    if all(_is_number(c) for c in first):
+    if all(is_number(c) for c in first):
         header = [str(k) for k in range(len(first))]
     else:
         header, rows, lines = first, rows[1:], lines[1:]

@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from .metrics import INDEX_COLUMNS, MAX_METRIC_BYTES, _from_csv_text, _from_pandas, values_of
+from .metrics import INDEX_COLUMNS, MAX_METRIC_BYTES, _from_csv_text, _from_pandas, is_number, values_of
 from .params import ScheduleError, complain
 from .spec import read_file
 
@@ -99,20 +99,12 @@ def _csv_header(text: str) -> list[str]:
 
 
 def _columns(header: list[str], rate_column: Any, loss_column: Any, where: str) -> tuple[Any, Any]:
-    numbered = header and all(_is_number(h) for h in header)
+    numbered = header and all(is_number(h) for h in header)
     if numbered:  # no header: the first two columns, as the metrics reader numbers them
         return (0 if rate_column is None else rate_column), (1 if loss_column is None else loss_column)
     r = _pick(header, rate_column, RATE_WORDS, None, "rate_column", where)
     r_at = r if isinstance(r, int) else (header.index(r) if r in header else None)
     return r, _pick(header, loss_column, LOSS_WORDS, r_at, "loss_column", where)
-
-
-def _is_number(cell: str) -> bool:
-    try:
-        float(cell)
-    except ValueError:
-        return False
-    return True
 
 
 def _from_text(text: str, where: str, rate_column: Any, loss_column: Any) -> tuple[np.ndarray, np.ndarray]:

@@ -22,7 +22,7 @@ from typing import Any, Iterable, Mapping
 
 import numpy as np
 
-from .metrics import MAX_METRIC_BYTES, _is_number, _Label, values_of
+from .metrics import MAX_METRIC_BYTES, _Label, is_number, values_of
 from .schedule import MAX_TICKS, ScheduleError, complain
 from .spec import read_file
 
@@ -306,7 +306,7 @@ def _csv_table(text: str, where: str, owner: str) -> tuple[list[str], list[np.nd
                        f"{csv.field_size_limit():,} characters") from None
     lines = [n for n, _ in kept]
     first = [c.strip() for c in rows[0]]
-    if all(_is_number(c) for c in first):
+    if all(is_number(c) for c in first):
         header = [str(k) for k in range(len(first))]
     else:
         header, rows, lines = first, rows[1:], lines[1:]
