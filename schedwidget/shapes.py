@@ -158,7 +158,7 @@ class Drops(_Leaf):
 
     def _source(self, w, u, bound, ind, sink):
         at = [float(a) for a in self.at]
-        levels = self._at(np.array([0.0, *at])).tolist()   # the core's own level after each drop
+        levels = self._levels.tolist()   # the core's own level after each drop
         if len(at) <= CHAIN_MAX:
             w.chain(u, ind, at, lambda i, j: w.put(j, sink(num(levels[i]))))
             return
